@@ -1,0 +1,135 @@
+"""The face every sampling method shares: draw in vectorised batches from a numpy
+Generator, count what the draws cost, describe the method's geometry, save tables.
+
+Randomness follows numpy's model (one ``Generator`` passed in, ``default_rng`` at
+the boundary, no global state); counters are incremented by counting, never by formula.
+"""
+from __future__ import annotations
+
+import time
+from typing import Any, ClassVar
+
+import numpy as np
+
+from ..errors import ModelError, sample_size
+from ..target import Target
+
+# Draws are produced in chunks of this many values: large enough to amortise
+# numpy's per-call overhead, small enough to keep the temporaries in cache.
+CHUNK = 1 << 16
+
+COUNTER_NAMES = ("samples", "uniforms", "density_evals", "candidates", "accepted", "squeezed", "log_evals")
+
+
+def check_tolerance(tolerance) -> float:
+    try:
+        tol = float(tolerance)
+    except (TypeError, ValueError):
+        raise ModelError("tolerance", f"must be a number, got {tolerance!r}") from None
+    if not (1e-14 <= tol <= 1e-2):
+        raise ModelError("tolerance", f"must lie between 1e-14 (double precision) and 1e-2, got {tol:g}")
+    return tol
+
+
+class Sampler:
+    """A method bound to a target, with its set-up done.
+
+    Subclasses implement ``_draw(m, rng)`` (m values, vectorised, updating the
+    counters), ``_tables()``/``_meta()`` for saving and ``_restore`` for loading,
+    and ``geometry()`` for pictures of the method.
+    """
+
+    method: ClassVar[str] = "abstract"
+    #: A one-line citation of the published method.
+    reference: ClassVar[str] = ""
+
+    def __init__(self, target: Target, tolerance: float = 1e-10):
+        self.target = target
+        self.tolerance = check_tolerance(tolerance)
+        self.reason = ""
+        self.setup_seconds = 0.0
+        self.extra_stats: dict[str, Any] = {}
+        self.reset_counters()
+
+    # ---- construction ------------------------------------------------------------
+    @classmethod
+    def build(cls, target: Target, tolerance: float = 1e-10, **options) -> "Sampler":
+        cls.check_applicable(target)
+        start = time.perf_counter()
+        sampler = cls(target, tolerance, **options)
+        sampler._setup()
+        sampler.setup_seconds = time.perf_counter() - start
+        return sampler
+
+    @classmethod
+    def check_applicable(cls, target: Target) -> None:
+        """Raise MethodNotApplicable (with the reason) if this method cannot serve ``target``."""
+
+    def _setup(self) -> None:
+        pass
+
+    # ---- drawing -----------------------------------------------------------------
+    def sample(self, n, rng=None) -> np.ndarray:
+        """Draw ``n`` lifetimes; ``rng`` is a seed, a SeedSequence or a numpy Generator."""
+        n = sample_size("n", n)
+        rng = np.random.default_rng(rng)
+        out = np.empty(n)
+        for start in range(0, n, CHUNK):
+            stop = min(start + CHUNK, n)
+            out[start:stop] = self._draw(stop - start, rng)
+        self.counts["samples"] += n
+        return out
+
+    def _draw(self, m: int, rng: np.random.Generator) -> np.ndarray:
+        raise NotImplementedError
+
+    # ---- counters ----------------------------------------------------------------
+    def reset_counters(self) -> None:
+        self.counts = {name: 0 for name in COUNTER_NAMES}
+
+    @property
+    def stats(self) -> dict[str, Any]:
+        """What the method costs, measured by counting over all draws since the last reset."""
+        c = self.counts
+        n = max(c["samples"], 1)
+        cand = c["candidates"]
+        out = {
+            "method": self.method,
+            "setup_seconds": self.setup_seconds,
+            "samples": c["samples"],
+            "uniforms_per_sample": c["uniforms"] / n if c["samples"] else None,
+            "density_evals_per_sample": c["density_evals"] / n if c["samples"] else None,
+            "acceptance_rate": (c["accepted"] / cand) if cand else None,
+            "squeeze_rate": (c["squeezed"] / cand) if cand else None,
+            "table_bytes": self.table_bytes,
+            "u_error": None,
+            "tolerance": self.tolerance,
+        }
+        out.update(self.extra_stats)
+        return out
+
+    @property
+    def table_bytes(self) -> int:
+        return int(sum(a.nbytes for a in self._tables().values()))
+
+    # ---- pictures and persistence --------------------------------------------------
+    def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:
+        """Plain arrays that a picture of the method needs (keys depend on the method)."""
+        return {"method": self.method}
+
+    def _tables(self) -> dict[str, np.ndarray]:
+        return {}
+
+    def _meta(self) -> dict[str, Any]:
+        return {}
+
+    def _restore(self, meta: dict[str, Any], tables: dict[str, np.ndarray]) -> None:
+        self._setup()
+
+    def save(self, path) -> None:
+        """Write this sampler to ``path`` (see ``engine.storage`` for the format)."""
+        from ..storage import save_sampler
+        save_sampler(self, path)
+
+    def __repr__(self) -> str:
+        return f"<{type(self).__name__} method={self.method!r} target={self.target!r}>"

@@ -1,0 +1,66 @@
+"""Plain-data descriptions of targets (the ``model`` table of a scenario file, the
+metadata of a saved sampler), and their conversion to and from ``Target`` objects.
+
+A spec is a dict of strings, numbers and lists, so it round-trips through TOML and JSON.
+"""
+from __future__ import annotations
+
+import math
+from typing import Any, Mapping
+
+from .errors import ModelError
+from .target import Target
+
+KINDS = ("family", "density", "hazard", "cdf", "histogram", "failures", "mixture", "competing", "residual")
+
+
+def _get(spec: Mapping, key: str, path: str):
+    if key not in spec:
+        raise ModelError(f"{path}.{key}" if path else key, "missing")
+    return spec[key]
+
+
+def _support(spec: Mapping, path: str):
+    raw = spec.get("support", [0.0, math.inf])
+    if isinstance(raw, (list, tuple)) and len(raw) == 2:
+        return tuple(math.inf if v in ("inf", "Infinity") else -math.inf if v in ("-inf", "-Infinity") else v
+                     for v in raw)
+    raise ModelError(f"{path}.support" if path else "support", "must be a list [lo, hi]")
+
+
+def target_from_spec(spec: Mapping[str, Any], path: str = "model") -> Target:
+    """Build a Target from its spec; errors name the field by its path in the spec."""
+    if not isinstance(spec, Mapping):
+        raise ModelError(path, "must be a table")
+    kind = str(_get(spec, "kind", path)).lower()
+    try:
+        if kind == "family":
+            params = dict(spec.get("params", {}))
+            return Target.family(_get(spec, "family", path), **params)
+        if kind == "density":
+            return Target.density(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+        if kind == "hazard":
+            return Target.hazard(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+        if kind == "cdf":
+            return Target.cdf_formula(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+        if kind == "histogram":
+            return Target.histogram(_get(spec, "edges", path), _get(spec, "counts", path),
+                                    smooth=bool(spec.get("smooth", False)))
+        if kind == "failures":
+            return Target.failures(_get(spec, "times", path), spec.get("censored"))
+        if kind == "mixture":
+            comps = [target_from_spec(c, f"{path}.components[{i}]")
+                     for i, c in enumerate(_get(spec, "components", path))]
+            return Target.mixture(comps, _get(spec, "weights", path))
+        if kind == "competing":
+            comps = [target_from_spec(c, f"{path}.components[{i}]")
+                     for i, c in enumerate(_get(spec, "components", path))]
+            return Target.competing(comps)
+        if kind == "residual":
+            base = target_from_spec(_get(spec, "base", path), f"{path}.base")
+            return base.given_survival(_get(spec, "age", path))
+    except ModelError as err:
+        if err.field.startswith(path):
+            raise
+        raise ModelError(f"{path}.{err.field}", err.reason) from None
+    raise ModelError(f"{path}.kind", f"unknown kind {kind!r}; known: {', '.join(KINDS)}")

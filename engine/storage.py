@@ -1,0 +1,88 @@
+"""Saving and loading samplers: one portable file of our own design.
+
+The file is a numpy ``.npz`` archive (a zip of ``.npy`` arrays, readable without
+pickle) holding the method's tables plus one entry ``lifedraw.json``: a UTF-8
+JSON document with the format version, method, tolerance, the target's spec and
+the method's metadata. Loading restores the tables without redoing the set-up.
+"""
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from .errors import ModelError
+
+FORMAT = "lifedraw-sampler"
+VERSION = 1
+META_KEY = "lifedraw.json"
+
+
+def _jsonable(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return {"float": repr(value)}
+    if isinstance(value, dict):
+        return {k: _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, np.generic):
+        return _jsonable(value.item())
+    return value
+
+
+def _from_json(value):
+    if isinstance(value, dict):
+        if set(value) == {"float"}:
+            return float(value["float"])
+        return {k: _from_json(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_from_json(v) for v in value]
+    return value
+
+
+def save_sampler(sampler, path) -> Path:
+    path = Path(path)
+    meta = {"format": FORMAT, "version": VERSION, "method": sampler.method,
+            "class": type(sampler).__name__, "tolerance": sampler.tolerance,
+            "setup_seconds": sampler.setup_seconds, "reason": sampler.reason,
+            "target": sampler.target.spec(), "method_meta": sampler._meta()}
+    blob = json.dumps(_jsonable(meta), allow_nan=False).encode("utf-8")
+    arrays = {f"table.{k}": np.ascontiguousarray(v) for k, v in sampler._tables().items()}
+    arrays[META_KEY] = np.frombuffer(blob, dtype=np.uint8)
+    with open(path, "wb") as fh:
+        np.savez(fh, **arrays)
+    return path
+
+
+def load_sampler(path):
+    """Rebuild a sampler saved with ``sampler.save(path)``."""
+    from .methods import sampler_class
+    from .specs import target_from_spec
+
+    path = Path(path)
+    try:
+        with np.load(path, allow_pickle=False) as archive:
+            if META_KEY not in archive.files:
+                raise ModelError("path", f"{path} is not a lifedraw sampler file (no {META_KEY})")
+            meta = _from_json(json.loads(bytes(archive[META_KEY]).decode("utf-8")))
+            tables = {k[len("table."):]: archive[k] for k in archive.files if k.startswith("table.")}
+    except FileNotFoundError:
+        raise ModelError("path", f"{path} does not exist") from None
+    except (OSError, ValueError) as err:
+        if isinstance(err, ModelError):
+            raise
+        raise ModelError("path", f"{path} could not be read as a sampler file ({err})") from None
+    if meta.get("format") != FORMAT or meta.get("version") != VERSION:
+        raise ModelError("path", f"{path} has format {meta.get('format')!r} version {meta.get('version')!r}; "
+                                 f"this lifedraw reads {FORMAT!r} version {VERSION}")
+    target = target_from_spec(meta["target"], "target")
+    cls = sampler_class(meta["class"])
+    sampler = cls.__new__(cls)
+    from .methods.base import Sampler
+    Sampler.__init__(sampler, target, meta["tolerance"])
+    sampler.setup_seconds = meta["setup_seconds"]
+    sampler.reason = meta.get("reason", "")
+    sampler._restore(meta["method_meta"], tables)
+    return sampler
