@@ -132,7 +132,7 @@ class DensityTarget(_FormulaTarget):
     def _sf(self, t):
         return self.integral.upper(t) / self.area
 
-    def density_derivative(self):
+    def _dpdf_exact(self):
         """f'(t) as a vectorised function (exact, from the formula's derivative)."""
         d = self.expression.derivative().bind(**self.params)
         return lambda t: d(t) * np.ones_like(np.asarray(t, dtype=float)) / self.area
@@ -238,7 +238,7 @@ class HazardTarget(_FormulaTarget):
             out[inside] = self.H(t[inside])
         return out if out.ndim else float(out)
 
-    def density_derivative(self):
+    def _dpdf_exact(self):
         dh = self.expression.derivative().bind(**self.params)
 
         def fprime(t):
@@ -291,6 +291,11 @@ class CdfTarget(_FormulaTarget):
         self._d = lambda t: d(t) * np.ones_like(np.asarray(t, dtype=float))
         self._map = support_map(lo, hi, density=self._d)
         self.pole_at_lower = self._pole_check(self._d)
+        d2 = self.expression.derivative().derivative().bind(**self.params)
+        self._d2 = lambda t: d2(t) * np.ones_like(np.asarray(t, dtype=float))
+
+    def _dpdf_exact(self):
+        return self._d2
 
     def _cdf(self, t):
         return np.clip(self._raw(t) * np.ones_like(t), 0.0, 1.0)

@@ -58,7 +58,6 @@ def save_sampler(sampler, path) -> Path:
 
 def load_sampler(path):
     """Rebuild a sampler saved with ``sampler.save(path)``."""
-    from .methods import sampler_class
     from .specs import target_from_spec
 
     path = Path(path)
@@ -78,11 +77,20 @@ def load_sampler(path):
         raise ModelError("path", f"{path} has format {meta.get('format')!r} version {meta.get('version')!r}; "
                                  f"this lifedraw reads {FORMAT!r} version {VERSION}")
     target = target_from_spec(meta["target"], "target")
-    cls = sampler_class(meta["class"])
-    sampler = cls.__new__(cls)
+    return restore_sampler(meta["class"], target, meta["tolerance"], meta["method_meta"], tables,
+                           setup_seconds=meta["setup_seconds"], reason=meta.get("reason", ""))
+
+
+def restore_sampler(class_name: str, target, tolerance: float, meta: dict, tables: dict,
+                    setup_seconds: float = 0.0, reason: str = ""):
+    """Rebuild one sampler object from its saved metadata and tables (no set-up)."""
+    from .methods import sampler_class
     from .methods.base import Sampler
-    Sampler.__init__(sampler, target, meta["tolerance"])
-    sampler.setup_seconds = meta["setup_seconds"]
-    sampler.reason = meta.get("reason", "")
-    sampler._restore(meta["method_meta"], tables)
+
+    cls = sampler_class(class_name)
+    sampler = cls.__new__(cls)
+    Sampler.__init__(sampler, target, tolerance)
+    sampler.setup_seconds = setup_seconds
+    sampler.reason = reason
+    sampler._restore(meta, tables)
     return sampler

@@ -92,6 +92,27 @@ class Target:
     def logpdf(self, t):
         return self._masked(t, self._logpdf, -np.inf, -np.inf)
 
+    def dpdf(self, t):
+        """f'(t). Exact where the model has a formula for it; otherwise a
+        fourth-order central difference (relative accuracy about 1e-10)."""
+        t = np.asarray(t, dtype=float)
+        exact = self._dpdf_exact()
+        if exact is not None:
+            out = np.where((t > self.support[0]) & (t < self.support[1]), exact(t), 0.0)
+            return out if out.ndim else float(out)
+        lo, hi = self.support
+        h = 1e-3 * np.maximum(np.abs(t), self.mapping.scale)  # ~eps**(1/5), optimal for this stencil
+        # Keep the stencil inside the support.
+        room = np.minimum(t - lo, hi - t) / 2.5
+        h = np.where(np.isfinite(room), np.minimum(h, room), h)
+        f = self.pdf
+        d = (-f(t + 2 * h) + 8 * f(t + h) - 8 * f(t - h) + f(t - 2 * h)) / (12 * h)
+        return d if np.ndim(d) else float(d)
+
+    def _dpdf_exact(self):
+        """A vectorised exact f'(t), if the model has one (formula models do)."""
+        return None
+
     def cdf(self, t):
         """F(t) = P(T <= t), the probability of failure by age t."""
         return self._masked(t, self._cdf, 0.0, 1.0)

@@ -3,19 +3,27 @@ from __future__ import annotations
 
 from ..errors import ModelError
 from .base import Sampler
+from .composition import Composition
 from .inversion import Inversion, NumericalInversion
+from .table import TableSampler
 
 #: method name -> the class whose ``build`` serves it
 METHODS: dict[str, type[Sampler]] = {
     "inversion": Inversion,
+    "table": TableSampler,
+    "composition": Composition,
 }
 
-_ALL_CLASSES = {cls.__name__: cls for cls in (Inversion, NumericalInversion)}
+_ALL_CLASSES: dict[str, type[Sampler]] = {
+    cls.__name__: cls for cls in (Inversion, NumericalInversion, TableSampler, Composition)}
 
 
-def register(name: str, cls: type[Sampler]) -> None:
-    METHODS[name] = cls
-    _ALL_CLASSES[cls.__name__] = cls
+def register(name: str | None, *classes: type[Sampler]) -> None:
+    """Make classes loadable from saved files; ``name`` also exposes the first to ``fit``."""
+    if name:
+        METHODS[name] = classes[0]
+    for cls in classes:
+        _ALL_CLASSES[cls.__name__] = cls
 
 
 def sampler_class(class_name: str) -> type[Sampler]:

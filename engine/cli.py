@@ -1,0 +1,139 @@
+"""The ``lifedraw`` command: list scenarios, draw samples, prove a sampler,
+compare methods, write reports, serve the dashboard, generate at scale.
+
+Engine commands run on the engine alone; ``serve`` and ``report`` load the
+dashboard package only when called.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from .errors import ModelError
+
+CAUTION = ("Lifetime figures are statistical estimates from a model. Extrapolation beyond the data "
+           "and independence assumptions can mislead; safety-critical decisions follow the applicable "
+           "standards and qualified engineers.")
+
+
+def _number(text: str) -> int:
+    """Accept 100000, 1e5 or 1_000_000 for sizes."""
+    try:
+        value = float(str(text).replace("_", ""))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if value != int(value):
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
+    return int(value)
+
+
+def cmd_scenarios(args) -> int:
+    from .scenarios import load_scenario, scenario_names
+    for name in scenario_names():
+        try:
+            title = load_scenario(name).title
+        except ModelError as err:
+            title = f"(invalid: {err})"
+        print(f"{name:28s} {title}")
+    return 0
+
+
+def _sampler_for(args):
+    from .sampling import fit
+    from .scenarios import load_scenario
+    sc = load_scenario(args.scenario)
+    method = args.method or sc.method
+    tol = args.tolerance if getattr(args, "tolerance", None) is not None else sc.tolerance
+    return sc, fit(sc.target(), method=method, tolerance=tol)
+
+
+def cmd_sample(args) -> int:
+    sc, sampler = _sampler_for(args)
+    n = args.n if args.n is not None else sc.sample_size
+    seed = args.seed if args.seed is not None else sc.seed
+    x = sampler.sample(n, seed)
+    out = Path(args.output)
+    if out.suffix == ".npy":
+        np.save(out, x)
+    elif out.suffix == ".csv":
+        np.savetxt(out, x, fmt="%.17g", header=f"lifetime_{sc.time_unit}", comments="")
+    elif out.suffix == ".txt":
+        np.savetxt(out, x, fmt="%.17g")
+    else:
+        raise ModelError("output", f"unknown file type {out.suffix!r}; use .npy, .csv or .txt")
+    s = sampler.stats
+    print(f"wrote {n} lifetimes ({sc.time_unit}) of '{sc.title}' to {out}")
+    print(f"method: {s['method']} ({sampler.reason}); seed {seed}; set-up {s['setup_seconds'] * 1e3:.1f} ms")
+    return 0
+
+
+def cmd_check(args) -> int:
+    from .check import check
+    sc, sampler = _sampler_for(args)
+    n = args.n if args.n is not None else sc.sample_size
+    seed = args.seed if args.seed is not None else sc.seed
+    report = check(sampler, sampler.target, n=n, rng=seed)
+    print(f"{sc.title}\n{sampler.target.describe()}\n")
+    print(f"method: {sampler.method} — {sampler.reason}")
+    print(report.summary())
+    print("\n" + CAUTION)
+    return 0 if report.passed() else 1
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="lifedraw", description="Exact, fast random lifetimes from reliability models.")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    s = sub.add_parser("scenarios", help="list the scenarios (name, then title)")
+    s.set_defaults(func=cmd_scenarios)
+
+    def common(sp, with_output=False):
+        sp.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
+        sp.add_argument("-n", type=_number, default=None, help="number of lifetimes (default: the scenario's)")
+        sp.add_argument("--method", default=None, help="auto, inversion, rejection, ratio-of-uniforms, table, ...")
+        sp.add_argument("--seed", type=int, default=None)
+        sp.add_argument("--tolerance", type=float, default=None, help="u-error tolerance for inversion")
+        if with_output:
+            sp.add_argument("-o", "--output", required=True, help="output file: .npy, .csv or .txt")
+
+    s = sub.add_parser("sample", help="draw lifetimes to a file")
+    common(s, with_output=True)
+    s.set_defaults(func=cmd_sample)
+
+    s = sub.add_parser("check", help="prove a sampler reproduces its scenario's model")
+    common(s)
+    s.set_defaults(func=cmd_check)
+
+    for extra in _EXTRA_COMMANDS:
+        extra(sub)
+    return p
+
+
+_EXTRA_COMMANDS: list = []
+
+
+def command(register):
+    """Decorator: further subcommands (compare, report, serve, generate) add themselves here."""
+    _EXTRA_COMMANDS.append(register)
+    return register
+
+
+def main(argv=None) -> int:
+    from . import cli_more  # noqa: F401  (registers the further subcommands)
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except ModelError as err:
+        print(f"lifedraw: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("lifedraw: stopped", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

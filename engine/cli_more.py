@@ -1,0 +1,25 @@
+"""Further ``lifedraw`` subcommands, registered on the main parser by ``engine.cli``."""
+from __future__ import annotations
+
+from .cli import _number, command
+
+
+@command
+def _compare(sub):
+    def run(args):
+        from .compare import compare_methods, format_table
+        from .scenarios import load_scenario
+        sc = load_scenario(args.scenario)
+        target = sc.target()
+        print(f"{sc.title}\n{target.describe().splitlines()[0]}\n")
+        print(format_table(compare_methods(target, n=args.n, rng=args.seed or sc.seed,
+                                           tolerance=args.tolerance or sc.tolerance)))
+        print("\nMeasured now on this machine, single process; draws/s is the median of 3 timed batches.")
+        return 0
+
+    p = sub.add_parser("compare", help="measure every applicable method on a scenario")
+    p.add_argument("scenario")
+    p.add_argument("-n", type=_number, default=300_000, help="draws timed per method (default 3e5)")
+    p.add_argument("--seed", type=int, default=None)
+    p.add_argument("--tolerance", type=float, default=None)
+    p.set_defaults(func=run)

@@ -1,0 +1,209 @@
+"""Scenario files: a fictional reliability story, its lifetime model, the
+parameters a user may vary (with slider ranges) and the run settings, in TOML.
+
+The layout is lifedraw's own; DEVELOPERS.md ("Adding a scenario") documents it.
+Model values may name a parameter (a string) instead of giving a number.
+"""
+from __future__ import annotations
+
+import math
+import os
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Mapping
+
+import tomli_w
+
+from .errors import ModelError, finite_number
+from .specs import target_from_spec
+from .target import Target
+
+SCENARIO_DIR = Path(os.environ.get("LIFEDRAW_SCENARIOS", Path(__file__).resolve().parent.parent / "scenarios"))
+
+# Keys under which a string in a model table names a parameter.
+_VALUE_KEYS = {"params", "weights", "age", "support", "location"}
+_FORMULA_KINDS = {"density", "hazard", "cdf"}
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """A model value the user may vary, with its slider range."""
+
+    name: str
+    value: float
+    low: float
+    high: float
+    step: float
+    label: str = ""
+
+    def clipped(self, value: float) -> float:
+        return min(max(float(value), self.low), self.high)
+
+
+@dataclass(frozen=True)
+class Scenario:
+    name: str
+    title: str
+    story: str
+    model: dict
+    parameters: dict[str, Parameter] = field(default_factory=dict)
+    time_unit: str = "hours"
+    method: str = "auto"
+    seed: int = 20261201
+    sample_size: int = 100_000
+    mission_times: tuple[float, ...] = ()
+    tolerance: float = 1e-10
+    system: dict | None = None
+    path: Path | None = None
+
+    # ---- the model -----------------------------------------------------------------
+    def values(self, **overrides) -> dict[str, float]:
+        out = {k: p.value for k, p in self.parameters.items()}
+        for k, v in overrides.items():
+            if k not in self.parameters:
+                raise ModelError(k, f"not a parameter of scenario {self.name!r} "
+                                    f"(parameters: {', '.join(self.parameters) or 'none'})")
+            out[k] = finite_number(k, v)
+        return out
+
+    def model_spec(self, **overrides) -> dict:
+        """The model table with every parameter name replaced by its value."""
+        return _resolve(self.model, self.values(**overrides), "model")
+
+    def target(self, **overrides) -> Target:
+        return target_from_spec(self.model_spec(**overrides), "model")
+
+    def with_values(self, **values) -> "Scenario":
+        """The same scenario with new parameter values (kept inside their ranges)."""
+        params = dict(self.parameters)
+        for k, v in self.values(**values).items():
+            params[k] = replace(params[k], value=float(v))
+        return replace(self, parameters=params)
+
+    # ---- files -----------------------------------------------------------------------
+    def to_dict(self) -> dict:
+        out: dict[str, Any] = {"title": self.title, "story": self.story, "time_unit": self.time_unit,
+                               "run": {"method": self.method, "seed": self.seed,
+                                       "sample_size": self.sample_size,
+                                       "mission_times": list(self.mission_times),
+                                       "tolerance": self.tolerance}}
+        if self.parameters:
+            out["parameters"] = {k: {"value": p.value, "min": p.low, "max": p.high, "step": p.step,
+                                     **({"label": p.label} if p.label else {})}
+                                 for k, p in self.parameters.items()}
+        out["model"] = self.model
+        if self.system:
+            out["system"] = self.system
+        return out
+
+    def to_toml(self) -> str:
+        header = f"# lifedraw scenario: {self.title}\n"
+        return header + tomli_w.dumps(_toml_safe(self.to_dict()))
+
+    def save(self, path) -> Path:
+        path = Path(path)
+        path.write_text(self.to_toml(), encoding="utf-8")
+        return path
+
+
+def _toml_safe(value):
+    if isinstance(value, float) and math.isinf(value):
+        return value
+    if isinstance(value, dict):
+        return {k: _toml_safe(v) for k, v in value.items() if v is not None}
+    if isinstance(value, (list, tuple)):
+        return [_toml_safe(v) for v in value]
+    return value
+
+
+def _resolve(node, values: Mapping[str, float], path: str, in_values: bool = False):
+    if isinstance(node, Mapping):
+        out = {}
+        for k, v in node.items():
+            out[k] = _resolve(v, values, f"{path}.{k}", in_values or k in _VALUE_KEYS)
+        if out.get("kind") in _FORMULA_KINDS and "params" not in node:
+            out["params"] = dict(values)
+        return out
+    if isinstance(node, list):
+        return [_resolve(v, values, f"{path}[{i}]", in_values) for i, v in enumerate(node)]
+    if in_values and isinstance(node, str):
+        if node in ("inf", "-inf"):
+            return float(node)
+        if node not in values:
+            raise ModelError(path, f"names parameter {node!r}, which the [parameters] table "
+                                   f"does not define (defined: {', '.join(values) or 'none'})")
+        return values[node]
+    return node
+
+
+def _parameter(name: str, raw, path: str) -> Parameter:
+    if isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        v = finite_number(path, raw)
+        span = abs(v) if v else 1.0
+        return Parameter(name, v, v - span, v + span, span / 100)
+    if not isinstance(raw, Mapping):
+        raise ModelError(path, "must be a number or a table {value, min, max, step}")
+    v = finite_number(f"{path}.value", raw.get("value"))
+    low = finite_number(f"{path}.min", raw.get("min", v))
+    high = finite_number(f"{path}.max", raw.get("max", v))
+    if not low <= v <= high:
+        raise ModelError(path, f"value {v:g} lies outside its range [{low:g}, {high:g}]")
+    step = finite_number(f"{path}.step", raw.get("step", (high - low) / 100 or 1.0), positive=True)
+    return Parameter(name, v, low, high, step, str(raw.get("label", "")))
+
+
+def scenario_from_dict(data: Mapping, name: str, path: Path | None = None) -> Scenario:
+    if not isinstance(data, Mapping):
+        raise ModelError("scenario", "must be a table")
+    for key in ("title", "model"):
+        if key not in data:
+            raise ModelError(key, "missing from the scenario file")
+    run = data.get("run", {})
+    params = {k: _parameter(k, v, f"parameters.{k}") for k, v in data.get("parameters", {}).items()}
+    try:
+        seed = int(run.get("seed", 20261201))
+        size = int(run.get("sample_size", 100_000))
+    except (TypeError, ValueError):
+        raise ModelError("run", "seed and sample_size must be whole numbers") from None
+    if size <= 0:
+        raise ModelError("run.sample_size", f"must be > 0, got {size}")
+    missions = tuple(finite_number("run.mission_times", m, nonnegative=True) for m in run.get("mission_times", []))
+    sc = Scenario(name=name, title=str(data["title"]), story=str(data.get("story", "")).strip(),
+                  model=dict(data["model"]), parameters=params,
+                  time_unit=str(data.get("time_unit", "hours")), method=str(run.get("method", "auto")),
+                  seed=seed, sample_size=size, mission_times=missions,
+                  tolerance=float(run.get("tolerance", 1e-10)), system=data.get("system"), path=path)
+    sc.target()  # fail early, with the field named, if the model is invalid
+    return sc
+
+
+def load_scenario(name_or_path) -> Scenario:
+    """A scenario by its name in ``scenarios/`` or by a path to a .toml file."""
+    candidate = Path(str(name_or_path))
+    if candidate.suffix == ".toml" and candidate.exists():
+        path = candidate
+    else:
+        path = SCENARIO_DIR / f"{name_or_path}.toml"
+        if not path.exists():
+            raise ModelError("scenario", f"no scenario {str(name_or_path)!r}; known: {', '.join(scenario_names())}")
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as err:
+        raise ModelError("scenario", f"{path.name} is not valid TOML: {err}") from None
+    return scenario_from_dict(data, path.stem, path)
+
+
+def scenario_from_toml(text: str, name: str = "uploaded") -> Scenario:
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise ModelError("scenario", f"not valid TOML: {err}") from None
+    return scenario_from_dict(data, name)
+
+
+def scenario_names() -> list[str]:
+    return sorted(p.stem for p in SCENARIO_DIR.glob("*.toml"))
+
+
+DEFAULT_SCENARIO = "gearbox-wearout"
