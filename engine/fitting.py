@@ -47,14 +47,14 @@ _LOGSF = {
 
 
 def _log_likelihood(fam: Family, params: dict, t: np.ndarray, failed: np.ndarray) -> float:
-    """sum log f(t_i) over failures + sum log R(t_i) over suspensions (Meeker & Escobar eq. 7.5)."""
+    """sum log f(t_i) over failures + sum log R(t_i) over suspensions (Meeker & Escobar 1998, ch. 7)."""
     loc = params[fam.location_key] if fam.location_key else 0.0
     scale = params[fam.scale_key] if fam.scale_key else 1.0
     z = (t - loc) / scale
     with np.errstate(all="ignore"):
         total = float(np.sum(fam.logpdf(z[failed], params)) - failed.sum() * math.log(scale))
         if not np.all(failed):
-            total += 0.0
+            total += float(np.sum(_LOGSF[fam.name](z[~failed], params)))
     return total if math.isfinite(total) else -math.inf
 
 
@@ -150,7 +150,7 @@ def _profile_sev(y: np.ndarray, failed: np.ndarray):
     """MLE (mu, sigma) of the smallest-extreme-value law for y with right censoring.
 
     Given sigma, mu has the closed form exp(mu/sigma) = sum_all exp(y_i/sigma) / r; putting it
-    into the sigma score leaves the profile equation (Meeker & Escobar sec. 8.2; for the
+    into the sigma score leaves the profile equation (Meeker & Escobar 1998, ch. 8; for the
     Weibull with y = ln t it is the shape equation of NIST e-Handbook 8.4.1.2)
         h(sigma) = sum_i w_i y_i - sigma - mean(y over failures) = 0,  w = softmax(y/sigma),
     with dh/dsigma = -Var_w(y)/sigma^2 - 1 < 0, so the root is unique and bracketing always works.
@@ -367,7 +367,10 @@ def _central_hessian(f, x0: np.ndarray, h: np.ndarray) -> np.ndarray:
 
 
 def _observed_information(fam, names, est, fixed, t, failed) -> np.ndarray:
-    """Hessian of -log L in the natural parameters by central differences (Meeker & Escobar 8.4.1)."""
+    """Hessian of -log L in the natural parameters, by central differences.
+
+    Its inverse estimates the covariance of the estimates (Meeker & Escobar 1998, ch. 8).
+    """
     # Step ~ eps^(1/4) of each parameter's size balances truncation against rounding error.
     h = _Coordinates(fam, names, est).steps(est, 1e-4)
     x0 = np.array([est[k] for k in names])
@@ -399,7 +402,7 @@ def fit_family(name: str, times, censored=None, *, location: float | None = None
     ``standard_errors``; ``covariance`` (nested lists, the inverse of the observed information,
     a numerically differentiated Hessian of -log L at the optimum in the natural parameters);
     ``confidence``; ``bounds`` (Wald intervals; for positive parameters on the log scale,
-    theta * exp(+-z se/theta), Meeker & Escobar sec. 8.4.3); ``fixed`` (parameters held fixed);
+    theta * exp(+-z se/theta), Meeker & Escobar 1998, sec. 8.4); ``fixed`` (parameters held fixed);
     ``converged``; ``method``.
     """
     fam = _family(name)
@@ -460,7 +463,8 @@ def fit_family(name: str, times, censored=None, *, location: float | None = None
     for key in names:
         value, s = est[key], se[key]
         if next(p for p in fam.params if p.name == key).positive:
-            # Wald on log(theta): se(log theta) = se/theta by the delta method (Meeker & Escobar 8.4.3).
+            # Wald on log(theta), se(log theta) = se/theta by the delta method, so the interval
+            # stays positive (Meeker & Escobar 1998, sec. 8.4).
             with np.errstate(over="ignore"):
                 w = float(np.exp(z * s / value))
             bounds[key] = (value / w, value * w)

@@ -51,7 +51,8 @@ def tight_fmin(func, x0, args=(), disp=0):
 # family holds the location at 0).
 SCIPY_FIT = {
     "weibull": lambda x: dict(zip(["shape", "_", "scale"], stats.weibull_min.fit(x, floc=0))),
-    "lognormal": lambda x: (lambda s, _, sc: {"mu": math.log(sc), "sigma": s})(*stats.lognorm.fit(x, floc=0)),
+    "lognormal": lambda x: dict(zip(["sigma", "_", "mu"], stats.lognorm.fit(x, floc=0)))
+    | {"mu": math.log(stats.lognorm.fit(x, floc=0)[2])},
     "gamma": lambda x: dict(zip(["shape", "_", "scale"], stats.gamma.fit(x, floc=0))),
     "normal": lambda x: dict(zip(["mean", "sd"], stats.norm.fit(x))),
     "loglogistic": lambda x: dict(zip(["shape", "_", "scale"], stats.fisk.fit(x, floc=0, optimizer=tight_fmin))),
@@ -196,7 +197,7 @@ def test_censored_weibull_converges_with_three_failures_among_many_suspensions()
 
 @pytest.mark.parametrize("name", sorted(TRUE_PARAMS))
 def test_loglik_is_log_density_of_failures_plus_log_survival_of_suspensions(name):
-    # Meeker & Escobar (1998) eq. 7.5 / NIST 8.4.1.2, evaluated with scipy.stats at the estimates.
+    # Meeker & Escobar (1998) ch. 7 / NIST 8.4.1.2, evaluated with scipy.stats at the estimates.
     t, c = censored_sample(name, 60, np.random.default_rng(SEED + 3))
     model = fit_family(name, t, c)
     assert model.fit_info["loglik"] == pytest.approx(scipy_loglik(name, model.params, t, c), rel=1e-10)
@@ -235,7 +236,7 @@ def test_fit_reports_counts_method_and_a_family_target():
 # ---- standard errors and intervals ------------------------------------------------------------
 def test_exponential_standard_error_complete_sample_is_theta_over_root_n():
     # Closed form: observed information n/theta^2 at theta_hat, so se = theta/sqrt(n)
-    # (Meeker & Escobar 1998, sec. 7.4). Tolerance 1e-6: numerical second derivative.
+    # (Meeker & Escobar 1998, ch. 7). Tolerance 1e-6: numerical second derivative.
     x = draw("exponential", 150, np.random.default_rng(SEED + 7))
     model = fit_family("exponential", x)
     theta = model.params["scale"]
@@ -275,11 +276,11 @@ def test_weibull_covariance_is_inverse_of_closed_form_observed_information():
 
 
 def test_weibull_standard_errors_approach_inverse_fisher_information():
-    # Complete samples, inverse expected information (Cohen 1965, Technometrics 7; Meeker &
-    # Escobar 1998, appendix): Var(beta) = 6 beta^2 / (pi^2 n),
-    # Var(eta) = (1 + 6 (1 - gamma_E)^2 / pi^2) eta^2 / (beta^2 n). Observed and expected
-    # information differ by O(n^-1/2); at n = 20000 the gap is a few tenths of a percent,
-    # so the tolerance is 2%.
+    # Complete samples, inverse expected information (from memory: Cohen 1965, Technometrics 7;
+    # the constants follow from the extreme-value information matrix, Meeker & Escobar 1998):
+    # Var(beta) = 6 beta^2 / (pi^2 n), Var(eta) = (1 + 6 (1 - gamma_E)^2 / pi^2) eta^2 / (beta^2 n).
+    # Observed and expected information differ by O(n^-1/2); at n = 20000 the gap is a few
+    # tenths of a percent, so the tolerance is 2%.
     n = 20000
     x = draw("weibull", n, np.random.default_rng(SEED + 10))
     model = fit_family("weibull", x)
@@ -291,7 +292,7 @@ def test_weibull_standard_errors_approach_inverse_fisher_information():
 
 
 def test_bounds_of_positive_parameters_are_wald_intervals_on_the_log_scale():
-    # Meeker & Escobar (1998) sec. 8.4.3: [theta / w, theta * w], w = exp(z se / theta),
+    # Meeker & Escobar (1998) sec. 8.4: [theta / w, theta * w], w = exp(z se / theta),
     # with z the two-sided normal quantile from scipy.stats.norm.
     t, c = censored_sample("weibull", 80, np.random.default_rng(SEED + 11))
     model = fit_family("weibull", t, c, confidence=0.90)
@@ -405,9 +406,9 @@ def test_a_likelihood_without_a_maximum_is_reported_not_returned():
     profile = []
     for shape in (10.0, 100.0, 1000.0):
         best = optimize.minimize_scalar(
-            lambda log_scale: -scipy_loglik("birnbaum_saunders", {"shape": shape, "scale": math.exp(log_scale)},
-                                            t, c), bounds=(0.0, 40.0), method="bounded",
-            options=dict(xatol=1e-10))
+            lambda log_scale: -scipy_loglik("birnbaum_saunders",
+                                            {"shape": shape, "scale": math.exp(log_scale)}, t, c),
+            bounds=(0.0, 40.0), method="bounded", options=dict(xatol=1e-10))
         profile.append(-best.fun)
     assert profile[0] < profile[1] < profile[2]
     raises("times", "no maximum", "birnbaum_saunders", t, c)

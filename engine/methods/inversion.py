@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import kernels
 from ..errors import MethodNotApplicable
 from ..target import Target
 from .base import Sampler
@@ -218,36 +219,19 @@ class NumericalInversion(Inversion):
         self.guide_size = size
         levels = np.arange(size) / size
         # guide[i] = first piece whose start is <= i/size < its end.
-        self.guide = np.clip(np.searchsorted(self.u_start, levels, side="right") - 1, 0, m - 1).astype(np.int32)
+        self.guide = np.clip(np.searchsorted(self.u_start, levels, side="right") - 1, 0, m - 1).astype(np.int64)
 
     # ---- evaluation ----------------------------------------------------------------
     def quantile(self, u):
         """The approximate F^-1 used for drawing (vectorised)."""
         u = np.asarray(u, dtype=float)
-        flat = u.ravel()
-        k = self._locate(flat)
-        s = np.clip((flat - self.u_start[k]) / np.where(self.du[k] > 0, self.du[k], 1.0), 0.0, 1.0)
-        x = self.x0[k] + self.width[k] * _horner(self.coef[k], s)
+        x = kernels.pinv_eval(u.ravel(), self.guide, self.u_start, self.x0, self.width, self.du, self.coef)
         return x.reshape(u.shape) if u.ndim else float(x[0])
-
-    def _locate(self, u):
-        """Piece index by guide table plus a short sequential search (Chen & Asau 1974)."""
-        g = np.minimum((u * self.guide_size).astype(np.int64), self.guide_size - 1)
-        g = np.maximum(g, 0)
-        k = self.guide[g].astype(np.int64)
-        last = self.x0.size - 1
-        # A handful of vectorised passes; the expected number of steps is below 1.
-        for _ in range(64):
-            step = (k < last) & (self.u_start[np.minimum(k + 1, last)] <= u)
-            if not step.any():
-                break
-            k = k + step
-        return k
 
     def _draw(self, m, rng):
         u = rng.random(m)
         self.counts["uniforms"] += m
-        return self.quantile(u)
+        return kernels.pinv_eval(u, self.guide, self.u_start, self.x0, self.width, self.du, self.coef, out=u)
 
     def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:
         out = super().geometry(n_points, rng)
@@ -266,6 +250,7 @@ class NumericalInversion(Inversion):
     def _restore(self, meta, tables):
         for key in ("x0", "width", "coef", "du", "u_start", "guide"):
             setattr(self, key, np.asarray(tables[key]))
+        self.guide = self.guide.astype(np.int64)
         self.guide_size = self.guide.size
         self.u_end = meta["u_end"]
         self.tail_cut = meta["tail_cut"]

@@ -1,0 +1,93 @@
+"""Compiled inner loops for the hot paths, behind one small boundary.
+
+Each kernel has a pure-numpy twin that is always correct; the compiled version
+(Numba, ``cache=True``, ``nogil=True`` so threads scale) is used when Numba is
+installed and ``LIFEDRAW_NO_JIT`` is not set. Tests run both and compare.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+try:  # Numba is optional: the methods stay correct without it.
+    if os.environ.get("LIFEDRAW_NO_JIT"):
+        raise ImportError("disabled by LIFEDRAW_NO_JIT")
+    import numba
+    HAVE_JIT = True
+except ImportError:  # pragma: no cover - exercised where numba is absent
+    numba = None
+    HAVE_JIT = False
+
+
+def _jit(fn):
+    if not HAVE_JIT:
+        return None
+    return numba.njit(cache=True, nogil=True, fastmath=False)(fn)
+
+
+# ---- piecewise polynomial inverse CDF (numerical inversion) -----------------------------
+
+def _pinv_eval_py(u, guide, u_start, x0, width, du, coef, out):
+    n = u.shape[0]
+    m = u_start.shape[0]
+    g_size = guide.shape[0]
+    order = coef.shape[1]
+    for i in range(n):
+        ui = u[i]
+        g = int(ui * g_size)
+        if g >= g_size:
+            g = g_size - 1
+        if g < 0:
+            g = 0
+        k = guide[g]
+        # Guide-table search (Chen & Asau 1974): expected steps below one.
+        while k < m - 1 and u_start[k + 1] <= ui:
+            k += 1
+        d = du[k]
+        s = (ui - u_start[k]) / d if d > 0 else 0.0
+        if s < 0.0:
+            s = 0.0
+        elif s > 1.0:
+            s = 1.0
+        acc = coef[k, order - 1]
+        for j in range(order - 2, -1, -1):
+            acc = acc * s + coef[k, j]
+        out[i] = x0[k] + width[k] * acc
+    return out
+
+
+_pinv_eval_jit = _jit(_pinv_eval_py)
+
+
+def pinv_eval(u, guide, u_start, x0, width, du, coef, out=None, *, use_jit=True):
+    """x = F^-1_approx(u) for the tables of engine.methods.inversion.NumericalInversion."""
+    u = np.ascontiguousarray(u, dtype=np.float64)
+    if out is None:
+        out = np.empty_like(u)
+    if use_jit and _pinv_eval_jit is not None:
+        return _pinv_eval_jit(u, guide, u_start, x0, width, du, coef, out)
+    return _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out)
+
+
+def _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out):
+    g_size = guide.shape[0]
+    m = u_start.shape[0]
+    g = np.clip((u * g_size).astype(np.int64), 0, g_size - 1)
+    k = guide[g].astype(np.int64)
+    last = m - 1
+    while True:
+        step = (k < last) & (u_start[np.minimum(k + 1, last)] <= u)
+        if not step.any():
+            break
+        k += step
+    d = du[k]
+    s = np.clip((u - u_start[k]) / np.where(d > 0, d, 1.0), 0.0, 1.0)
+    c = coef[k]
+    acc = c[:, -1].copy()
+    for j in range(coef.shape[1] - 2, -1, -1):
+        acc *= s
+        acc += c[:, j]
+    np.multiply(width[k], acc, out=out)
+    out += x0[k]
+    return out
