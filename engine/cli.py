@@ -12,22 +12,12 @@ from pathlib import Path
 
 import numpy as np
 
+from .cli_more import EXTRA_COMMANDS, whole_number as _number
 from .errors import ModelError
 
 CAUTION = ("Lifetime figures are statistical estimates from a model. Extrapolation beyond the data "
            "and independence assumptions can mislead; safety-critical decisions follow the applicable "
            "standards and qualified engineers.")
-
-
-def _number(text: str) -> int:
-    """Accept 100000, 1e5 or 1_000_000 for sizes."""
-    try:
-        value = float(str(text).replace("_", ""))
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-    if value != int(value):
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
-    return int(value)
 
 
 def cmd_scenarios(args) -> int:
@@ -107,22 +97,12 @@ def build_parser() -> argparse.ArgumentParser:
     common(s)
     s.set_defaults(func=cmd_check)
 
-    for extra in _EXTRA_COMMANDS:
-        extra(sub)
+    for add in EXTRA_COMMANDS:
+        add(sub)
     return p
 
 
-_EXTRA_COMMANDS: list = []
-
-
-def command(register):
-    """Decorator: further subcommands (compare, report, serve, generate) add themselves here."""
-    _EXTRA_COMMANDS.append(register)
-    return register
-
-
 def main(argv=None) -> int:
-    from . import cli_more  # noqa: F401  (registers the further subcommands)
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

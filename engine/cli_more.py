@@ -1,7 +1,29 @@
 """Further ``lifedraw`` subcommands, registered on the main parser by ``engine.cli``."""
 from __future__ import annotations
 
-from .cli import _number, command
+import argparse
+
+EXTRA_COMMANDS: list = []
+
+
+def command(register):
+    """Decorator: a function that adds one subcommand to the parser."""
+    EXTRA_COMMANDS.append(register)
+    return register
+
+
+def whole_number(text: str) -> int:
+    """Accept 100000, 1e5 or 1_000_000 for sizes."""
+    try:
+        value = float(str(text).replace("_", ""))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if value != int(value):
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
+    return int(value)
+
+
+_number = whole_number
 
 
 @command

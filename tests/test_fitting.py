@@ -47,18 +47,26 @@ def tight_fmin(func, x0, args=(), disp=0):
     return optimize.fmin(func, x0, args=args, xtol=1e-12, ftol=1e-14, maxiter=40000, maxfun=40000, disp=0)
 
 
+def _shape_scale(fitted):
+    shape, _, scale = fitted
+    return {"shape": shape, "scale": scale}
+
+
+def _lognormal(fitted):
+    sigma, _, scale = fitted
+    return {"mu": math.log(scale), "sigma": sigma}
+
+
 # scipy.stats' own MLE for complete samples, mapped to our parameter names (floc=0 where our
 # family holds the location at 0).
 SCIPY_FIT = {
-    "weibull": lambda x: dict(zip(["shape", "_", "scale"], stats.weibull_min.fit(x, floc=0))),
-    "lognormal": lambda x: dict(zip(["sigma", "_", "mu"], stats.lognorm.fit(x, floc=0)))
-    | {"mu": math.log(stats.lognorm.fit(x, floc=0)[2])},
-    "gamma": lambda x: dict(zip(["shape", "_", "scale"], stats.gamma.fit(x, floc=0))),
+    "weibull": lambda x: _shape_scale(stats.weibull_min.fit(x, floc=0)),
+    "lognormal": lambda x: _lognormal(stats.lognorm.fit(x, floc=0)),
+    "gamma": lambda x: _shape_scale(stats.gamma.fit(x, floc=0)),
     "normal": lambda x: dict(zip(["mean", "sd"], stats.norm.fit(x))),
-    "loglogistic": lambda x: dict(zip(["shape", "_", "scale"], stats.fisk.fit(x, floc=0, optimizer=tight_fmin))),
+    "loglogistic": lambda x: _shape_scale(stats.fisk.fit(x, floc=0, optimizer=tight_fmin)),
     "smallest_extreme_value": lambda x: dict(zip(["location", "scale"], stats.gumbel_l.fit(x))),
-    "birnbaum_saunders": lambda x: dict(zip(["shape", "_", "scale"],
-                                            stats.fatiguelife.fit(x, floc=0, optimizer=tight_fmin))),
+    "birnbaum_saunders": lambda x: _shape_scale(stats.fatiguelife.fit(x, floc=0, optimizer=tight_fmin)),
 }
 
 

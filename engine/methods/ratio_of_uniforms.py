@@ -1,0 +1,511 @@
+"""Ratio-of-uniforms for bounded densities with tails no heavier than 1/t^2: an automatic
+minimal bounding rectangle, plus polygon squeeze and tangent envelope where A is convex.
+
+Kinderman & Monahan (1977), "Computer generation of random variables using the ratio
+of uniform deviates", ACM TOMS 3(3) 257-260: if (U, V) is uniform on
+A = {(u, v): 0 < u <= sqrt f(v/u + m)}, then X = V/U + m has density f, and area(A) = 1/2.
+Leydold (2000), "Automatic sampling with the ratio-of-uniforms method", ACM TOMS 26(1)
+78-98: A is convex exactly when f is T_{-1/2}-concave (1/sqrt f convex); then the polygon
+through boundary points of A lies inside A (a squeeze) and the tangents at those points
+cut out a polygon that contains A (an envelope closer than the rectangle).
+"""
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+from scipy import optimize
+
+from ..errors import MethodNotApplicable, ModelError
+from ..target import Target
+from .base import Sampler
+from .leva import LevaNormal, leva_applies
+
+#: Relative margin added to every computed bound, so rounding in the optimiser
+#: can only make the envelope (never the region) larger.
+SAFETY = 1e-9
+#: Offset of the envelope's tangent lines (and the squeeze's chords), relative
+#: to the rectangle's diagonal: covers rounding in the numerical tangents.
+LINE_MARGIN = 1e-9
+#: Leydold (2000, sec. 6) reaches rho = area(envelope)/area(squeeze) near 1 with
+#: a few dozen construction points; we stop once the sectors' slack is 1% of area(A).
+TARGET_SLACK = 0.01
+MAX_CONSTRUCTION_POINTS = 160
+#: 1/sqrt f counts as convex when its slopes never fall by more than this share
+#: of their size (room for rounding in f, far above it for a real dent).
+CONVEXITY_RTOL = 1e-6
+ENVELOPES = ("auto", "polygon", "rectangle")
+
+
+# ---- what the method can serve ---------------------------------------------------------
+def _pole_ages(target: Target) -> list[float]:
+    """Ages at which the density is unbounded, from the models' own flags (recursively)."""
+    lo, hi = target.support
+    ages = [lo] if target.pole_at_lower else []
+    for c in getattr(target, "components", ()):
+        ages.extend(_pole_ages(c))
+    base, age = getattr(target, "base", None), getattr(target, "age", None)
+    if base is not None and age is not None:
+        ages.extend(p - age for p in _pole_ages(base) if p >= age)
+    return [a for a in ages if lo <= a <= hi]
+
+
+def _end_pole(target: Target) -> str | None:
+    """A density that keeps growing towards a finite end of the support has no sup there."""
+    lo, hi = target.support
+    width = (hi - lo) if np.isfinite(hi - lo) else float(target.quantile(0.75) - target.quantile(0.25))
+    steps = width * np.array([1e-6, 1e-9, 1e-12])
+    for name, end, sign in (("lower", lo, 1.0), ("upper", hi, -1.0)):
+        if not np.isfinite(end):
+            continue
+        with np.errstate(all="ignore"):
+            f = np.asarray(target.pdf(end + sign * steps), dtype=float)
+        if np.all(np.isfinite(f)) and f[2] > f[1] > f[0] and f[2] > 2.0 * f[0]:
+            return f"the density grows without bound towards the {name} end of the support ({end:g})"
+    return None
+
+
+def _heavy_tail(target: Target) -> str | None:
+    """Is sup |t - c|·sqrt f(t) infinite? (tail heavier than 1/t^2: Kinderman & Monahan's
+    region A is then unbounded in v). Read off |t - c|·sqrt f at far quantiles."""
+    lo, hi = target.support
+    centre = float(target.quantile(0.5))
+    far = np.array([1e-6, 1e-9, 1e-12])
+    for name, end in (("upper", hi), ("lower", lo)):
+        if np.isfinite(end):
+            continue
+        x = target.isf(far) if name == "upper" else target.quantile(far)
+        with np.errstate(all="ignore"):
+            g = np.abs(np.asarray(x, dtype=float) - centre) * np.sqrt(target.pdf(x))
+        if np.all(np.isfinite(g)) and g[2] > g[1] * (1 + 1e-3) and g[1] > g[0]:
+            return (f"the {name} tail is heavier than 1/t^2 (|t - m|·sqrt f(t) is still growing at the "
+                    f"{far[-1]:g} tail quantile), so the region A is unbounded and no rectangle encloses it")
+    return None
+
+
+# ---- small geometry helpers -------------------------------------------------------------
+def _clip(poly: np.ndarray, normal: np.ndarray, c: float) -> np.ndarray:
+    """Convex polygon (vertices in order) cut to the half-plane normal·p <= c (Sutherland-Hodgman)."""
+    out = []
+    n = len(poly)
+    for i in range(n):
+        a, b = poly[i], poly[(i + 1) % n]
+        da, db = float(normal @ a) - c, float(normal @ b) - c
+        if da <= 0:
+            out.append(a)
+        if (da <= 0) != (db <= 0):
+            out.append(a + (da / (da - db)) * (b - a))
+    return np.array(out) if out else np.empty((0, 2))
+
+
+def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    return a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0]
+
+
+def _fan(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Triangles (V0, Vi, Vi+1) of a convex polygon: apex, two edge vectors, cumulative areas."""
+    apex = vertices[0]
+    e1 = vertices[1:-1] - apex
+    e2 = vertices[2:] - apex
+    areas = 0.5 * np.abs(_cross(e1, e2))
+    return apex, e1, e2, np.cumsum(areas)
+
+
+class RatioOfUniforms(Sampler):
+    """X = V/U + m for (U, V) uniform on A, by rejection from a rectangle or a tangent polygon.
+
+    Needs a bounded density (no pole), tails no heavier than 1/t^2, and no atoms.
+    ``envelope``: "rectangle" (Kinderman & Monahan's minimal rectangle),
+    "polygon" (Leydold's tangent polygon, for T_{-1/2}-concave densities) or
+    "auto" (the polygon when the density allows it and it is smaller).
+    Normal and lognormal families go to Leva's generator (which has its own fixed
+    envelope, so ``envelope`` is ignored there) unless ``leva=False``.
+    """
+
+    method = "ratio-of-uniforms"
+    reference = ("Kinderman & Monahan (1977), ACM TOMS 3(3):257-260; squeeze and tangent envelope: "
+                 "Leydold (2000), ACM TOMS 26(1):78-98")
+
+    def __init__(self, target: Target, tolerance: float = 1e-10, envelope: str = "auto"):
+        super().__init__(target, tolerance)
+        envelope = str(envelope).strip().lower()
+        if envelope not in ENVELOPES:
+            raise ModelError("envelope", f"must be one of {', '.join(ENVELOPES)}, got {envelope!r}")
+        self.envelope_request = envelope
+
+    @classmethod
+    def build(cls, target: Target, tolerance: float = 1e-10, leva: bool = True, **options) -> Sampler:
+        if cls is RatioOfUniforms and leva and leva_applies(target):
+            # Leva's fixed rectangle and quadratic squeezes replace the automatic ones.
+            return LevaNormal.build(target, tolerance)
+        return super().build(target, tolerance, **options)
+
+    @classmethod
+    def check_applicable(cls, target: Target) -> None:
+        if target.atoms.size:
+            raise MethodNotApplicable("method", "the model has atoms (probability mass at single ages, as a "
+                                                "product-limit estimate has); ratio-of-uniforms needs a "
+                                                "density: use inversion")
+        if target.kind == "histogram" and not getattr(target, "smooth", True):
+            # Mathematically fine, but the piecewise-linear CDF inverts exactly in one
+            # table look-up, while A's jumps would leave the rectangle loose and unsqueezed.
+            raise MethodNotApplicable("method", "a piecewise-constant histogram is drawn exactly by table "
+                                                "look-up (inversion of its piecewise-linear CDF, one uniform "
+                                                "per draw); ratio-of-uniforms would only add rejections")
+        poles = _pole_ages(target)
+        if poles:
+            raise MethodNotApplicable("method", f"the density is unbounded at t = {poles[0]:g}, so the region "
+                                                "A is unbounded in u and no rectangle encloses it")
+        for problem in (_end_pole(target), _heavy_tail(target)):
+            if problem:
+                raise MethodNotApplicable("method", problem)
+
+    # ---- set-up ------------------------------------------------------------------------
+    def _probe(self, m: float, n_bulk: int = 4000) -> np.ndarray:
+        """Ages spread by the target's quantiles (log-spaced into both tails), plus the mode."""
+        t = self.target
+        lo, hi = t.support
+        tails = np.logspace(-14, -3, 45)
+        p = np.concatenate([tails, np.linspace(1e-3, 1 - 1e-3, n_bulk)])
+        x = np.concatenate([t.quantile(p), t.isf(tails), [m]])
+        x = x[np.isfinite(x) & (x > lo) & (x < hi)]
+        return np.unique(x)
+
+    def _extend(self, x: np.ndarray, m: float) -> np.ndarray:
+        """Ages beyond the probe grid, stepping geometrically towards each end of the support,
+        so the checks also see the far tails that quantiles in double precision cannot reach."""
+        lo, hi = self.target.support
+        k = 2.0 ** np.arange(1, 61)
+        out = []
+        for edge, end in ((x[-1], hi), (x[0], lo)):
+            if np.isfinite(end):
+                out.append(end - (end - edge) / k)
+            else:
+                out.append(m + (edge - m) * (1.0 + k))
+        pts = np.concatenate(out)
+        return pts[np.isfinite(pts) & (pts > lo) & (pts < hi)]
+
+    def _dpdf(self, x: np.ndarray) -> np.ndarray:
+        """f'(x) by a fourth-order central difference with a step set by the spread of the
+        target (its interquartile range), kept inside the support."""
+        t = self.target
+        lo, hi = t.support
+        spread = float(t.quantile(0.75) - t.quantile(0.25))
+        h = np.full(x.shape, 1e-5 * spread)
+        room = np.minimum(x - lo, hi - x) / 2.5
+        h = np.minimum(h, room)
+        f = t.pdf
+        return (-f(x + 2 * h) + 8 * f(x + h) - 8 * f(x - h) + f(x - 2 * h)) / (12 * h)
+
+    def _sup(self, fun, x: np.ndarray, values: np.ndarray) -> float:
+        """sup of fun near the grid's largest local maxima: a bounded Brent search between
+        each maximum's neighbours (so a second mode elsewhere is not missed)."""
+        if values.size == 0:
+            return 0.0
+        best = float(np.max(values))
+        if best <= 0:
+            return best
+        padded = np.concatenate([[-np.inf], values, [-np.inf]])
+        local = np.flatnonzero((padded[1:-1] >= padded[:-2]) & (padded[1:-1] >= padded[2:]))
+        local = local[values[local] >= 0.9 * best]
+        local = local[np.argsort(values[local])[::-1][:6]]
+        for i in local:
+            a, b = x[max(i - 1, 0)], x[min(i + 1, x.size - 1)]
+            if not b > a:
+                continue
+            res = optimize.minimize_scalar(lambda s: -float(fun(s)), bounds=(a, b), method="bounded",
+                                           options=dict(xatol=1e-12 * max(abs(a), abs(b), b - a)))
+            if np.isfinite(res.fun):
+                best = max(best, -float(res.fun))
+        return best
+
+    def _rectangle(self, m: float, x: np.ndarray) -> tuple[float, float, float]:
+        """u+ = sup sqrt f, v- = inf (t - m) sqrt f, v+ = sup (t - m) sqrt f (Kinderman & Monahan 1977)."""
+        t = self.target
+        f = t.pdf(x)
+        g = (x - m) * np.sqrt(f)
+        f_max = self._sup(t.pdf, x, f)
+        right, left = x > m, x < m
+        g_max = self._sup(lambda s: (s - m) * math.sqrt(t.pdf(s)), x[right], g[right]) if right.any() else 0.0
+        g_min = -self._sup(lambda s: (m - s) * math.sqrt(t.pdf(s)), x[left], -g[left]) if left.any() else 0.0
+        return (math.sqrt(f_max) * (1 + SAFETY), min(g_min, 0.0) * (1 + SAFETY), max(g_max, 0.0) * (1 + SAFETY))
+
+    def _setup(self) -> None:
+        t = self.target
+        m = float(t.mode())
+        lo, hi = t.support
+        if not (np.isfinite(m) and lo <= m <= hi):
+            raise MethodNotApplicable("method", f"the mode could not be located (got {m!r})")
+        x = self._probe(m)
+        u_plus, v_minus, v_plus = self._rectangle(m, x)
+        if not (np.isfinite(u_plus) and u_plus > 0 and np.isfinite(v_minus) and np.isfinite(v_plus)):
+            raise MethodNotApplicable("method", "the bounding rectangle is not finite "
+                                                f"(u+ = {u_plus:g}, v- = {v_minus:g}, v+ = {v_plus:g})")
+        # Check the rectangle between and beyond the probe ages; a miss means the
+        # optimiser was fooled (a spike, a second mode), so enlarge to what was seen.
+        check_x = np.concatenate([x, 0.5 * (x[1:] + x[:-1]), self._extend(x, m)])
+        fc = t.pdf(check_x)
+        uc, vc = np.sqrt(fc), (check_x - m) * np.sqrt(fc)
+        checked = "grid check passed"
+        if uc.max() > u_plus or vc.max() > v_plus or vc.min() < v_minus:
+            u_plus = max(u_plus, float(uc.max()) * (1 + 1e-6))
+            v_plus = max(v_plus, float(vc.max()) * (1 + 1e-6))
+            v_minus = min(v_minus, float(vc.min()) * (1 + 1e-6))
+            checked = "enlarged to the values found by the grid check"
+        state = {"centre": m, "u_plus": u_plus, "v_minus": v_minus, "v_plus": v_plus,
+                 "envelope": "rectangle", "squeeze": "", "rectangle_check": checked}
+        tables = {"construction_x": np.empty(0), "points": np.empty((0, 2)),
+                  "chords": np.empty((0, 3)), "polygon": np.empty((0, 2))}
+        concave, where = self._t_concave(x)
+        if not concave:
+            state["squeeze"] = "none: density not T_{-1/2}-concave"
+            state["t_concavity"] = f"1/sqrt f is not convex near t = {where:.6g}"
+        else:
+            self._squeezes(state, tables, check_x)
+        self._install(state, tables)
+
+    def _t_concave(self, x: np.ndarray) -> tuple[bool, float]:
+        """Is 1/sqrt f convex on the probe ages (Leydold 2000, Def. 1 with c = -1/2)?"""
+        f = self.target.pdf(x)
+        keep = f > 1e-280
+        xs, h = x[keep], 1.0 / np.sqrt(f[keep])
+        if xs.size < 3:
+            return False, float("nan")
+        slope = np.diff(h) / np.diff(xs)
+        drop = np.diff(slope)
+        bad = drop < -CONVEXITY_RTOL * (np.abs(slope[1:]) + np.abs(slope[:-1]))
+        if bad.any():
+            return False, float(xs[1:-1][bad][0])
+        return True, float("nan")
+
+    def _boundary(self, x: np.ndarray, m: float) -> np.ndarray:
+        """Points (sqrt f(x), (x - m) sqrt f(x)) of A's curved boundary."""
+        r = np.sqrt(self.target.pdf(x))
+        return np.stack([r, (x - m) * r], axis=-1)
+
+    def _tangents(self, x: np.ndarray, m: float, pts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Unit normals n and offsets c of the tangent lines n·p = c at boundary points,
+        oriented so A (and the origin) lie on the side n·p <= c."""
+        f = self.target.pdf(x)
+        du = self._dpdf(x) / (2.0 * np.sqrt(f))
+        dv = du * (x - m) + np.sqrt(f)
+        n = np.stack([dv, -du], axis=-1)
+        n /= np.hypot(n[:, 0], n[:, 1])[:, None]
+        c = np.einsum("ij,ij->i", n, pts)
+        flip = c < 0
+        n[flip] *= -1.0
+        return n, np.abs(c)
+
+    def _chords(self, pts: np.ndarray) -> np.ndarray:
+        """Lines a·u + b·v = c through consecutive boundary points, origin side <= c."""
+        d = pts[1:] - pts[:-1]
+        n = np.stack([d[:, 1], -d[:, 0]], axis=-1)
+        n /= np.hypot(n[:, 0], n[:, 1])[:, None]
+        c = np.einsum("ij,ij->i", n, pts[:-1])
+        flip = c < 0
+        n[flip] *= -1.0
+        return np.column_stack([n, np.abs(c)])
+
+    def _sector_slack(self, pts, normals, offsets) -> np.ndarray:
+        """Area between the chord and the two tangents of each sector (Leydold 2000, sec. 4)."""
+        n1, n2 = normals[:-1], normals[1:]
+        det = _cross(n1, n2)
+        c1, c2 = offsets[:-1], offsets[1:]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            tu = (c1 * n2[:, 1] - c2 * n1[:, 1]) / det
+            tv = (n1[:, 0] * c2 - n2[:, 0] * c1) / det
+        apex = np.stack([tu, tv], axis=-1)
+        area = 0.5 * np.abs(_cross(pts[1:] - pts[:-1], apex - pts[:-1]))
+        parallel = np.abs(det) < 1e-12
+        # Parallel tangents at two points of a convex curve: the curve is the segment between them.
+        return np.where(parallel, 0.0, np.where(np.isfinite(area), area, np.inf))
+
+    def _squeezes(self, state: dict, tables: dict, check_x: np.ndarray) -> None:
+        """Construction points, the inner polygon and the tangent envelope, verified on ages."""
+        t = self.target
+        m = state["centre"]
+        lo, hi = t.support
+        p = np.concatenate([[1e-8, 1e-6, 1e-4, 1e-3, 0.01], np.linspace(0.03, 0.97, 19),
+                            [0.99, 0.999, 1 - 1e-4]])
+        xc = np.concatenate([t.quantile(p), t.isf(np.array([1e-6, 1e-8])), [m]])
+        xc = np.unique(xc[np.isfinite(xc) & (xc > lo) & (xc < hi)])
+        xc = xc[t.pdf(xc) > 1e-280]
+        while True:
+            pts = self._boundary(xc, m)
+            normals, offsets = self._tangents(xc, m, pts)
+            slack = self._sector_slack(pts, normals, offsets)
+            total = float(np.sum(slack))
+            if total <= TARGET_SLACK * 0.5 or xc.size >= MAX_CONSTRUCTION_POINTS:
+                break
+            worst = np.flatnonzero(slack > max(np.mean(slack[np.isfinite(slack)]) if np.isfinite(slack).any()
+                                               else 0.0, 0.1 * TARGET_SLACK * 0.5 / slack.size))
+            worst = worst[:MAX_CONSTRUCTION_POINTS - xc.size]
+            if worst.size == 0:
+                break
+            xc = np.unique(np.concatenate([xc, 0.5 * (xc[worst] + xc[worst + 1])]))
+        diag = math.hypot(state["u_plus"], state["v_plus"] - state["v_minus"])
+        chords = self._chords(pts)
+        chords[:, 2] -= LINE_MARGIN * diag
+        # Squeeze check: every boundary point between two construction points must
+        # lie on or beyond their chord; only a convex A guarantees that.
+        inside = (check_x > xc[0]) & (check_x < xc[-1])
+        bx = check_x[inside]
+        bp = self._boundary(bx, m)
+        j = np.clip(np.searchsorted(xc, bx, side="right") - 1, 0, xc.size - 2)
+        beyond = np.einsum("ij,ij->i", chords[j, :2], bp) - chords[j, 2]
+        if np.any(beyond < 0):
+            state["squeeze"] = "none: density not T_{-1/2}-concave"
+            state["t_concavity"] = (f"a squeeze chord cuts region A near t = {bx[np.argmin(beyond)]:.6g} "
+                                    "(A is not convex there)")
+            return
+        tables.update(construction_x=xc, points=pts, chords=chords)
+        inner_area = 0.5 * float(np.sum(np.abs(_cross(pts[:-1], pts[1:]))))
+        state["squeeze"] = f"inner polygon through {xc.size} boundary points of A (Leydold 2000)"
+        state["squeeze_area_share"] = inner_area / 0.5
+        # Envelope: the rectangle cut by every tangent (shifted outwards by the margin).
+        poly = np.array([[0.0, state["v_minus"]], [state["u_plus"], state["v_minus"]],
+                         [state["u_plus"], state["v_plus"]], [0.0, state["v_plus"]]])
+        for n, c in zip(normals, offsets + LINE_MARGIN * diag):
+            poly = _clip(poly, n, float(c))
+            if len(poly) < 3:
+                return
+        all_x = np.concatenate([check_x, xc])
+        bp = self._boundary(all_x, m)
+        excess = bp @ normals.T - (offsets + LINE_MARGIN * diag)[None, :]
+        if np.any(excess > 0):
+            state["polygon_check"] = (f"a tangent cuts region A near t = {all_x[np.argmax(excess.max(axis=1))]:.6g}; "
+                                      "the rectangle is used as the envelope")
+            return
+        area = float(_fan(poly)[3][-1])
+        rect_area = state["u_plus"] * (state["v_plus"] - state["v_minus"])
+        state["polygon_area"] = area
+        tables["polygon"] = poly
+        # The polygon costs a third uniform per candidate; it pays once it saves more
+        # than that in rejected candidates and density evaluations.
+        if self.envelope_request == "polygon" or (self.envelope_request == "auto" and area < 0.9 * rect_area):
+            state["envelope"] = "polygon"
+
+    def _install(self, state: dict, tables: dict) -> None:
+        """Set the drawing state from plain numbers and arrays (the same path for set-up and load)."""
+        self.state = dict(state)
+        self.centre = float(state["centre"])
+        self.u_plus, self.v_minus, self.v_plus = state["u_plus"], state["v_minus"], state["v_plus"]
+        self.construction_x = np.asarray(tables["construction_x"], dtype=float)
+        self.points = np.asarray(tables["points"], dtype=float).reshape(-1, 2)
+        self.chords = np.asarray(tables["chords"], dtype=float).reshape(-1, 3)
+        self.polygon = np.asarray(tables["polygon"], dtype=float).reshape(-1, 2)
+        self.envelope = state["envelope"]
+        rect_area = self.u_plus * (self.v_plus - self.v_minus)
+        if self.envelope == "polygon":
+            self._apex, self._e1, self._e2, self._cum = _fan(self.polygon)
+            env_area = float(self._cum[-1])
+        else:
+            env_area = rect_area
+        # area(A) = 1/2 for a normalised density (Kinderman & Monahan 1977, Theorem 1).
+        self.expected_acceptance = min(0.5 / env_area, 1.0)
+        squeeze = state["squeeze"] or "none"
+        self.extra_stats.update({
+            "variant": "general", "envelope": self.envelope, "squeeze": squeeze,
+            "mode": self.centre, "u_plus": self.u_plus, "v_minus": self.v_minus, "v_plus": self.v_plus,
+            "hat_area": env_area / 0.5, "rectangle_hat_area": rect_area / 0.5,
+            "expected_acceptance": self.expected_acceptance,
+            "rectangle_check": state["rectangle_check"],
+        })
+        for key in ("t_concavity", "squeeze_area_share", "polygon_area", "polygon_check"):
+            if key in state:
+                self.extra_stats[key] = state[key]
+        if self.construction_x.size:
+            self.extra_stats["construction_points"] = int(self.construction_x.size)
+
+    # ---- drawing -----------------------------------------------------------------------
+    def _candidates(self, k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+        """k points uniform on the envelope (rectangle: 2 uniforms each; polygon: 3)."""
+        if self.envelope == "polygon":
+            pick = rng.random(k) * self._cum[-1]
+            j = np.minimum(np.searchsorted(self._cum, pick, side="right"), self._cum.size - 1)
+            s, r = rng.random(k), rng.random(k)
+            flip = s + r > 1.0
+            s, r = np.where(flip, 1.0 - s, s), np.where(flip, 1.0 - r, r)
+            p = self._apex + s[:, None] * self._e1[j] + r[:, None] * self._e2[j]
+            return p[:, 0], p[:, 1]
+        # 1 - U lies in (0, 1], so u > 0 and v/u stays finite.
+        u = self.u_plus * (1.0 - rng.random(k))
+        v = self.v_minus + (self.v_plus - self.v_minus) * rng.random(k)
+        return u, v
+
+    def _in_squeeze(self, u, v, x) -> np.ndarray:
+        """Inside the triangle (origin, P_j, P_j+1) of the sector that x = v/u + m falls in."""
+        if self.chords.shape[0] == 0:
+            return np.zeros(u.shape, dtype=bool)
+        j = np.searchsorted(self.construction_x, x, side="right") - 1
+        valid = (j >= 0) & (j < self.chords.shape[0])
+        jj = np.clip(j, 0, self.chords.shape[0] - 1)
+        line = self.chords[jj]
+        return valid & (line[:, 0] * u + line[:, 1] * v <= line[:, 2])
+
+    def _classify(self, u, v):
+        """x, squeezed (accepted without f), accepted, and how many densities were evaluated."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = v / u + self.centre
+        squeezed = self._in_squeeze(u, v, x)
+        accepted = squeezed.copy()
+        rest = np.flatnonzero(~squeezed)
+        if rest.size:
+            with np.errstate(invalid="ignore"):
+                accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
+        return x, squeezed, accepted, int(rest.size)
+
+    def _draw(self, m, rng):
+        out = np.empty(m)
+        filled = 0
+        per_candidate = 3 if self.envelope == "polygon" else 2
+        while filled < m:
+            need = m - filled
+            # Enough candidates for the shortfall with high probability (4 binomial sd).
+            k = int(need / self.expected_acceptance + 4.0 * math.sqrt(need) + 16)
+            u, v = self._candidates(k, rng)
+            x, squeezed, accepted, evals = self._classify(u, v)
+            self.counts["uniforms"] += per_candidate * k
+            self.counts["candidates"] += k
+            self.counts["density_evals"] += evals
+            self.counts["squeezed"] += int(squeezed.sum())
+            self.counts["accepted"] += int(accepted.sum())
+            got = x[accepted][:need]
+            out[filled:filled + got.size] = got
+            filled += got.size
+        return out
+
+    # ---- pictures and persistence --------------------------------------------------------
+    def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:
+        t = self.target
+        p = np.concatenate([np.logspace(-8, -2, 25), np.linspace(0.01, 0.99, max(n_points - 50, 10)),
+                            1 - np.logspace(-2, -8, 25)])
+        x = np.unique(np.concatenate([t.quantile(p), [self.centre]]))
+        x = x[(x > t.support[0]) & (x < t.support[1])]
+        b = self._boundary(x, self.centre)
+        rng = np.random.default_rng(rng)
+        u, v = self._candidates(n_points, rng)
+        _, squeezed, accepted, _ = self._classify(u, v)
+        label = np.where(squeezed, "squeeze", np.where(accepted, "accepted", "rejected"))
+        inner = (np.vstack([[0.0, 0.0], self.points, [0.0, 0.0]]) if self.points.size else np.empty((0, 2)))
+        outer = np.vstack([self.polygon, self.polygon[:1]]) if self.polygon.size else np.empty((0, 2))
+        return {"method": self.method, "variant": "general", "envelope": self.envelope, "mode": self.centre,
+                "boundary_x": x, "boundary_u": b[:, 0], "boundary_v": b[:, 1],
+                "u_plus": self.u_plus, "v_minus": self.v_minus, "v_plus": self.v_plus,
+                "rectangle_u": np.array([0.0, self.u_plus, self.u_plus, 0.0, 0.0]),
+                "rectangle_v": np.array([self.v_minus, self.v_minus, self.v_plus, self.v_plus, self.v_minus]),
+                "inner_u": inner[:, 0], "inner_v": inner[:, 1],
+                "outer_u": outer[:, 0], "outer_v": outer[:, 1],
+                "candidates_u": u, "candidates_v": v, "candidates_label": label}
+
+    def _tables(self):
+        return {"construction_x": self.construction_x, "points": self.points, "chords": self.chords,
+                "polygon": self.polygon}
+
+    def _meta(self):
+        return {"envelope_request": self.envelope_request, "state": self.state}
+
+    def _restore(self, meta, tables):
+        self.envelope_request = meta["envelope_request"]
+        self._install(meta["state"], tables)
