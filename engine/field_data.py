@@ -187,7 +187,12 @@ class ProductLimitTarget(Target):
         hi = float(fail_times[-1])
         if self.tail_mass > 0:
             from .fitting import fit_family
-            fit = fit_family("weibull", times, cens)
+            try:
+                fit = fit_family("weibull", times, cens)
+            except ModelError:
+                # Too few failures for two parameters: a constant-rate tail
+                # (one parameter) is the most the data can support.
+                fit = fit_family("exponential", times, cens)
             self.tail_fit = fit
             self.tail = fit.given_survival(self.last_time)
             hi = math.inf
@@ -265,14 +270,16 @@ class ProductLimitTarget(Target):
 
     def describe(self) -> str:
         nf, ns = int((~self.censored).sum()), int(self.censored.sum())
-        text = [f"Product-limit (Kaplan-Meier) estimate from {nf} failures and {ns} suspensions, "
+        text = [f"Product-limit (Kaplan-Meier) estimate from {nf} failure{'s' * (nf != 1)} and {ns} suspension{'s' * (ns != 1)}, "
                 f"ages {self.times.min():g} to {self.last_time:g}.", self.formula()]
         if self.tail is not None:
             p = self.tail_fit.params
+            shape = (f"a Weibull tail (shape {p['shape']:.4g}, scale {p['scale']:.4g}" if "shape" in p
+                     else f"an exponential tail (mean {p['scale']:.4g}; too few failures for a Weibull")
             text.append(f"Beyond the last observation (a suspension at {self.last_time:g}) the remaining "
-                        f"{self.tail_mass:.1%} of units follow a Weibull tail (shape {p['shape']:.4g}, "
-                        f"scale {p['scale']:.4g}, censored maximum likelihood on all the data) conditioned "
-                        f"on survival to {self.last_time:g}: an extrapolation beyond the data.")
+                        f"{self.tail_mass:.1%} of units follow {shape}, censored maximum likelihood on all "
+                        f"the data) conditioned on survival to {self.last_time:g}: an extrapolation beyond "
+                        "the data.")
         else:
             text.append("The last observation is a failure, so the estimate reaches R = 0 there; "
                         "no unit is drawn beyond it.")
