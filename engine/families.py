@@ -54,6 +54,7 @@ class Family:
     std_mode: Callable
     pole: Callable = lambda p: False  # density unbounded at the lower end?
     isf: Callable | None = None       # quantile from the upper tail probability
+    logsf: Callable | None = None     # log R(z) where R underflows long before the hazard does
 
 
 def _weibull_params(p):
@@ -195,6 +196,7 @@ _register(Family(
     sf=lambda z, p: special.ndtr(-(np.log(z) - p["mu"]) / p["sigma"]),
     quantile=lambda u, p: np.exp(p["mu"] + p["sigma"] * special.ndtri(u)),
     isf=lambda v, p: np.exp(p["mu"] - p["sigma"] * special.ndtri(v)),
+    logsf=lambda z, p: special.log_ndtr(-(np.log(z) - p["mu"]) / p["sigma"]),
     hazard=None,
     std_moment=lambda k, p: math.exp(k * p["mu"] + 0.5 * (k * p["sigma"]) ** 2),
     std_mode=lambda p: math.exp(p["mu"] - p["sigma"] ** 2),
@@ -228,6 +230,7 @@ _register(Family(
     sf=lambda z, p: special.ndtr(-z),
     quantile=lambda u, p: special.ndtri(u),
     isf=lambda v, p: -special.ndtri(v),
+    logsf=lambda z, p: special.log_ndtr(-z),
     hazard=None,
     std_moment=_normal_moment, std_mode=lambda p: 0.0,
 ))
@@ -274,6 +277,7 @@ _register(Family(
     cdf=lambda z, p: special.ndtr(_bs_xi(z, p["shape"])),
     sf=lambda z, p: special.ndtr(-_bs_xi(z, p["shape"])),
     quantile=_bs_quantile, isf=_bs_isf,
+    logsf=lambda z, p: special.log_ndtr(-_bs_xi(z, p["shape"])),
     hazard=None,
     std_moment=_bs_moment, std_mode=lambda p: math.nan,
 ))
@@ -336,7 +340,9 @@ class FamilyTarget(Target):
             return self.fam.hazard(z, self.params) / self.scale
         # h = f/R through logs, so the far tail neither underflows nor divides 0/0.
         with np.errstate(divide="ignore"):
-            return np.exp(self.fam.logpdf(z, self.params) - np.log(self.fam.sf(z, self.params))) / self.scale
+            logsf = (self.fam.logsf(z, self.params) if self.fam.logsf is not None
+                     else np.log(self.fam.sf(z, self.params)))
+            return np.exp(self.fam.logpdf(z, self.params) - logsf) / self.scale
 
     def _quantile(self, u):
         u = np.asarray(u, dtype=float)

@@ -95,7 +95,7 @@ class HistogramTarget(Target):
 
     def _quantile(self, u):
         if self.smooth:
-            return invert_monotone(self.cdf, self.sf, u, self.mapping)
+            return invert_monotone(self.cdf, self.sf, u, self.mapping, pdf=self.pdf)
         # Bins with no mass are never chosen: side="left" skips flat stretches of F.
         k = np.clip(np.searchsorted(self.cumulative, u, side="left") - 1, 0, self.counts.size - 1)
         within = (u - self.cumulative[k]) / np.where(self.probabilities[k] > 0, self.probabilities[k], 1.0)

@@ -12,7 +12,6 @@ from typing import Callable
 
 import numpy as np
 from scipy import special
-from scipy.optimize import elementwise
 
 from .errors import ModelError
 
@@ -199,6 +198,7 @@ class CumulativeIntegral:
                  if np.isfinite(b) and mapping.lo < b < mapping.hi]
         grid = np.unique(np.concatenate([np.linspace(ylo, yhi, 65), inner]))
         self.edges, self.pieces = self._partition(grid, rtol)
+        self._check = None   # values were vetted during set-up; evaluation needs no checks
         self.cumulative = np.concatenate([[0.0], np.cumsum(self.pieces)])
         self.total = float(self.cumulative[-1])
         # Mass after each piece, summed from the top so the far tail keeps its digits.
@@ -207,10 +207,12 @@ class CumulativeIntegral:
     def _g_of_y(self, y):
         t = self.mapping.to_t(y)
         with np.errstate(all="ignore"):
-            g = np.asarray(self.integrand(t), dtype=float)
-        if self._check is not None:
-            self._check(t, g)
-        return g * self.mapping.dt_dy(y)
+            g = np.asarray(self.integrand(t), dtype=float) * np.ones_like(t)
+            far = np.isinf(t)
+            if self._check is not None:
+                self._check(t[~far], g[~far])
+            # A node that rounds onto an infinite end carries no mass (integrability).
+            return np.where(far, 0.0, g * self.mapping.dt_dy(y))
 
     def _rule(self, a, b):
         """Integrals over each [a_i, b_i]: 10-point Gauss-Legendre, or Gauss-Jacobi
@@ -299,54 +301,111 @@ class CumulativeIntegral:
         return value.reshape(t.shape)
 
 
-def invert_monotone(cdf: Callable, sf: Callable, u, mapping: SupportMap):
+def invert_monotone(cdf: Callable, sf: Callable, u, mapping: SupportMap, pdf: Callable | None = None,
+                    *, upper_tail: bool = False):
     """Solve cdf(t) = u elementwise for a continuous, non-decreasing cdf.
 
-    Brackets come from a fixed grid in the mapped coordinate; Chandrupatla's
-    method then polishes each root. For u > 1/2 the equation sf(t) = 1 - u is
-    solved instead, which keeps the digits of the upper tail.
+    With ``upper_tail=True`` the input is v = 1 - u and sf(t) = v is solved, so
+    tiny upper-tail probabilities keep all their digits. Brackets come from a
+    fixed grid in the mapped coordinate; a safeguarded Newton iteration
+    (bisection whenever a step leaves the bracket; secant steps when no density
+    is given) polishes each root. For u > 1/2 the equation sf(t) = 1 - u is
+    solved instead, keeping the digits of the upper tail.
     """
-    u = np.asarray(u, dtype=float)
-    shape = u.shape
-    u = u.ravel()
-    out = np.full(u.shape, np.nan)
+    p = np.asarray(u, dtype=float)
+    shape = p.shape
+    p = p.ravel()
+    out = np.full(p.shape, np.nan)
     lo, hi = mapping.lo, mapping.hi
-    out[u <= 0] = lo
-    out[u >= 1] = hi
-    inside = (u > 0) & (u < 1)
+    first, last = (hi, lo) if upper_tail else (lo, hi)
+    out[p <= 0] = first
+    out[p >= 1] = last
+    inside = (p > 0) & (p < 1)
     if not np.any(inside):
         return out.reshape(shape)
-    uu = u[inside]
-    ylo, yhi = mapping.y_range
-    span = yhi - ylo
-    # Dense near the ends of the y-range, where infinite supports are compressed.
-    steps = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 200),
-                            1 - 2.0 ** -np.arange(7, 61)])
-    y_grid = ylo + span * steps
-    t_grid = np.unique(mapping.to_t(y_grid))
-    t_grid = t_grid[np.isfinite(t_grid)]
-    if np.isfinite(lo):
-        t_grid = np.concatenate([[lo], t_grid[t_grid > lo]])
-    if np.isfinite(hi):
-        t_grid = np.concatenate([t_grid[t_grid < hi], [hi]])
-    c_grid = np.asarray(cdf(t_grid), dtype=float)
-    c_grid = np.maximum.accumulate(np.clip(c_grid, 0.0, 1.0))
-    k = np.searchsorted(c_grid, uu, side="left")
-    below = k == 0
+    pp = p[inside]
+    t_grid, c_grid = bracket_grid(cdf, mapping)
+    if upper_tail:
+        s_grid = np.minimum.accumulate(np.clip(np.asarray(sf(t_grid), dtype=float), 0.0, 1.0))
+        # sf decreases: bracket on its reversed, increasing copy.
+        k = t_grid.size - np.searchsorted(s_grid[::-1], pp, side="left")
+        upper = np.ones(pp.size, dtype=bool)
+        goal = pp
+    else:
+        k = np.searchsorted(c_grid, pp, side="left")
+        upper = pp > 0.5
+        goal = np.where(upper, 1.0 - pp, pp)
+    below = k <= 0
     above = k >= t_grid.size
     k = np.clip(k, 1, t_grid.size - 1)
-    a, b = t_grid[k - 1], t_grid[k]
-    upper = uu > 0.5
-    v = 1.0 - uu
-
-    def excess(t, uu, v, upper):
-        with np.errstate(all="ignore"):
-            return np.where(upper, v - sf(t), cdf(t) - uu)
-
-    res = elementwise.find_root(excess, (a, b), args=(uu, v, upper),
-                                tolerances=dict(xrtol=4 * np.finfo(float).eps, xatol=1e-300))
-    x = np.asarray(res.x, dtype=float)
+    a, b = t_grid[k - 1].copy(), t_grid[k].copy()
+    x = _polish(cdf, sf, pdf, upper, goal, a, b)
     x = np.where(below, t_grid[0], x)
     x = np.where(above, t_grid[-1] if not np.isfinite(hi) else hi, x)
     out[inside] = x
     return out.reshape(shape)
+
+
+def bracket_grid(cdf, mapping: SupportMap):
+    ylo, yhi = mapping.y_range
+    span = yhi - ylo
+    # Dense near the ends of the y-range, where infinite supports are compressed.
+    steps = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 120),
+                            1 - 2.0 ** -np.arange(7, 61)])
+    t_grid = np.unique(mapping.to_t(ylo + span * steps))
+    t_grid = t_grid[np.isfinite(t_grid)]
+    lo, hi = mapping.lo, mapping.hi
+    if np.isfinite(lo):
+        t_grid = np.concatenate([[lo], t_grid[t_grid > lo]])
+    if np.isfinite(hi):
+        t_grid = np.concatenate([t_grid[t_grid < hi], [hi]])
+    c_grid = np.maximum.accumulate(np.clip(np.asarray(cdf(t_grid), dtype=float), 0.0, 1.0))
+    return t_grid, c_grid
+
+
+def _polish(cdf, sf, pdf, upper, goal, a, b, max_iter: int = 80):
+    """Safeguarded Newton/secant on g(x) = F(x) - goal, or goal - R(x) where ``upper``."""
+
+    def g(x, up, gl):
+        with np.errstate(all="ignore"):
+            return np.where(up, gl - sf(x), cdf(x) - gl)
+
+    ga, gb = g(a, upper, goal), g(b, upper, goal)
+    with np.errstate(all="ignore"):
+        frac = np.clip(-ga / (gb - ga), 0.05, 0.95)
+    frac = np.where(np.isfinite(frac), frac, 0.5)
+    x = a + (b - a) * frac
+    result = x.copy()
+    active = np.arange(goal.size)
+    eps = np.finfo(float).eps
+    for it in range(max_iter):
+        xa, aa, bb, up, gl = x, a[active], b[active], upper[active], goal[active]
+        gx = g(xa, up, gl)
+        left = gx <= 0
+        aa = np.where(left, xa, aa)
+        bb = np.where(left, bb, xa)
+        ga_new = np.where(left, gx, ga[active])
+        gb_new = np.where(left, gb[active], gx)
+        done = (np.abs(gx) <= 2 * eps * gl) | (bb - aa <= 4 * eps * np.maximum(np.abs(xa), 1e-300))
+        if pdf is not None and it % 4 != 3:
+            with np.errstate(all="ignore"):
+                step = gx / np.asarray(pdf(xa), dtype=float)
+            xn = xa - step
+        else:
+            with np.errstate(all="ignore"):
+                xn = aa - ga_new * (bb - aa) / (gb_new - ga_new)
+            if it % 4 == 3:
+                xn = 0.5 * (aa + bb)
+        bad = ~np.isfinite(xn) | (xn <= aa) | (xn >= bb)
+        xn = np.where(bad, 0.5 * (aa + bb), xn)
+        result[active] = xa
+        a[active], b[active] = aa, bb
+        ga[active], gb[active] = ga_new, gb_new
+        keep = ~done
+        if not keep.any():
+            break
+        active = active[keep]
+        x = xn[keep]
+    return result
+
+

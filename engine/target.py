@@ -59,7 +59,7 @@ class Target:
             return self._pdf(t) / self._sf(t)
 
     def _quantile(self, u):
-        return invert_monotone(self.cdf, self.sf, u, self.mapping)
+        return invert_monotone(self.cdf, self.sf, u, self.mapping, pdf=self.pdf)
 
     def formula(self) -> str:
         """The model written as a formula (plain text)."""
@@ -157,7 +157,12 @@ class Target:
         return out if out.ndim else float(out)
 
     def _isf(self, v):
-        return self.quantile(1.0 - v)
+        v = np.asarray(v, dtype=float)
+        if self.exact_quantile and not self.atoms.size:
+            # A closed-form quantile at 1 - v is exact up to the rounding of 1 - v;
+            # subclasses with a closed-form isf override this.
+            return self.quantile(1.0 - v)
+        return invert_monotone(self.cdf, self.sf, v, self.mapping, pdf=self.pdf, upper_tail=True)
 
     @property
     def mapping(self) -> SupportMap:

@@ -28,8 +28,8 @@ SAFETY = 1e-9
 #: Offset of the envelope's tangent lines (and the squeeze's chords), relative
 #: to the rectangle's diagonal: covers rounding in the numerical tangents.
 LINE_MARGIN = 1e-9
-#: Leydold (2000, sec. 6) reaches rho = area(envelope)/area(squeeze) near 1 with
-#: a few dozen construction points; we stop once the sectors' slack is 1% of area(A).
+#: Leydold (2000) brings area(envelope)/area(squeeze) close to 1 with a few dozen
+#: construction points; we stop once the sectors' slack is 1% of area(A) = 1/2.
 TARGET_SLACK = 0.01
 MAX_CONSTRUCTION_POINTS = 160
 #: 1/sqrt f counts as convex when its slopes never fall by more than this share
@@ -106,12 +106,38 @@ def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def _fan(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Triangles (V0, Vi, Vi+1) of a convex polygon: apex, two edge vectors, cumulative areas."""
-    apex = vertices[0]
+    """Triangles (V0, Vi, Vi+1) of a convex polygon: apexes, two edge vectors, areas."""
+    m = len(vertices) - 2
+    apex = np.repeat(vertices[:1], max(m, 0), axis=0)
     e1 = vertices[1:-1] - apex
     e2 = vertices[2:] - apex
-    areas = 0.5 * np.abs(_cross(e1, e2))
-    return apex, e1, e2, np.cumsum(areas)
+    return apex, e1, e2, 0.5 * np.abs(_cross(e1, e2))
+
+
+def _sector_triangles(poly: np.ndarray, pts: np.ndarray):
+    """The envelope polygon cut along the rays from the origin through the construction
+    points, as triangles tagged with their sector (-1: a tail wedge, outside the squeeze).
+
+    Knowing the sector of each candidate makes the squeeze test a single line test,
+    with no search for the sector that v/u falls in.
+    """
+    def after(p):    # x >= x(p): cross(p, q) >= 0
+        return np.array([p[1], -p[0]])
+
+    def before(p):   # x <= x(p)
+        return np.array([-p[1], p[0]])
+
+    pieces = [(_clip(poly, before(pts[0]), 0.0), -1)]
+    for i in range(len(pts) - 1):
+        pieces.append((_clip(_clip(poly, after(pts[i]), 0.0), before(pts[i + 1]), 0.0), i))
+    pieces.append((_clip(poly, after(pts[-1]), 0.0), -1))
+    parts = [(_fan(piece), sector) for piece, sector in pieces if len(piece) >= 3]
+    apex = np.concatenate([f[0] for f, _ in parts])
+    e1 = np.concatenate([f[1] for f, _ in parts])
+    e2 = np.concatenate([f[2] for f, _ in parts])
+    area = np.concatenate([f[3] for f, _ in parts])
+    sector = np.concatenate([np.full(f[3].size, s, dtype=np.int64) for f, s in parts])
+    return apex, e1, e2, area, sector
 
 
 class RatioOfUniforms(Sampler):
@@ -193,11 +219,13 @@ class RatioOfUniforms(Sampler):
         return pts[np.isfinite(pts) & (pts > lo) & (pts < hi)]
 
     def _dpdf(self, x: np.ndarray) -> np.ndarray:
-        """f'(x) by a fourth-order central difference with a step set by the spread of the
-        target (its interquartile range), kept inside the support."""
+        """f'(x) by a fourth-order difference (one-sided next to an end of the support)."""
         t = self.target
         lo, hi = t.support
-        h = 1e-5 * float(t.quantile(0.75) - t.quantile(0.25))
+        # f changes on the scale of the spread in the bulk and of the age itself in a
+        # power-law tail; a step of 1e-5 of that balances truncation against rounding.
+        median = float(t.quantile(0.5))
+        h = 1e-5 * np.maximum(float(t.quantile(0.75) - t.quantile(0.25)), np.abs(x - median))
         f = t.pdf
         central = (-f(x + 2 * h) + 8 * f(x + h) - 8 * f(x - h) + f(x - 2 * h)) / (12 * h)
         # Within 2h of an end, the one-sided fourth-order stencil keeps the step (and the
@@ -224,8 +252,10 @@ class RatioOfUniforms(Sampler):
             a, b = x[max(i - 1, 0)], x[min(i + 1, x.size - 1)]
             if not b > a:
                 continue
-            res = optimize.minimize_scalar(lambda s: -float(fun(s)), bounds=(a, b), method="bounded",
-                                           options=dict(xatol=1e-12 * max(abs(a), abs(b), b - a)))
+            # Search in the offset from a: the bounded method's own relative tolerance
+            # (sqrt(eps)·|x|) would otherwise swamp a bracket far from 0 (a large location).
+            res = optimize.minimize_scalar(lambda d: -float(fun(a + d)), bounds=(0.0, b - a), method="bounded",
+                                           options=dict(xatol=1e-10 * (b - a)))
             if np.isfinite(res.fun):
                 best = max(best, -float(res.fun))
         return best
@@ -247,20 +277,22 @@ class RatioOfUniforms(Sampler):
         lo, hi = t.support
         if not (np.isfinite(m) and lo <= m <= hi):
             raise MethodNotApplicable("method", f"the mode could not be located (got {m!r})")
-        # A numerical mode a hair above (below) a finite end is that end: f is monotone there.
+        # A numerical mode next to a finite end, where f is no lower, is that end: the
+        # optimiser stops within sqrt(eps) of a flat maximum.
         spread = float(t.quantile(0.75) - t.quantile(0.25))
-        if m - lo <= 1e-9 * spread:
-            m = lo
-        elif hi - m <= 1e-9 * spread:
-            m = hi
+        for end, inward in ((lo, 1.0), (hi, -1.0)):
+            if np.isfinite(end) and abs(m - end) <= 1e-6 * spread:
+                if t.pdf(end + inward * 1e-12 * spread) >= t.pdf(m) * (1 - 1e-12):
+                    m = end
         x = self._probe(m)
+        x = np.unique(np.concatenate([x, self._extend(x, m)]))
         u_plus, v_minus, v_plus = self._rectangle(m, x)
         if not (np.isfinite(u_plus) and u_plus > 0 and np.isfinite(v_minus) and np.isfinite(v_plus)):
             raise MethodNotApplicable("method", "the bounding rectangle is not finite "
                                                 f"(u+ = {u_plus:g}, v- = {v_minus:g}, v+ = {v_plus:g})")
         # Check the rectangle between and beyond the probe ages; a miss means the
         # optimiser was fooled (a spike, a second mode), so enlarge to what was seen.
-        check_x = np.concatenate([x, 0.5 * (x[1:] + x[:-1]), self._extend(x, m)])
+        check_x = np.concatenate([x, 0.5 * (x[1:] + x[:-1])])
         fc = t.pdf(check_x)
         uc, vc = np.sqrt(fc), (check_x - m) * np.sqrt(fc)
         checked = "grid check passed"
@@ -279,10 +311,14 @@ class RatioOfUniforms(Sampler):
             state["t_concavity"] = f"1/sqrt f is not convex near t = {where:.6g}"
         else:
             self._squeezes(state, tables, check_x)
+        if self.envelope_request == "polygon" and state["envelope"] != "polygon":
+            raise MethodNotApplicable("envelope", "the tangent polygon needs a convex region A (a "
+                                                  "T_{-1/2}-concave density); "
+                                                  f"{state.get('t_concavity', state['squeeze'])}")
         self._install(state, tables)
 
     def _t_concave(self, x: np.ndarray) -> tuple[bool, float]:
-        """Is 1/sqrt f convex on the probe ages (Leydold 2000, Def. 1 with c = -1/2)?"""
+        """Is 1/sqrt f convex on the probe ages (T_c-concavity with c = -1/2, Leydold 2000)?"""
         f = self.target.pdf(x)
         keep = f > 1e-280
         xs, h = x[keep], 1.0 / np.sqrt(f[keep])
@@ -327,7 +363,7 @@ class RatioOfUniforms(Sampler):
         return np.column_stack([n, np.abs(c)])
 
     def _sector_slack(self, pts, normals, offsets) -> np.ndarray:
-        """Area between the chord and the two tangents of each sector (Leydold 2000, sec. 4)."""
+        """Area of the triangle between each sector's chord and the two tangents at its ends."""
         n1, n2 = normals[:-1], normals[1:]
         det = _cross(n1, n2)
         c1, c2 = offsets[:-1], offsets[1:]
@@ -354,15 +390,13 @@ class RatioOfUniforms(Sampler):
             pts = self._boundary(xc, m)
             normals, offsets = self._tangents(xc, m, pts)
             slack = self._sector_slack(pts, normals, offsets)
-            total = float(np.sum(slack))
-            if total <= TARGET_SLACK * 0.5 or xc.size >= MAX_CONSTRUCTION_POINTS:
+            if float(np.sum(slack)) <= TARGET_SLACK * 0.5 or xc.size >= MAX_CONSTRUCTION_POINTS:
                 break
-            worst = np.flatnonzero(slack > max(np.mean(slack[np.isfinite(slack)]) if np.isfinite(slack).any()
-                                               else 0.0, 0.1 * TARGET_SLACK * 0.5 / slack.size))
-            worst = worst[:MAX_CONSTRUCTION_POINTS - xc.size]
-            if worst.size == 0:
-                break
-            xc = np.unique(np.concatenate([xc, 0.5 * (xc[worst] + xc[worst + 1])]))
+            # Halve the sectors with more than the average slack (an infinite slack,
+            # tangents that meet on the wrong side, always qualifies).
+            split = np.flatnonzero(slack >= np.mean(np.where(np.isfinite(slack), slack, 0.0)))
+            split = split[:MAX_CONSTRUCTION_POINTS - xc.size]
+            xc = np.unique(np.concatenate([xc, 0.5 * (xc[split] + xc[split + 1])]))
         diag = math.hypot(state["u_plus"], state["v_plus"] - state["v_minus"])
         chords = self._chords(pts)
         chords[:, 2] -= LINE_MARGIN * diag
@@ -382,26 +416,36 @@ class RatioOfUniforms(Sampler):
         inner_area = 0.5 * float(np.sum(np.abs(_cross(pts[:-1], pts[1:]))))
         state["squeeze"] = f"inner polygon through {xc.size} boundary points of A (Leydold 2000)"
         state["squeeze_area_share"] = inner_area / 0.5
-        # Envelope: the rectangle cut by every tangent (shifted outwards by the margin).
-        poly = np.array([[0.0, state["v_minus"]], [state["u_plus"], state["v_minus"]],
-                         [state["u_plus"], state["v_plus"]], [0.0, state["v_plus"]]])
-        for n, c in zip(normals, offsets + LINE_MARGIN * diag):
-            poly = _clip(poly, n, float(c))
-            if len(poly) < 3:
-                return
+        # Tangent check: a tangent that cuts any boundary point of A is dropped (its
+        # slope came out of a difference quotient that rounding spoilt, e.g. in a tail
+        # close to 1/t^2 where dv/dx = u (1 + (t - m) f'/(2f)) nearly cancels).
         all_x = np.concatenate([check_x, xc])
         bp = self._boundary(all_x, m)
         excess = bp @ normals.T - (offsets + LINE_MARGIN * diag)[None, :]
-        if np.any(excess > 0):
-            state["polygon_check"] = (f"a tangent cuts region A near t = {all_x[np.argmax(excess.max(axis=1))]:.6g}; "
-                                      "the rectangle is used as the envelope")
-            return
-        area = float(_fan(poly)[3][-1])
+        good = excess.max(axis=0) <= 0
+        if not good.all():
+            state["tangents_dropped"] = int((~good).sum())
+        normals, offsets = normals[good], offsets[good]
+        # Envelope: the rectangle cut by every tangent (shifted outwards by the margin).
+        poly = np.array([[0.0, state["v_minus"]], [state["u_plus"], state["v_minus"]],
+                         [state["u_plus"], state["v_plus"]], [0.0, state["v_plus"]]])
+        # The ends of the support bound A too: lo <= v/u + m <= hi are the half-planes
+        # (lo - m) u - v <= 0 and v - (hi - m) u <= 0 through the origin.
+        cuts = [(n, c) for n, c in zip(normals, offsets + LINE_MARGIN * diag)]
+        for end, n in ((lo, np.array([lo - m, -1.0])), (hi, np.array([m - hi, 1.0]))):
+            if np.isfinite(end):
+                cuts.append((n / np.hypot(*n), LINE_MARGIN * diag))
+        for n, c in cuts:
+            poly = _clip(poly, n, float(c))
+            if len(poly) < 3:
+                return
+        area = float(np.sum(_fan(poly)[3]))
         rect_area = state["u_plus"] * (state["v_plus"] - state["v_minus"])
         state["polygon_area"] = area
         tables["polygon"] = poly
-        # The polygon costs a third uniform per candidate; it pays once it saves more
-        # than that in rejected candidates and density evaluations.
+        # The polygon costs a third uniform per candidate but spares nearly all the
+        # rejections and density evaluations; once it is under 90% of the rectangle
+        # that pays for any density dearer than a uniform.
         if self.envelope_request == "polygon" or (self.envelope_request == "auto" and area < 0.9 * rect_area):
             state["envelope"] = "polygon"
 
@@ -417,8 +461,14 @@ class RatioOfUniforms(Sampler):
         self.envelope = state["envelope"]
         rect_area = self.u_plus * (self.v_plus - self.v_minus)
         if self.envelope == "polygon":
-            self._apex, self._e1, self._e2, self._cum = _fan(self.polygon)
-            env_area = float(self._cum[-1])
+            apex, e1, e2, area, self._tri_sector = _sector_triangles(self.polygon, self.points)
+            self._tri = (apex[:, 0], apex[:, 1], e1[:, 0], e1[:, 1], e2[:, 0], e2[:, 1])
+            self._tri_cum = np.cumsum(area)
+            env_area = float(self._tri_cum[-1])
+            # Guide table (Chen & Asau 1974): guide[g] = first triangle whose cumulative
+            # area passes g/G of the total, so the search from there takes < 1 step on average.
+            size = 2 * area.size
+            self._guide = np.searchsorted(self._tri_cum, np.arange(size) / size * env_area, side="right")
         else:
             env_area = rect_area
         # area(A) = 1/2 for a normalised density (Kinderman & Monahan 1977, Theorem 1).
@@ -431,43 +481,58 @@ class RatioOfUniforms(Sampler):
             "expected_acceptance": self.expected_acceptance,
             "rectangle_check": state["rectangle_check"],
         })
-        for key in ("t_concavity", "squeeze_area_share", "polygon_area", "polygon_check"):
+        for key in ("t_concavity", "squeeze_area_share", "polygon_area", "tangents_dropped"):
             if key in state:
                 self.extra_stats[key] = state[key]
         if self.construction_x.size:
             self.extra_stats["construction_points"] = int(self.construction_x.size)
 
     # ---- drawing -----------------------------------------------------------------------
-    def _candidates(self, k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
-        """k points uniform on the envelope (rectangle: 2 uniforms each; polygon: 3)."""
+    def _candidates(self, k: int, rng: np.random.Generator):
+        """k points uniform on the envelope, and the squeeze sector of each where known
+        (rectangle: 2 uniforms a point; polygon: 3, one picks the triangle)."""
         if self.envelope == "polygon":
-            pick = rng.random(k) * self._cum[-1]
-            j = np.minimum(np.searchsorted(self._cum, pick, side="right"), self._cum.size - 1)
+            total = self._tri_cum[-1]
+            pick = rng.random(k)
+            w = pick * total
+            j = self._guide[(pick * self._guide.size).astype(np.int64)]
+            last = self._tri_cum.size - 1
+            for _ in range(self._tri_cum.size):
+                step = (j < last) & (self._tri_cum[np.minimum(j, last)] <= w)
+                if not step.any():
+                    break
+                j = j + step
+            # (s, r) is uniform on the unit square; folding the half s + r > 1 onto the other
+            # by (1 - s, 1 - r) preserves area, so apex + s e1 + r e2 is uniform on the triangle.
             s, r = rng.random(k), rng.random(k)
             flip = s + r > 1.0
-            s, r = np.where(flip, 1.0 - s, s), np.where(flip, 1.0 - r, r)
-            p = self._apex + s[:, None] * self._e1[j] + r[:, None] * self._e2[j]
-            return p[:, 0], p[:, 1]
+            s = np.where(flip, 1.0 - s, s)
+            r = np.where(flip, 1.0 - r, r)
+            au, av, e1u, e1v, e2u, e2v = (c.take(j) for c in self._tri)
+            return au + s * e1u + r * e2u, av + s * e1v + r * e2v, self._tri_sector.take(j)
         # 1 - U lies in (0, 1], so u > 0 and v/u stays finite.
         u = self.u_plus * (1.0 - rng.random(k))
         v = self.v_minus + (self.v_plus - self.v_minus) * rng.random(k)
-        return u, v
+        return u, v, None
 
-    def _in_squeeze(self, u, v, x) -> np.ndarray:
-        """Inside the triangle (origin, P_j, P_j+1) of the sector that x = v/u + m falls in."""
-        if self.chords.shape[0] == 0:
+    def _in_squeeze(self, u, v, x, sector=None) -> np.ndarray:
+        """Inside the triangle (origin, P_j, P_j+1) of the sector j that x = v/u + m falls in."""
+        n = self.chords.shape[0]
+        if n == 0:
             return np.zeros(u.shape, dtype=bool)
-        j = np.searchsorted(self.construction_x, x, side="right") - 1
-        valid = (j >= 0) & (j < self.chords.shape[0])
-        jj = np.clip(j, 0, self.chords.shape[0] - 1)
-        line = self.chords[jj]
-        return valid & (line[:, 0] * u + line[:, 1] * v <= line[:, 2])
+        if sector is None:
+            sector = np.searchsorted(self.construction_x, x, side="right") - 1
+            sector = np.where(sector < n, sector, -1)
+        valid = sector >= 0
+        j = np.maximum(sector, 0)
+        a, b, c = self.chords[:, 0].take(j), self.chords[:, 1].take(j), self.chords[:, 2].take(j)
+        return valid & (a * u + b * v <= c)
 
-    def _classify(self, u, v):
+    def _classify(self, u, v, sector=None):
         """x, squeezed (accepted without f), accepted, and how many densities were evaluated."""
         with np.errstate(divide="ignore", invalid="ignore"):
             x = v / u + self.centre
-        squeezed = self._in_squeeze(u, v, x)
+        squeezed = self._in_squeeze(u, v, x, sector)
         accepted = squeezed.copy()
         rest = np.flatnonzero(~squeezed)
         if rest.size:
@@ -481,10 +546,11 @@ class RatioOfUniforms(Sampler):
         per_candidate = 3 if self.envelope == "polygon" else 2
         while filled < m:
             need = m - filled
-            # Enough candidates for the shortfall with high probability (4 binomial sd).
-            k = int(need / self.expected_acceptance + 4.0 * math.sqrt(need) + 16)
-            u, v = self._candidates(k, rng)
-            x, squeezed, accepted, evals = self._classify(u, v)
+            # About one binomial sd more candidates than the shortfall needs: a second
+            # (small) round is rare, and the surplus thrown away stays well under 1%.
+            k = int(need / self.expected_acceptance + math.sqrt(need) + 16)
+            u, v, sector = self._candidates(k, rng)
+            x, squeezed, accepted, evals = self._classify(u, v, sector)
             self.counts["uniforms"] += per_candidate * k
             self.counts["candidates"] += k
             self.counts["density_evals"] += evals
@@ -504,8 +570,8 @@ class RatioOfUniforms(Sampler):
         x = x[(x > t.support[0]) & (x < t.support[1])]
         b = self._boundary(x, self.centre)
         rng = np.random.default_rng(rng)
-        u, v = self._candidates(n_points, rng)
-        _, squeezed, accepted, _ = self._classify(u, v)
+        u, v, sector = self._candidates(n_points, rng)
+        _, squeezed, accepted, _ = self._classify(u, v, sector)
         label = np.where(squeezed, "squeeze", np.where(accepted, "accepted", "rejected"))
         inner = (np.vstack([[0.0, 0.0], self.points, [0.0, 0.0]]) if self.points.size else np.empty((0, 2)))
         outer = np.vstack([self.polygon, self.polygon[:1]]) if self.polygon.size else np.empty((0, 2))

@@ -1,0 +1,366 @@
+"""`make bench`: lifedraw against reference generators, side by side in one process.
+
+Single thread (thread-count variables set before numpy loads), same targets and
+sizes, alternating runs, medians of several repetitions; results as ratios
+lifedraw/reference, written to bench/results.md. Not part of `make test`.
+"""
+from __future__ import annotations
+
+import os
+
+for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"):
+    os.environ[_var] = "1"
+
+import argparse
+import datetime
+import json
+import math
+import platform
+import statistics
+import subprocess
+import sys
+import time
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+from scipy import stats
+from scipy.stats import sampling
+
+import engine
+from engine import Target
+from engine.methods import METHODS
+
+HERE = Path(__file__).resolve().parent
+N_DRAWS = 10**7
+REPEATS = 5
+
+
+# ---- the formula targets, written twice: our formula text, and a plain scalar pdf for the references
+def _targets():
+    """(name, lifedraw target builder, reference pdf (scalar), dpdf (scalar) or None, mode, support)."""
+    out = []
+    # 1. generalised gamma: f ~ t^(k-1) exp(-(t/s)^p)
+    k, p, s = 2.5, 1.6, 1.0
+    out.append(("generalised gamma",
+                lambda: Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=k, p=p, s=s)),
+                lambda x: x ** (k - 1) * math.exp(-((x / s) ** p)),
+                lambda x: (x ** (k - 2) * math.exp(-((x / s) ** p))) * ((k - 1) - p * (x / s) ** p),
+                ((k - 1) / p) ** (1 / p) * s, (0, math.inf)))
+    # 2. bathtub mixture written as one density formula, with a pole at 0 (shape 0.5)
+    w1, w2, w3, b3, e3 = 0.1, 0.3, 0.6, 4.0, 3.0
+    out.append(("bathtub mixture, pole at 0",
+                lambda: Target.density("w1*0.5*t**(-0.5)*exp(-t**0.5) + w2*exp(-t)"
+                                       " + w3*b3/e3*(t/e3)**(b3 - 1)*exp(-(t/e3)**b3)", (0, math.inf),
+                                       dict(w1=w1, w2=w2, w3=w3, b3=b3, e3=e3)),
+                lambda x: (w1 * 0.5 * x ** -0.5 * math.exp(-(x ** 0.5)) + w2 * math.exp(-x)
+                           + w3 * b3 / e3 * (x / e3) ** (b3 - 1) * math.exp(-((x / e3) ** b3))) if x > 0
+                else math.inf,
+                None, None, (0, math.inf)))
+    # 3. lognormal-like density as a formula
+    mu, sg = 1.0, 0.5
+    out.append(("lognormal-like formula",
+                lambda: Target.density("exp(-(log(t) - mu)**2/(2*sg**2))/t", (0, math.inf), dict(mu=mu, sg=sg)),
+                lambda x: math.exp(-((math.log(x) - mu) ** 2) / (2 * sg * sg)) / x if x > 0 else 0.0,
+                lambda x: (math.exp(-((math.log(x) - mu) ** 2) / (2 * sg * sg)) / x**2
+                           * (-(math.log(x) - mu) / (sg * sg) - 1)) if x > 0 else 0.0,
+                math.exp(mu - sg * sg), (0, math.inf)))
+    # 4. a hazard-rate formula (Weibull-type wear-out plus a constant rate); H in closed form for the reference
+    a, b, c = 1.0, 2.5, 0.05
+    out.append(("hazard-rate formula",
+                lambda: Target.hazard("a*b*t**(b - 1) + c", (0, math.inf), dict(a=a, b=b, c=c)),
+                lambda x: (a * b * x ** (b - 1) + c) * math.exp(-(a * x**b + c * x)),
+                None, None, (0, math.inf)))
+    return out
+
+
+class _Dist:
+    def __init__(self, pdf, dpdf, mode, support):
+        self.pdf = pdf
+        if dpdf is not None:
+            self.dpdf = dpdf
+        self._support = support
+        self._mode = mode
+
+    def support(self):
+        return self._support
+
+
+def _median_rate(fn, n=N_DRAWS, repeats=REPEATS):
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn(n)
+        times.append(time.perf_counter() - start)
+    return n / statistics.median(times)
+
+
+def _race(ours, theirs, n=N_DRAWS, repeats=REPEATS):
+    """Alternate the two generators, so drifts of the machine hit both alike."""
+    t_ours, t_theirs = [], []
+    ours(min(n, 10**5)); theirs(min(n, 10**5))            # warm-up
+    for _ in range(repeats):
+        start = time.perf_counter(); ours(n); t_ours.append(time.perf_counter() - start)
+        start = time.perf_counter(); theirs(n); t_theirs.append(time.perf_counter() - start)
+    return n / statistics.median(t_ours), n / statistics.median(t_theirs)
+
+
+def _timed(fn, repeats=3):
+    best = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        value = fn()
+        best.append(time.perf_counter() - start)
+    return value, statistics.median(best)
+
+
+def bench_inversion(rows):
+    for name, build, pdf, dpdf, mode, support in _targets():
+        (sampler, setup) = _timed(lambda: engine.fit(build(), "inversion", 1e-10))
+        dist = _Dist(pdf, None, mode, support)
+        kwargs = {"center": mode} if mode else {}
+        try:
+            ref, ref_setup = _timed(lambda: sampling.NumericalInversePolynomial(
+                dist, u_resolution=1e-10, random_state=np.random.default_rng(1), **kwargs))
+        except Exception as err:  # UNU.RAN refuses some targets (e.g. an unbounded density)
+            rows.append(dict(section="1. numerical inversion vs NumericalInversePolynomial", target=name,
+                             ours=_median_rate(lambda n: sampler.sample(n, 1), repeats=3),
+                             note=f"reference failed: {type(err).__name__}: {str(err)[:120]}; "
+                                  f"lifedraw u-error {sampler.stats['u_error']:.1e}, set-up {setup * 1e3:.1f} ms"))
+            continue
+        g1 = np.random.default_rng(11)
+        ours, theirs = _race(lambda n: sampler.sample(n, g1), lambda n: ref.rvs(n))
+        # Both u-errors measured the same way, against the model's own CDF.
+        target = sampler.target
+        u = np.sort(np.random.default_rng(3).random(100_000))
+        u_ref = float(np.max(np.abs(u - target.cdf(ref.ppf(u)))))
+        rows.append(dict(section="1. numerical inversion vs NumericalInversePolynomial", target=name,
+                         ours=ours, ref=theirs, ratio=ours / theirs, goal=1.2,
+                         note=(f"set-up {setup * 1e3:.1f} ms vs {ref_setup * 1e3:.1f} ms "
+                               f"(ratio {setup / ref_setup:.2f}, goal <= 1); u-error "
+                               f"{sampler.stats['u_error']:.1e} vs {u_ref:.1e}")))
+
+
+def bench_rejection_and_rou(rows):
+    for name, build, pdf, dpdf, mode, support in _targets():
+        target = build()
+        if "rejection" in METHODS and dpdf is not None:
+            try:
+                ours_s = engine.fit(target, "rejection")
+                dist = _Dist(pdf, dpdf, mode, support)
+                ref = sampling.TransformedDensityRejection(dist, mode=mode, random_state=np.random.default_rng(2))
+                g = np.random.default_rng(12)
+                ours, theirs = _race(lambda n: ours_s.sample(n, g), lambda n: ref.rvs(n))
+                rows.append(dict(section="2. rejection vs TransformedDensityRejection", target=name, ours=ours,
+                                 ref=theirs, ratio=ours / theirs, goal=1.0,
+                                 note=f"acceptance {ours_s.stats['acceptance_rate']:.3f}"))
+            except engine.MethodNotApplicable as err:
+                rows.append(dict(section="2. rejection vs TransformedDensityRejection", target=name,
+                                 note=f"not applicable: {err.reason}"))
+            except Exception as err:  # the reference may refuse a target (e.g. not T-concave)
+                rows.append(dict(section="2. rejection vs TransformedDensityRejection", target=name,
+                                 note=f"reference failed: {type(err).__name__}: {err}"))
+        if "ratio-of-uniforms" in METHODS and mode is not None:
+            try:
+                ours_s = engine.fit(target, "ratio-of-uniforms")
+                area = target.area if hasattr(target, "area") else 1.0
+                dist = _Dist(pdf, None, mode, support)
+                ref = sampling.SimpleRatioUniforms(dist, mode=mode, pdf_area=area,
+                                                   random_state=np.random.default_rng(3))
+                g = np.random.default_rng(13)
+                n_ref = 10**6   # the reference calls a Python pdf per candidate: 10^6 is plenty to time
+                ours = _median_rate(lambda n: ours_s.sample(n, g), n=N_DRAWS, repeats=3)
+                theirs = _median_rate(lambda n: ref.rvs(n), n=n_ref, repeats=3)
+                rows.append(dict(section="2. ratio-of-uniforms vs SimpleRatioUniforms", target=name, ours=ours,
+                                 ref=theirs, ratio=ours / theirs, goal=10.0,
+                                 note=f"acceptance {ours_s.stats['acceptance_rate']:.3f}, squeeze "
+                                      f"{ours_s.stats['squeeze_rate'] or 0:.3f}"))
+            except engine.MethodNotApplicable as err:
+                rows.append(dict(section="2. ratio-of-uniforms vs SimpleRatioUniforms", target=name,
+                                 note=f"not applicable: {err.reason}"))
+
+
+def bench_normal(rows):
+    if "ratio-of-uniforms" not in METHODS:
+        return
+    s = engine.fit(Target.family("normal", mean=0, sd=1), "ratio-of-uniforms")
+    g1, g2 = np.random.default_rng(21), np.random.default_rng(22)
+    ours, theirs = _race(lambda n: s.sample(n, g1), lambda n: g2.standard_normal(n))
+    rows.append(dict(section="3. Leva normal vs numpy standard_normal (ziggurat)", target="standard normal",
+                     ours=ours, ref=theirs, ratio=ours / theirs, goal=0.5,
+                     note=f"variant: {s.stats.get('variant', '')}"))
+
+
+def bench_generic(rows):
+    name, build, pdf, dpdf, mode, support = _targets()[0]
+
+    class Generic(stats.rv_continuous):
+        def _pdf(self, x):
+            return np.vectorize(pdf)(x) / 1.0
+
+    area = build().area
+    gen = Generic(a=0.0, name="generic")
+    gen._pdf = lambda x: np.vectorize(pdf)(x) / area
+    n_generic = 300
+    start = time.perf_counter()
+    gen.rvs(size=n_generic, random_state=np.random.default_rng(5))
+    generic = n_generic / (time.perf_counter() - start)
+    sampler = engine.fit(build())
+    ours = _median_rate(lambda n: sampler.sample(n, 7), repeats=3)
+    rows.append(dict(section="4. against a generic rv_continuous with only _pdf", target=name, ours=ours,
+                     ref=generic, ratio=ours / generic, goal=None,
+                     note=f"{generic:.0f} samples/s by scipy's generic path"))
+
+
+def bench_refit(rows):
+    fam = []
+    for shape in np.linspace(1.5, 3.5, 9):
+        _, t = _timed(lambda: engine.fit(Target.family("weibull", shape=shape, scale=1000)), repeats=3)
+        fam.append(t)
+    form = []
+    for k in np.linspace(2.0, 3.0, 5):
+        _, t = _timed(lambda: engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf),
+                                                        dict(k=k, p=1.6, s=1.0))), repeats=3)
+        form.append(t)
+    rows.append(dict(section="5. refit after a slider change", target="Weibull family",
+                     ours=statistics.median(fam) * 1e3, ref=20.0, ratio=statistics.median(fam) * 1e3 / 20.0,
+                     goal=-1.0, note="milliseconds (goal <= 20 ms)"))
+    rows.append(dict(section="5. refit after a slider change", target="density formula",
+                     ours=statistics.median(form) * 1e3, ref=100.0, ratio=statistics.median(form) * 1e3 / 100.0,
+                     goal=-1.0, note="milliseconds (goal <= 100 ms)"))
+
+
+def bench_threads(rows):
+    """Two threads vs one for n = 2e7 through the chunked generator, and peak memory for 1e8."""
+    code = r'''
+import os, sys, time, json, resource
+import numpy as np, dask
+import engine
+from engine import Target
+from engine.generate import generate
+s = engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, float("inf")), dict(k=2.5, p=1.6, s=1.0)))
+mode = sys.argv[1]
+if mode == "threads":
+    out = {}
+    for workers in (1, 2, 1, 2):
+        arr = generate(s, 2 * 10**7, chunk=10**6, seed=1)
+        start = time.perf_counter()
+        with dask.config.set(scheduler="threads", num_workers=workers):
+            arr.sum().compute()
+        out.setdefault(workers, []).append(time.perf_counter() - start)
+    print(json.dumps({k: min(v) for k, v in out.items()}))
+else:
+    arr = generate(s, 10**8, chunk=10**7, seed=1)
+    with dask.config.set(scheduler="threads", num_workers=2):
+        arr.mean().compute()
+    print(json.dumps({"maxrss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
+'''
+    env = dict(os.environ)
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"):
+        env[var] = "1"
+    try:
+        res = json.loads(subprocess.run([sys.executable, "-c", code, "threads"], capture_output=True, text=True,
+                                        check=True, env=env, timeout=600).stdout.strip().splitlines()[-1])
+        t1, t2 = res["1"], res["2"]
+        rows.append(dict(section="6. scaling: two threads vs one (2e7 draws, chunks of 1e6)",
+                         target="generalised gamma", ours=2e7 / t2, ref=2e7 / t1, ratio=t1 / t2, goal=1.7,
+                         note="draws/s with 2 threads vs 1 thread"))
+        mem = json.loads(subprocess.run([sys.executable, "-c", code, "memory"], capture_output=True, text=True,
+                                        check=True, env=env, timeout=600).stdout.strip().splitlines()[-1])
+        rows.append(dict(section="6. peak memory, 1e8 draws in chunks of 1e7", target="generalised gamma",
+                         ours=mem["maxrss_mb"], ref=1024.0, ratio=mem["maxrss_mb"] / 1024.0, goal=-1.0,
+                         note="MB of peak resident memory (goal < 1024 MB)"))
+    except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
+        rows.append(dict(section="6. scaling and memory", target="-", note=f"could not run: {err}"))
+
+
+def bench_dashboard(rows):
+    script = HERE / "dashboard_latency.py"
+    if not script.exists():
+        return
+    try:
+        out = subprocess.run([sys.executable, str(script), "--json"], capture_output=True, text=True,
+                             timeout=600, check=True).stdout.strip().splitlines()[-1]
+        res = json.loads(out)
+        rows.append(dict(section="7. dashboard slider-to-redraw latency (headless Chromium)",
+                         target=f"{res.get('batch', 50000)} draws per batch", ours=res["p95_ms"], ref=250.0,
+                         ratio=res["p95_ms"] / 250.0, goal=-1.0,
+                         note=f"p95 {res['p95_ms']:.0f} ms, median {res['median_ms']:.0f} ms (goal p95 <= 250 ms)"))
+    except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
+        rows.append(dict(section="7. dashboard latency", target="-", note=f"could not run: {err}"))
+
+
+def _machine() -> str:
+    cpu = "unknown CPU"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    versions = ", ".join(f"{p} {metadata.version(p)}" for p in ("numpy", "scipy", "numba", "dask", "panel")
+                         if _has(p))
+    return (f"{platform.system()} {platform.machine()}, {cpu}, {os.cpu_count()} cores; "
+            f"Python {platform.python_version()}; {versions}; JIT kernels: "
+            f"{'on' if engine.kernels.HAVE_JIT else 'off'}")
+
+
+def _has(pkg):
+    try:
+        metadata.version(pkg)
+        return True
+    except metadata.PackageNotFoundError:
+        return False
+
+
+def _verdict(row) -> str:
+    goal = row.get("goal")
+    if goal is None or "ratio" not in row:
+        return ""
+    if goal < 0:      # a "lower is better" row: ratio = measured / limit
+        return "met" if row["ratio"] <= 1.0 else "MISSED"
+    return "met" if row["ratio"] >= goal else "MISSED"
+
+
+def write_results(rows, path: Path):
+    today = datetime.date.today().isoformat()
+    lines = [f"# lifedraw benchmark results ({today})", "", f"Machine: {_machine()}", "",
+             f"Single thread unless stated; {N_DRAWS:.0e} draws per timing, median of {REPEATS} alternating "
+             "runs. Ratio = lifedraw / reference (for the latency, time and memory rows: measured / limit, "
+             "lower is better).", "",
+             "| section | target | lifedraw | reference | ratio | goal | verdict | notes |",
+             "|---|---|---|---|---|---|---|---|"]
+    for r in rows:
+        def f(v):
+            return "" if v is None else (f"{v:.3g}" if isinstance(v, float) else str(v))
+        goal = r.get("goal")
+        goal_text = "" if goal is None else ("<= 1 (limit)" if goal < 0 else f">= {goal:g}x")
+        lines.append(f"| {r['section']} | {r.get('target', '')} | {f(r.get('ours'))} | {f(r.get('ref'))} | "
+                     f"{f(r.get('ratio'))} | {goal_text} | {_verdict(r)} | {r.get('note', '')} |")
+    lines += ["", "Throughput columns are draws per second; see the notes column for other units."]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return "\n".join(lines)
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__)
+    parser.add_argument("--out", default=str(HERE / "results.md"))
+    parser.add_argument("--skip", nargs="*", default=[], help="sections to skip: inversion rejection normal "
+                                                               "generic refit threads dashboard")
+    args = parser.parse_args(argv)
+    rows: list[dict] = []
+    sections = [("inversion", bench_inversion), ("rejection", bench_rejection_and_rou), ("normal", bench_normal),
+                ("generic", bench_generic), ("refit", bench_refit), ("threads", bench_threads),
+                ("dashboard", bench_dashboard)]
+    for key, fn in sections:
+        if key in args.skip:
+            continue
+        start = time.perf_counter()
+        fn(rows)
+        print(f"[bench] {key}: {time.perf_counter() - start:.1f} s", file=sys.stderr)
+    print(write_results(rows, Path(args.out)))
+
+
+if __name__ == "__main__":
+    main()

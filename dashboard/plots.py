@@ -1,0 +1,473 @@
+"""Pictures and tables of the workbench, built from plain arrays: HoloViews elements (Bokeh
+backend) and small HTML tables, shared by the live page and the standalone report.
+
+Every function takes numbers and returns an element or an HTML string; none
+touches the engine's objects, so the report and the live views draw the same
+pictures from the same data.
+"""
+from __future__ import annotations
+
+import html
+import math
+
+import holoviews as hv
+import numpy as np
+
+if "bokeh" not in hv.Store.renderers:
+    hv.extension("bokeh", logo=False)
+
+DRAWS = "#5b8db8"
+MODEL = "#c2412d"
+HAT = "#d98e04"
+SQUEEZE = "#2e7d4f"
+REJECTED = "#c2412d"
+ACCEPTED = "#5b8db8"
+GRID = "#8c8c8c"
+LABEL_COLOURS = {"squeeze": SQUEEZE, "accepted": ACCEPTED, "rejected": REJECTED}
+LABEL_NAMES = {"squeeze": "decided by the squeeze", "accepted": "accepted (density evaluated)",
+               "rejected": "rejected"}
+FONTS = {"title": "11pt", "labels": "10pt", "xticks": "9pt", "yticks": "9pt", "legend": "9pt"}
+TOOLS = ["pan", "wheel_zoom", "box_zoom", "reset", "save"]
+
+
+def _size(width, height):
+    """Fixed size for the report, stretch to the cell's width on the page."""
+    if width:
+        return {"width": int(width), "height": int(height)}
+    return {"responsive": True, "height": int(height), "min_width": 260}
+
+
+def _common(title, width, height, **extra):
+    return dict(title=title, show_grid=True, fontsize=FONTS, default_tools=TOOLS, toolbar="right",
+                **_size(width, height), **extra)
+
+
+def unit_singular(unit: str) -> str:
+    unit = str(unit or "").strip()
+    return unit[:-1] if unit.endswith("s") and len(unit) > 2 else unit
+
+
+def age_label(unit: str) -> str:
+    return f"age at failure ({unit})" if unit else "age at failure"
+
+
+def _steps(edges, values):
+    """x, y of a step outline over bins (for a per-bin expectation)."""
+    x = np.repeat(edges, 2)[1:-1]
+    y = np.repeat(values, 2)
+    return x, y
+
+
+# ---- the live check ------------------------------------------------------------------------
+
+def density_histogram(data: dict, width=None, height=320) -> hv.Overlay:
+    """Histogram of the draws as a density, against the model's density (or, for a model
+    with atoms, its expected share per bin from cdf differences, as a step outline)."""
+    edges = np.asarray(data["edges"], dtype=float)
+    widths = np.diff(edges)
+    n = int(data["n"])
+    unit = data.get("unit", "")
+    per = unit_singular(unit)
+    density = np.asarray(data["counts"], dtype=float) / (max(n, 1) * widths)
+    expected = np.asarray(data["expected"], dtype=float) / widths
+    log = bool(data.get("log"))
+    age = hv.Dimension("age", label=age_label(unit))
+    dens = hv.Dimension("density", label=f"density (1/{per})" if per else "density")
+    if log:
+        density = np.where(density > 0, density, np.nan)
+    bars = hv.Histogram((edges, density), kdims=[age], vdims=[dens], label="draws").opts(
+        fill_color=DRAWS, fill_alpha=0.55, line_color=DRAWS, line_alpha=0.8, line_width=0.5)
+    if data.get("model_x") is not None:
+        y = np.asarray(data["model_pdf"], dtype=float)
+        model = hv.Curve((data["model_x"], np.where(y > 0, y, np.nan) if log else y), age, dens,
+                         label="model density").opts(color=MODEL, line_width=2)
+        reference = y
+    else:
+        sx, sy = _steps(edges, expected)
+        model = hv.Curve((sx, np.where(sy > 0, sy, np.nan) if log else sy), age, dens,
+                         label="model: expected share per bin").opts(color=MODEL, line_width=2)
+        reference = expected
+    right = edges[-1] if log else float(data.get("view_right") or edges[-1])
+    hidden = int(data.get("above", 0)) + int(data.get("below", 0))
+    title = f"{n:,} draws against the model" if n else "no draws yet: press Start"
+    if n and hidden:
+        title += f" ({hidden:,} beyond the binned range)"
+    opts = _common(title, width, height, xlim=(float(edges[0]), float(right)), legend_position="top_right",
+                   tools=["hover"])
+    if log:
+        positive = np.concatenate([reference[np.isfinite(reference) & (reference > 0)],
+                                   density[np.isfinite(density) & (density > 0)]])
+        top = float(positive.max()) if positive.size else 1.0
+        bottom = float(positive.min()) if positive.size else top * 1e-6
+        opts.update(logy=True, ylim=(max(bottom / 2, top * 1e-9), top * 2))
+    return (bars * model).opts(**opts)
+
+
+def qq_plot(data: dict, width=None, height=280) -> hv.Overlay:
+    unit = data.get("unit", "")
+    model = np.asarray(data["model"], dtype=float)
+    sample = np.asarray(data["sample"], dtype=float)
+    mx = hv.Dimension("model", label=f"model quantile ({unit})")
+    sy = hv.Dimension("sample", label=f"sample quantile ({unit})")
+    finite = np.concatenate([model[np.isfinite(model)], sample[np.isfinite(sample)]])
+    lo, hi = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    line = hv.Curve(([lo, hi], [lo, hi]), mx, sy, label="y = x").opts(color=GRID, line_dash="dashed")
+    pts = hv.Scatter((model, sample), mx, sy, label="quantiles").opts(color=DRAWS, size=4, tools=["hover"])
+    n = int(data.get("n", 0))
+    return (line * pts).opts(**_common(f"QQ plot ({n:,} draws in the sample)", width, height,
+                                       legend_position="top_left"))
+
+
+def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
+    mx = hv.Dimension("model_p", label="model F(x) at the sample quantile")
+    ey = hv.Dimension("empirical", label="share of draws at or below x")
+    line = hv.Curve(([0, 1], [0, 1]), mx, ey, label="y = x").opts(color=GRID, line_dash="dashed")
+    pts = hv.Scatter((data["model"], data["empirical"]), mx, ey, label="probabilities").opts(
+        color=DRAWS, size=4, tools=["hover"])
+    return (line * pts).opts(**_common("PP plot", width, height, legend_position="top_left",
+                                       xlim=(0, 1), ylim=(0, 1)))
+
+
+def trace_plot(data: dict, key: str, width=None, height=240) -> hv.Overlay:
+    """Running trace against the number of draws: the KS p-value or the acceptance rate."""
+    n = np.asarray(data["n"], dtype=float)
+    y = np.asarray(data[key], dtype=float)
+    nd = hv.Dimension("n", label="draws so far")
+    if key == "ks_p":
+        yd = hv.Dimension("p", label="KS p-value")
+        title = "Kolmogorov-Smirnov p-value as draws accumulate"
+        ref = hv.HLine(1e-3).opts(color=MODEL, line_dash="dotted", line_width=1)
+        ylim = (0, 1.02)
+    else:
+        yd = hv.Dimension("rate", label="acceptance rate")
+        ref = hv.HLine(1.0).opts(color=GRID, line_dash="dotted", line_width=1)
+        finite = y[np.isfinite(y)]
+        if n.size and not finite.size:
+            title = "acceptance rate: no rejection step (every candidate is a draw)"
+        else:
+            title = "acceptance rate of candidates as draws accumulate"
+        ylim = (max(0.0, float(finite.min()) - 0.05) if finite.size else 0.0, 1.02)
+    curve = hv.Curve((n, y), nd, yd).opts(color=DRAWS, line_width=2, tools=["hover"])
+    dots = hv.Scatter((n, y), nd, yd).opts(color=DRAWS, size=4)
+    opts = _common(title, width, height, ylim=ylim)
+    if n.size and n.max() > n.min() * 10:
+        opts["logx"] = True
+    return (curve * dots * ref).opts(**opts)
+
+
+# ---- method geometry ------------------------------------------------------------------------
+
+def geometry_plots(geom: dict, unit: str = "", fallback: dict | None = None, width=None,
+                   height=300) -> list:
+    """Pictures of how the method works, chosen by the keys its ``geometry()`` returned.
+
+    ``fallback`` (``{"x", "pdf", "draws"}``) draws the density and a histogram of
+    draws when the method's picture is not one this module knows.
+    """
+    if "candidates" in geom and "hat" in geom:
+        return _rejection_plots(geom, unit, width, height)
+    if "boundary_u" in geom and "candidates_u" in geom:
+        return [_ratio_of_uniforms_plot(geom, width, height)]
+    if "u_error" in geom and "u" in geom:
+        return _inversion_plots(geom, unit, width, height)
+    if "probability" in geom and "left" in geom:
+        return _table_plots(geom, unit, width, height)
+    if "parts" in geom and "weights" in geom:
+        return _composition_plots(geom, unit, width, height)
+    return [_fallback_plot(fallback, geom.get("method", "this method"), unit, width, height)]
+
+
+def _inversion_plots(g, unit, width, height):
+    u = np.asarray(g["u"], dtype=float)
+    x = np.asarray(g["x"], dtype=float)
+    ud = hv.Dimension("u", label="u (uniform draw)")
+    xd = hv.Dimension("x", label=age_label(unit))
+    pieces = g.get("piece_starts")
+    how = f"{len(pieces):,} polynomial pieces" if pieces is not None else "closed form"
+    inv = hv.Curve((u, x), ud, xd).opts(color=MODEL, line_width=2, tools=["hover"]).opts(
+        **_common(f"inverse CDF x = F⁻¹(u) ({how})", width, height))
+    err = np.maximum(np.asarray(g["u_error"], dtype=float), 1e-17)
+    ed = hv.Dimension("err", label="u-error |u − F(F⁻¹(u))|")
+    tol = float(g.get("tolerance", 1e-10))
+    curve = hv.Curve((u, err), ud, ed, label="u-error").opts(color=DRAWS, line_width=1.5, tools=["hover"])
+    line = hv.HLine(tol, label="tolerance").opts(color=MODEL, line_dash="dashed", line_width=1.5)
+    top = max(float(err.max()), tol) * 10
+    uerr = (curve * line).opts(**_common(f"u-error against the tolerance {tol:g} (floor 1e-17)", width,
+                                         height, logy=True, ylim=(1e-17, top)))
+    return [inv, uerr]
+
+
+def _table_plots(g, unit, width, height):
+    left = np.asarray(g["left"], dtype=float)
+    w = np.asarray(g["width"], dtype=float)
+    p = np.asarray(g["probability"], dtype=float)
+    xd = hv.Dimension("x", label=age_label(unit))
+    pd_ = hv.Dimension("p", label="probability")
+    tail = bool(g.get("tail"))
+    if g.get("kind") == "bins":
+        edges = np.concatenate([left, [left[-1] + w[-1]]])
+        first = hv.Histogram((edges, p), kdims=[xd], vdims=[pd_]).opts(
+            fill_color=DRAWS, fill_alpha=0.6, line_color="white", tools=["hover"]).opts(
+            **_common(f"bin probabilities ({p.size} bins, uniform within each)", width, height))
+    else:
+        atoms = left[:-1] if tail else left
+        pa = p[:-1] if tail else p
+        first = hv.Spikes((atoms, pa), kdims=[xd], vdims=[pd_]).opts(
+            color=DRAWS, line_width=3, tools=["hover"])
+        title = f"probability at each failure time ({atoms.size} atoms)"
+        if tail:
+            title += f"; {p[-1]:.1%} in the fitted tail beyond {left[-1]:g}"
+        first = first.opts(**_common(title, width, height))
+    keep = np.asarray(g.get("keep", np.ones_like(p)), dtype=float)
+    cols = [str(i + 1) for i in range(keep.size)]
+    stacked = hv.Bars([(c, "own bin", k) for c, k in zip(cols, keep)]
+                      + [(c, "alias", 1 - k) for c, k in zip(cols, keep)],
+                      kdims=[hv.Dimension("column", label="alias-table column"), "part"],
+                      vdims=[hv.Dimension("share", label="share of the column")]).opts(
+        stacked=True, cmap=[DRAWS, HAT], tools=["hover"], legend_position="top_right",
+        **_common("alias table: each column keeps its own bin or passes to its alias", width, height))
+    return [first, stacked]
+
+
+def _composition_plots(g, unit, width, height):
+    weights = np.asarray(g["weights"], dtype=float)
+    methods = list(g.get("part_methods", ["?"] * weights.size))
+    names = [f"{i + 1}: {m}" for i, m in enumerate(methods)]
+    bars = hv.Bars(list(zip(names, weights)), hv.Dimension("component", label="component: its method"),
+                   hv.Dimension("w", label="weight (share of units)")).opts(
+        color=DRAWS, tools=["hover"], **_common("which sub-population: alias choice by weight", width, height))
+    out = [bars]
+    curves = []
+    for i, part in enumerate(g.get("parts", [])):
+        if "u_error" in part and "u" in part:
+            err = np.maximum(np.asarray(part["u_error"], dtype=float), 1e-17)
+            curves.append(hv.Curve((part["u"], err), hv.Dimension("u", label="u (uniform draw)"),
+                                   hv.Dimension("err", label="u-error"), label=f"component {i + 1}"))
+    if curves:
+        tol = float(g["parts"][0].get("tolerance", 1e-10))
+        out.append(hv.Overlay(curves + [hv.HLine(tol).opts(color=MODEL, line_dash="dashed")]).opts(
+            **_common("each component's inversion: u-error", width, height, logy=True,
+                      ylim=(1e-17, 1e-6 if tol < 1e-7 else tol * 100), legend_position="bottom_right")))
+    return out
+
+
+def _candidates_overlay(xs, ys, labels, xd, yd):
+    layers = []
+    labels = np.asarray(labels).astype(str)
+    for key in ("squeeze", "accepted", "rejected"):
+        m = labels == key
+        if m.any():
+            layers.append(hv.Scatter((np.asarray(xs)[m], np.asarray(ys)[m]), xd, yd,
+                                     label=LABEL_NAMES[key]).opts(color=LABEL_COLOURS[key], size=4, alpha=0.75))
+    return layers
+
+
+def _rejection_plots(g, unit, width, height):
+    x = np.asarray(g["x"], dtype=float)
+    xd = hv.Dimension("x", label=age_label(unit))
+    yd = hv.Dimension("y", label="density")
+    cand = g["candidates"]
+    acc = g.get("expected_acceptance")
+    sub = f" (expected acceptance {acc:.1%})" if acc is not None else ""
+
+    def layer(log):
+        def v(a):
+            a = np.asarray(a, dtype=float)
+            return np.where(a > 0, a, np.nan) if log else a
+        parts = [hv.Curve((x, v(g["hat"])), xd, yd, label="hat").opts(color=HAT, line_width=2),
+                 hv.Curve((x, v(g["f"])), xd, yd, label="density f").opts(color="#222222", line_width=1.5),
+                 hv.Curve((x, v(g["squeeze"])), xd, yd, label="squeeze").opts(color=SQUEEZE, line_width=1.5,
+                                                                                 line_dash="dashed")]
+        if not log:
+            parts += _candidates_overlay(cand["x"], cand["y"], cand["label"], xd, yd)
+        pts = np.asarray(g.get("points", []), dtype=float)
+        if pts.size:
+            parts.append(hv.Scatter((pts, v(g["points_f"])), xd, yd, label="construction points").opts(
+                color="#222222", marker="triangle", size=7))
+        return hv.Overlay(parts)
+
+    lin = layer(False).opts(**_common("density, hat and squeeze, with candidate points" + sub, width,
+                                      height + 40, legend_position="top_right"))
+    f = np.asarray(g["f"], dtype=float)
+    pos = f[f > 0]
+    ylim = (float(pos.min()) / 2, float(np.nanmax(np.asarray(g["hat"], dtype=float))) * 2) if pos.size else None
+    log = layer(True).opts(**_common("the same on a log scale: the hat is piecewise exponential", width,
+                                     height, logy=True, show_legend=False,
+                                     **({"ylim": ylim} if ylim else {})))
+    return [lin, log]
+
+
+def _ratio_of_uniforms_plot(g, width, height):
+    ud = hv.Dimension("u", label="u")
+    vd = hv.Dimension("v", label="v")
+    parts = [hv.Curve((g["rectangle_u"], g["rectangle_v"]), ud, vd, label="bounding rectangle").opts(
+                 color=GRID, line_dash="dotted", line_width=1.5)]
+    if np.size(g.get("outer_u", [])):
+        parts.append(hv.Curve((g["outer_u"], g["outer_v"]), ud, vd, label=f"envelope ({g.get('envelope', '')})").opts(
+            color=HAT, line_width=1.5))
+    parts.append(hv.Curve((g["boundary_u"], g["boundary_v"]), ud, vd, label="region A").opts(
+        color="#222222", line_width=2))
+    if np.size(g.get("inner_u", [])):
+        parts.append(hv.Curve((g["inner_u"], g["inner_v"]), ud, vd, label="squeeze").opts(
+            color=SQUEEZE, line_width=1.5, line_dash="dashed"))
+    parts += _candidates_overlay(g["candidates_u"], g["candidates_v"], g["candidates_label"], ud, vd)
+    note = g.get("coordinates")
+    title = "region A, its bounding rectangle, envelope and squeeze, with candidate points"
+    if note:
+        title = f"region A in {note.split(':')[0]} coordinates, with candidate points"
+    return hv.Overlay(parts).opts(**_common(title, width, height + 80, legend_position="right"))
+
+
+def _fallback_plot(fb, method, unit, width, height):
+    xd = hv.Dimension("x", label=age_label(unit))
+    yd = hv.Dimension("y", label="density")
+    if not fb:
+        return hv.Curve(([], []), xd, yd).opts(**_common(f"{method}: no picture available", width, height))
+    layers = []
+    draws = np.asarray(fb.get("draws", []), dtype=float)
+    if draws.size:
+        lo, hi = float(fb["x"][0]), float(fb["x"][-1])
+        counts, edges = np.histogram(draws[(draws >= lo) & (draws <= hi)], bins=60, range=(lo, hi))
+        dens = counts / max(draws.size, 1) / np.diff(edges)
+        layers.append(hv.Histogram((edges, dens), kdims=[xd], vdims=[yd], label="draws").opts(
+            fill_color=DRAWS, fill_alpha=0.5, line_color=DRAWS))
+    layers.append(hv.Curve((fb["x"], fb["pdf"]), xd, yd, label="model density").opts(color=MODEL, line_width=2))
+    return hv.Overlay(layers).opts(**_common(f"{method}: the density and the draws (no method picture)",
+                                             width, height))
+
+
+# ---- the method comparison --------------------------------------------------------------------
+
+COMPARISON_METRICS = (
+    ("draws_per_second", "draws per second", False),
+    ("setup_ms", "set-up time (ms)", False),
+    ("uniforms_per_sample", "uniforms per draw", False),
+    ("density_evals_per_sample", "density evaluations per draw", False),
+    ("acceptance_rate", "acceptance rate", False),
+    ("u_error", "max u-error", True),
+)
+
+
+def comparison_bars(rows: list[dict], width=None, height=220) -> list:
+    """One small bar chart per measured figure; methods that do not apply are left out."""
+    measured = [r for r in rows if r.get("applicable")]
+    out = []
+    for key, label, log in COMPARISON_METRICS:
+        pairs = [(r["method"], r.get(key)) for r in measured]
+        values = [(m, float(v)) for m, v in pairs if v is not None and math.isfinite(float(v))]
+        md = hv.Dimension("method", label="method")
+        vd = hv.Dimension(key, label=label)
+        if log:
+            values = [(m, max(v, 1e-17)) for m, v in values]
+        if not values:
+            values = [(m, 0.0) for m, _ in pairs] or [("none", 0.0)]
+            label += " (not reported)"
+        bars = hv.Bars(values, md, vd).opts(color=DRAWS, tools=["hover"], xrotation=0,
+                                            **_common(label, width, height, logy=log))
+        if log:
+            top = max(v for _, v in values)
+            bars = bars.opts(ylim=(1e-17, max(top * 10, 1e-14)))
+        out.append(bars)
+    return out
+
+
+# ---- tables (HTML) ------------------------------------------------------------------------------
+
+def fmt(value, digits: int = 4) -> str:
+    """A number for a table: thousands separators for large values, significant digits otherwise."""
+    if value is None:
+        return "–"
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (int, np.integer)):
+        return f"{int(value):,}"
+    if isinstance(value, (float, np.floating)):
+        v = float(value)
+        if math.isnan(v):
+            return "–"
+        if math.isinf(v):
+            return "∞" if v > 0 else "−∞"
+        if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e9):
+            return f"{v:.{digits - 1}e}"
+        if abs(v) >= 1000:
+            return f"{v:,.0f}"
+        return f"{v:.{digits}g}"
+    return html.escape(str(value))
+
+
+def html_table(header: list[str], rows: list[list], css_class: str = "ld-table") -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{c}</td>" for c in row) + "</tr>" for row in rows)
+    return f'<table class="{css_class}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+
+
+_COUNTER_LABELS = {
+    "method": "method", "variant": "variant", "samples": "draws", "setup_seconds": "set-up (s)",
+    "uniforms_per_sample": "uniforms per draw", "density_evals_per_sample": "density evaluations per draw",
+    "acceptance_rate": "acceptance rate", "squeeze_rate": "share decided by the squeeze",
+    "table_bytes": "table size (bytes)", "u_error": "max u-error (stated)", "tolerance": "tolerance",
+}
+
+
+def counters_table(stats: dict) -> str:
+    """The sampler's counters (sampler.stats), known ones first and in plain words."""
+    rows = []
+    for key, label in _COUNTER_LABELS.items():
+        if key in stats:
+            rows.append([html.escape(label), fmt(stats[key])])
+    for key, value in stats.items():
+        if key in _COUNTER_LABELS or isinstance(value, (dict, list, tuple)):
+            continue
+        rows.append([html.escape(key.replace("_", " ")), fmt(value)])
+    return html_table(["counter", "value"], rows, "ld-table ld-compact")
+
+
+def comparison_table(rows: list[dict]) -> str:
+    header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
+              "squeeze share", "table bytes", "max u-error"]
+    body = []
+    for r in rows:
+        if not r.get("applicable"):
+            body.append([f"<b>{html.escape(r['method'])}</b>",
+                         f'<span class="ld-muted" title="{html.escape(r.get("reason", ""))}">not applicable: '
+                         f'{html.escape(r.get("reason", ""))}</span>', "", "", "", "", "", "", "", ""])
+            continue
+        body.append([f"<b>{html.escape(r['method'])}</b>", html.escape(str(r.get("variant") or "")),
+                     fmt(r.get("setup_ms"), 3), fmt(r.get("draws_per_second"), 3),
+                     fmt(r.get("acceptance_rate")), fmt(r.get("uniforms_per_sample")),
+                     fmt(r.get("density_evals_per_sample")), fmt(r.get("squeeze_rate")),
+                     fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)])
+    return html_table(header, body)
+
+
+def life_table(figures: dict, unit: str) -> str:
+    """Life figures of the draws (estimate and interval) beside the model's exact values."""
+    sample, exact = figures.get("sample"), figures.get("exact")
+    if exact is None:
+        return '<p class="ld-muted">The model\'s exact figures could not be computed.</p>'
+    conf = sample["confidence"] if sample else 0.95
+    header = ["figure", "from the draws", f"{conf:.0%} interval", "model (exact)", "inside?"]
+    rows = []
+
+    def row(name, est, lo, hi, model, pct=False):
+        f = (lambda v: "–" if v is None else f"{100 * v:.3f} %") if pct else fmt
+        inside = "–"
+        if est is not None and model is not None and lo is not None and hi is not None and math.isfinite(model):
+            inside = "✓" if lo <= model <= hi else "✗"
+        rows.append([name, f(est), "–" if lo is None else f"{f(lo)} to {f(hi)}", f(model), inside])
+
+    m = sample["mttf"] if sample else {}
+    row(f"MTTF ({unit})", m.get("estimate"), m.get("lower"), m.get("upper"), exact["mttf"]["value"])
+    for name, b in exact["b_lives"].items():
+        s = sample["b_lives"][name] if sample else {}
+        row(f"{name} life ({unit})", s.get("estimate"), s.get("lower"), s.get("upper"), b["value"])
+    for i, r in enumerate(exact["reliability"]):
+        s = sample["reliability"][i] if sample else {}
+        row(f"R({fmt(r['time'])} {unit})", s.get("estimate"), s.get("lower"), s.get("upper"), r["value"], pct=True)
+    return html_table(header, rows)
+
+
+def parameters_table(parameters: dict) -> str:
+    rows = [[html.escape(p.name), html.escape(p.label or ""), fmt(p.value), f"{fmt(p.low)} to {fmt(p.high)}"]
+            for p in parameters.values()]
+    return html_table(["parameter", "meaning", "value", "slider range"], rows)

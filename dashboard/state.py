@@ -1,0 +1,678 @@
+"""Per-session state of the workbench: what the user chose, and what the engine derived from it.
+Draws are kept in bounded memory: a fixed-bin histogram and a reservoir sample (Vitter 1985, algorithm R).
+
+No user-interface imports here: the classes are plain ``param.Parameterized``
+objects, tested without a browser. Every engine call that can fail on user input
+goes through ``Workbench._guard``, which keeps the last valid model running and
+files a short message under the field that caused it.
+"""
+from __future__ import annotations
+
+import dataclasses
+import logging
+import math
+import re
+import time
+
+import numpy as np
+import param
+from scipy import stats as _stats
+
+from engine import ModelError, fit
+from engine.errors import MethodNotApplicable
+from engine.methods import method_names
+from engine.scenarios import DEFAULT_SCENARIO, Scenario, load_scenario, scenario_from_dict, scenario_names
+
+log = logging.getLogger("lifedraw.dashboard")
+
+RESERVOIR_SIZE = 200_000
+HIST_BINS = 160
+CDF_NODES = 1025
+PLOT_POINTS = 200
+TRACE_LIMIT = 5_000
+# The histogram spans the model's (LOW_Q, FAR_Q) quantiles; the linear view crops at VIEW_Q.
+LOW_Q, VIEW_Q, FAR_Q = 5e-4, 0.9995, 1 - 1e-5
+TOLERANCES = (1e-6, 1e-8, 1e-10, 1e-12)
+FORMULA_KINDS = ("density", "hazard", "cdf")
+
+# Error groups: each is shown next to the controls it belongs to.
+FIELDS = ("scenario", "model", "upload", "parameters", "method", "run", "comparison", "report")
+
+
+# ---- the model's cdf, fast enough to test every batch ---------------------------------------
+
+class CdfTable:
+    """F at ~1000 nodes placed at empirical quantiles of a probe sample, interpolated linearly.
+
+    The values at the nodes are the model's exact cdf (the probe only decides
+    where the nodes go, so a faulty sampler cannot bias them). Between nodes the
+    error is at most the change of F's slope across one node gap times the gap,
+    about 1e-6 here: far below the KS resolution 1/sqrt(n) of any live sample.
+    Targets with atoms (product-limit) use their exact cdf, which is cheap, and
+    the left limit F(x-) needed at an atom.
+    """
+
+    def __init__(self, target, probe: np.ndarray):
+        self.target = target
+        self.atoms = np.asarray(target.atoms, dtype=float)
+        lo, hi = target.support
+        probe = np.sort(probe[np.isfinite(probe)])
+        nodes = np.quantile(probe, np.linspace(0.0, 1.0, CDF_NODES)) if probe.size else np.array([])
+        ends = [v for v in (lo, hi) if math.isfinite(v)]
+        self.nodes = np.unique(np.concatenate([nodes, ends]))
+        self.values = np.maximum.accumulate(np.asarray(target.cdf(self.nodes), dtype=float))
+
+    @property
+    def exact(self) -> bool:
+        return self.atoms.size > 0 or self.nodes.size < 2
+
+    def cdf(self, x: np.ndarray) -> np.ndarray:
+        if self.exact:
+            return np.asarray(self.target.cdf(x), dtype=float)
+        out = np.interp(x, self.nodes, self.values)
+        outside = (x < self.nodes[0]) | (x > self.nodes[-1])
+        if outside.any():
+            out[outside] = self.target.cdf(x[outside])
+        return out
+
+    def cdf_left(self, x: np.ndarray) -> np.ndarray:
+        """F(x-): differs from F(x) only at an atom."""
+        if not self.atoms.size:
+            return self.cdf(x)
+        out = self.cdf(x)
+        on = np.isin(x, self.atoms)
+        if on.any():
+            out[on] = self.target.cdf(np.nextafter(x[on], -np.inf))
+        return out
+
+    def quantile(self, p) -> np.ndarray:
+        """Model quantiles by inverse interpolation of the table (for plotting only)."""
+        p = np.asarray(p, dtype=float)
+        if self.exact:
+            return np.asarray(self.target.quantile(p), dtype=float)
+        values, first = np.unique(self.values, return_index=True)
+        return np.interp(p, values, self.nodes[first])
+
+
+def histogram_edges(target, table: CdfTable) -> tuple[np.ndarray, float]:
+    """Equal-width bins from the model's LOW_Q quantile (or the start of its support) to FAR_Q;
+    returns the edges and the right end of the linear view (the VIEW_Q quantile)."""
+    lo, hi = target.support
+    q_low, q_view, q_far = (float(v) for v in table.quantile([LOW_Q, VIEW_Q, FAR_Q]))
+    left = lo if math.isfinite(lo) else q_low
+    right = min(hi, q_far) if math.isfinite(hi) else q_far
+    if not right > left:
+        right = left + max(abs(left), 1.0)
+    return np.linspace(left, right, HIST_BINS + 1), min(max(q_view, left), right)
+
+
+# ---- bounded memory of the draws -----------------------------------------------------------
+
+class DrawAccumulator:
+    """All draws as a fixed-bin histogram plus a uniform reservoir sample of at most ``capacity``.
+
+    The reservoir follows Vitter (1985), ACM TOMS 11(1) "Random sampling with a
+    reservoir", algorithm R, vectorised per batch: the i-th draw (0-based,
+    i >= capacity) replaces slot j ~ U{0..i} when j < capacity. Each reservoir
+    slot keeps the draw and its model cdf, so the running KS test costs one sort.
+    Bins are right-closed, (e_k, e_k+1], so a bin's expected share is exactly
+    F(e_k+1) - F(e_k) even when the model has atoms.
+    """
+
+    def __init__(self, edges: np.ndarray, table: CdfTable, capacity: int = RESERVOIR_SIZE, rng=None):
+        self.edges = np.asarray(edges, dtype=float)
+        self.table = table
+        self.capacity = int(capacity)
+        self.rng = np.random.default_rng(rng)
+        self.counts = np.zeros(self.edges.size - 1, dtype=np.int64)
+        self.below = 0
+        self.above = 0
+        self.n = 0
+        self.x = np.empty(0)
+        self.F = np.empty(0)
+        self.F_left = np.empty(0)
+        self._sorted_cache = None
+
+    def add(self, x: np.ndarray) -> None:
+        x = np.asarray(x, dtype=float).ravel()
+        if not x.size:
+            return
+        idx = np.searchsorted(self.edges, x, side="left")
+        idx[x == self.edges[0]] = 1
+        binned = np.bincount(idx, minlength=self.edges.size + 1)
+        self.below += int(binned[0])
+        self.counts += binned[1:-1]
+        self.above += int(binned[-1])
+        F = self.table.cdf(x)
+        F_left = self.table.cdf_left(x) if self.table.atoms.size else F
+        room = self.capacity - self.x.size
+        if room > 0:
+            take = min(room, x.size)
+            self.x = np.concatenate([self.x, x[:take]])
+            self.F = np.concatenate([self.F, F[:take]])
+            self.F_left = np.concatenate([self.F_left, F_left[:take]])
+        else:
+            take = 0
+        rest = x.size - take
+        if rest:
+            seen = self.n + take + np.arange(rest)          # global index of each remaining draw
+            j = np.floor(self.rng.random(rest) * (seen + 1)).astype(np.int64)
+            keep = np.flatnonzero(j < self.capacity)
+            # Within a batch a later draw may land on the same slot as an earlier
+            # one; numpy applies repeated indices in order, so the later one wins,
+            # as in the sequential algorithm.
+            slots = j[keep]
+            src = take + keep
+            self.x[slots] = x[src]
+            self.F[slots] = F[src]
+            self.F_left[slots] = F_left[src]
+        self.n += x.size
+
+    def _sorted(self):
+        """The reservoir sorted by value, with its cdf values in the same order (cached until the next add)."""
+        if self._sorted_cache is None or self._sorted_cache[0] != self.n:
+            order = np.argsort(self.x, kind="stable")
+            self._sorted_cache = (self.n, self.x[order], self.F[order], self.F_left[order])
+        return self._sorted_cache[1:]
+
+    def ks(self) -> tuple[float, float]:
+        """Kolmogorov-Smirnov D and p-value of the reservoir against the model.
+
+        D = max over the sorted sample of i/m - F(x_i) and F(x_i-) - (i-1)/m; the
+        p-value is scipy's exact law of D_m (``kstwo``; Simard & L'Ecuyer 2011),
+        conservative when the model has atoms (Noether 1963).
+        """
+        m = self.x.size
+        if m < 2:
+            return math.nan, math.nan
+        _, F, F_left = self._sorted()
+        i = np.arange(1, m + 1)
+        d = max(float(np.max(i / m - F)), float(np.max(F_left - (i - 1) / m)), 0.0)
+        return d, float(_stats.kstwo.sf(d, m))
+
+    def sample_quantiles(self, p) -> np.ndarray:
+        """Sample p-quantiles of the reservoir (numpy's default, Hyndman & Fan 1996 definition 7)."""
+        p = np.asarray(p, dtype=float)
+        m = self.x.size
+        if not m:
+            return np.full(p.shape, np.nan)
+        xs = self._sorted()[0]
+        h = (m - 1) * p
+        j = np.floor(h).astype(np.int64)
+        k = np.minimum(j + 1, m - 1)
+        return xs[j] + (h - j) * (xs[k] - xs[j])
+
+
+# ---- the workbench -----------------------------------------------------------------------
+
+def _scenario_objects() -> list[str]:
+    return scenario_names()
+
+
+class Workbench(param.Parameterized):
+    """One user's workbench: the chosen scenario, model, generator settings and the live stream.
+
+    User choices are parameters; derived data (``scenario``, ``target``,
+    ``sampler``, the accumulated draws) is replaced only when a rebuild
+    succeeds. ``version`` counts successful refits and ``batch`` the batches
+    drawn, so views can watch them.
+    """
+
+    scenario_name = param.Selector(default=DEFAULT_SCENARIO, objects=[DEFAULT_SCENARIO],
+                                   doc="The scenario file picked from scenarios/.")
+    method = param.Selector(default="auto", objects=["auto"], doc="Sampling method, or auto.")
+    tolerance = param.Selector(default=1e-10, objects=list(TOLERANCES), doc="u-error tolerance.")
+    seed = param.Integer(default=20261201, bounds=(0, 2**63 - 1), doc="Seed of the stream.")
+    batch_size = param.Integer(default=50_000, bounds=(1_000, 500_000), doc="Draws per batch.")
+    stop_at = param.Integer(default=100_000, bounds=(1_000, 50_000_000), doc="The stream stops here.")
+    log_scale = param.Boolean(default=False, doc="Log density axis and the far tail in view.")
+    running = param.Boolean(default=False, doc="Is the stream drawing batches?")
+
+    values = param.Dict(default={}, doc="Current value of each scenario parameter.")
+    errors = param.Dict(default={}, doc="Field group -> message of the last failed input.")
+    version = param.Integer(default=0, doc="Bumps on every successful refit.")
+    batch = param.Integer(default=0, doc="Bumps on every batch drawn (and on a reset).")
+    comparison = param.List(default=[], doc="Rows of the last method comparison.")
+    comparison_note = param.String(default="")
+
+    def __init__(self, scenario: str | Scenario | None = None, **params):
+        super().__init__(**params)
+        self._busy = False
+        names = _scenario_objects()
+        self.param.scenario_name.objects = names
+        self.param.method.objects = method_names()
+        self.scenario: Scenario | None = None
+        self.target = None
+        self.sampler = None
+        self.table: CdfTable | None = None
+        self.acc: DrawAccumulator | None = None
+        self.view_right = 0.0
+        self._rng = None
+        self._exact_life = None
+        self._geometry = None
+        self._model_curve = None
+        self.trace = {"n": [], "ks_p": [], "acceptance": []}
+        self.last_refit_ms = 0.0
+        if isinstance(scenario, Scenario):
+            sc = scenario
+        else:
+            sc = load_scenario(scenario or (DEFAULT_SCENARIO if DEFAULT_SCENARIO in names else names[0]))
+        if sc.name not in names:
+            self.param.scenario_name.objects = [*names, sc.name]
+        self._adopt_scenario_settings(sc)
+        with self._quiet():
+            self.scenario_name = sc.name
+        if not self._rebuild(sc, "scenario"):
+            raise ModelError(*self._first_error())
+
+    # ---- errors ------------------------------------------------------------------------
+    def _first_error(self):
+        field, message = next(iter(self.errors.items()))
+        return field, message
+
+    def _set_error(self, field: str, message: str | None) -> None:
+        errors = dict(self.errors)
+        if message:
+            errors[field] = message
+        else:
+            errors.pop(field, None)
+        if errors != self.errors:
+            self.errors = errors
+
+    def _guard(self, field: str, fn, *args, **kwargs):
+        """Run ``fn``; on failure file the message under ``field`` and return None.
+
+        A method that cannot serve the model is filed under "method" whatever
+        triggered the refit, since that is where the user can fix it.
+        """
+        try:
+            return fn(*args, **kwargs)
+        except MethodNotApplicable as err:
+            self._set_error("method", f"{self.method}: {err.reason}")
+        except ModelError as err:
+            self._set_error(field, str(err))
+        except Exception as err:  # the server must never show a traceback or die
+            log.exception("unexpected error while handling %s", field)
+            self._set_error(field, f"could not use this input ({type(err).__name__}); "
+                                   "details are in the server log")
+        return None
+
+    class _Quiet:
+        def __init__(self, owner):
+            self.owner = owner
+
+        def __enter__(self):
+            self.saved = self.owner._busy
+            self.owner._busy = True
+
+        def __exit__(self, *exc):
+            self.owner._busy = self.saved
+
+    def _quiet(self):
+        """Change user parameters without triggering the refit they normally cause."""
+        return self._Quiet(self)
+
+    # ---- building the model and the sampler ---------------------------------------------
+    def _adopt_scenario_settings(self, sc: Scenario) -> None:
+        tol = min(TOLERANCES, key=lambda t: abs(math.log10(t) - math.log10(sc.tolerance)))
+        method = sc.method if sc.method in self.param.method.objects else "auto"
+        with self._quiet():
+            self.param.update(method=method, tolerance=tol, seed=int(sc.seed),
+                              stop_at=int(min(max(sc.sample_size, 1_000), 50_000_000)))
+
+    def _rebuild(self, sc: Scenario, field: str) -> bool:
+        """Fit a sampler to ``sc``'s model; adopt it and restart the stream only if that works."""
+        def build():
+            start = time.perf_counter()
+            target = sc.target()
+            sampler = fit(target, self.method, float(self.tolerance))
+            probe = sampler.sample(min(20_000, max(self.batch_size, 2_000)), self._probe_seed())
+            sampler.reset_counters()
+            table = CdfTable(target, probe)
+            return target, sampler, table, time.perf_counter() - start
+
+        built = self._guard(field, build)
+        if built is None:
+            return False
+        self.target, self.sampler, self.table, seconds = built
+        self.scenario = sc
+        self.last_refit_ms = 1e3 * seconds
+        self._exact_life = None
+        self._geometry = None
+        self._model_curve = None
+        # Success settles the input that caused the refit; a new model source
+        # also settles the other sources, whose messages no longer apply.
+        settled = {field, "method"}
+        if field in ("scenario", "model", "upload"):
+            settled |= {"scenario", "model", "upload", "parameters"}
+        for f in settled:
+            self._set_error(f, None)
+        with self._quiet():
+            self.values = {k: p.value for k, p in sc.parameters.items()}
+        self.comparison = []
+        self.comparison_note = ""
+        self._restart()
+        self.version += 1
+        return True
+
+    def _probe_seed(self):
+        # A stream of its own, so the probe that places the cdf nodes leaves the
+        # user's seeded stream untouched.
+        return np.random.SeedSequence(self.seed, spawn_key=(7,))
+
+    def _restart(self, draw_first: bool = True) -> None:
+        """Clear the draws and start again from the seed; draw the first batch now."""
+        edges, self.view_right = histogram_edges(self.target, self.table)
+        self._rng = np.random.default_rng(self.seed)
+        self.sampler.reset_counters()
+        self.acc = DrawAccumulator(edges, self.table, RESERVOIR_SIZE,
+                                   np.random.SeedSequence(self.seed, spawn_key=(1,)))
+        self.trace = {"n": [], "ks_p": [], "acceptance": []}
+        if draw_first:
+            self.step()
+        else:
+            self.batch += 1
+
+    # ---- what the user does ---------------------------------------------------------------
+    @param.depends("scenario_name", watch=True)
+    def _on_scenario_name(self):
+        if self._busy:
+            return
+
+        def load():
+            return load_scenario(self.scenario_name)
+
+        sc = self._guard("scenario", load)
+        if sc is None:
+            return
+        saved = (self.method, self.tolerance, self.seed, self.stop_at)
+        self._adopt_scenario_settings(sc)
+        if not self._rebuild(sc, "scenario"):
+            with self._quiet():
+                self.param.update(method=saved[0], tolerance=saved[1], seed=saved[2], stop_at=saved[3])
+
+    @param.depends("method", "tolerance", watch=True)
+    def _on_generator(self):
+        if self._busy:
+            return
+        self._rebuild(self.scenario, "method")
+
+    @param.depends("seed", watch=True)
+    def _on_seed(self):
+        if self._busy:
+            return
+        self._set_error("run", None)
+        self._restart()
+
+    def set_value(self, name: str, value) -> bool:
+        """Move one parameter: refit and restart the stream, or keep the last model and say why."""
+        return self.set_values(**{name: value})
+
+    def set_values(self, **values) -> bool:
+        sc = self._guard("parameters", lambda: self.scenario.with_values(**values))
+        if sc is None:
+            return False
+        return self._rebuild(sc, "parameters")
+
+    def apply_formula(self, kind: str, expr: str, support: str = "0, inf", params: str = "") -> bool:
+        """Replace the model by a density, hazard or CDF formula in t with named parameters."""
+        def build():
+            k = str(kind).strip().lower()
+            if k not in FORMULA_KINDS:
+                raise ModelError("kind", f"must be one of {', '.join(FORMULA_KINDS)}, got {kind!r}")
+            if not str(expr).strip():
+                raise ModelError("formula", "is empty; write a function of t, e.g. exp(-t/1000)")
+            values = parse_assignments(params)
+            model = {"kind": k, "expr": str(expr).strip(), "support": parse_support(support)}
+            return self._custom_scenario(model, values, f"{k} formula")
+
+        sc = self._guard("model", build)
+        return sc is not None and self._rebuild(sc, "model")
+
+    def apply_family(self, family: str, params: str) -> bool:
+        """Replace the model by a textbook family; each of its parameters gets a slider."""
+        def build():
+            from engine.families import FAMILIES
+            key = str(family).strip().lower().replace("-", "_").replace(" ", "_")
+            if key not in FAMILIES:
+                raise ModelError("family", f"unknown family {family!r}; known: {', '.join(sorted(FAMILIES))}")
+            values = parse_assignments(params)
+            known = [p.name for p in FAMILIES[key].params]
+            for name in values:
+                if name not in known:
+                    raise ModelError("parameters", f"{name!r} is not a parameter of the "
+                                                   f"{FAMILIES[key].title} family ({', '.join(known)})")
+            model = {"kind": "family", "family": key, "params": {k: k for k in values}}
+            return self._custom_scenario(model, values, f"{FAMILIES[key].title} family")
+
+        sc = self._guard("model", build)
+        return sc is not None and self._rebuild(sc, "model")
+
+    def load_field_data(self, data, filename: str = "field data.csv") -> bool:
+        """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model."""
+        def build():
+            from engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
+            if sniff_layout(data) == "binned":
+                edges, counts = read_binned_csv(data)
+                model = {"kind": "histogram", "edges": edges.tolist(), "counts": counts.tolist(),
+                         "smooth": False}
+                what = f"{counts.size} bins, {counts.sum():g} failures"
+            else:
+                times, censored = read_failure_csv(data)
+                model = {"kind": "failures", "times": times.tolist(), "censored": censored.tolist()}
+                what = f"{int((~censored).sum())} failures, {int(censored.sum())} suspensions"
+            base = self.scenario
+            data_dict = {"title": f"Field data from {filename}",
+                         "story": f"Uploaded field data ({what}).",
+                         "time_unit": base.time_unit, "model": model,
+                         "run": {"method": "auto", "seed": self.seed, "sample_size": self.stop_at,
+                                 "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
+            stem = re.sub(r"[^A-Za-z0-9_-]+", "-", str(filename).rsplit(".", 1)[0]).strip("-") or "field-data"
+            return scenario_from_dict(data_dict, stem)
+
+        sc = self._guard("upload", build)
+        if sc is None:
+            return False
+        with self._quiet():
+            self.method = "auto"
+        return self._rebuild(sc, "upload")
+
+    def _custom_scenario(self, model: dict, values: dict[str, float], what: str) -> Scenario:
+        base = self.scenario
+        params = {}
+        for name, v in values.items():
+            old = base.parameters.get(name)
+            if old is not None and old.low <= v <= old.high:
+                params[name] = {"value": v, "min": old.low, "max": old.high, "step": old.step,
+                                **({"label": old.label} if old.label else {})}
+            else:
+                params[name] = v   # the scenario loader gives it a range around the value
+        data = {"title": f"{base.title.split(' — ')[0]} — edited model ({what})",
+                "story": base.story, "time_unit": base.time_unit, "parameters": params, "model": model,
+                "run": {"method": self.method, "seed": self.seed, "sample_size": self.stop_at,
+                        "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
+        name = base.name if base.name.endswith("-edited") else f"{base.name}-edited"
+        return scenario_from_dict(data, name)
+
+    # ---- the stream -------------------------------------------------------------------------
+    @property
+    def n(self) -> int:
+        return self.acc.n if self.acc is not None else 0
+
+    @property
+    def done(self) -> bool:
+        return self.n >= self.stop_at
+
+    def start(self) -> None:
+        if self.done:
+            self._restart(draw_first=False)
+        self.running = True
+
+    def pause(self) -> None:
+        self.running = False
+
+    def reset(self) -> None:
+        """Clear every draw and stop; the next start begins again from the seed."""
+        self.running = False
+        self._restart(draw_first=False)
+
+    def step(self) -> int:
+        """Draw one batch (bounded by ``stop_at``) and fold it into the histogram, reservoir and traces."""
+        m = min(int(self.batch_size), self.stop_at - self.n)
+        if m <= 0:
+            self.running = False
+            return 0
+        x = self._guard("run", self.sampler.sample, m, self._rng)
+        if x is None:
+            self.running = False
+            return 0
+        self.acc.add(x)
+        _, p = self.acc.ks()
+        rate = self.sampler.stats.get("acceptance_rate")
+        for key, v in (("n", self.n), ("ks_p", p), ("acceptance", math.nan if rate is None else rate)):
+            self.trace[key].append(float(v))
+            del self.trace[key][:-TRACE_LIMIT]
+        if self.done:
+            self.running = False
+        self.batch += 1
+        return m
+
+    # ---- derived data for the views (plain arrays and dicts) ------------------------------------
+    def _model_on_bins(self):
+        """Expected share of each bin (cdf differences) and the density curve, cached per refit."""
+        edges = self.acc.edges
+        if self._model_curve is None or self._model_curve[0] is not edges:
+            t = self.target
+            F = np.asarray(t.cdf(edges), dtype=float)
+            F[0] = float(t.cdf(np.nextafter(edges[0], -np.inf)))   # the first bin is closed on the left
+            if t.atoms.size:
+                x = y = None
+            else:
+                x = np.linspace(edges[0], edges[-1], 801)
+                y = np.asarray(t.pdf(x), dtype=float)
+            self._model_curve = (edges, np.diff(F), x, y)
+        return self._model_curve[1:]
+
+    def histogram_data(self) -> dict:
+        acc = self.acc
+        expected, x, y = self._model_on_bins()
+        return {"edges": acc.edges, "counts": acc.counts.copy(), "n": acc.n, "below": acc.below,
+                "above": acc.above, "expected": expected, "model_x": x, "model_pdf": y,
+                "view_right": self.view_right, "log": bool(self.log_scale),
+                "unit": self.scenario.time_unit}
+
+    def qq_data(self) -> dict:
+        p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
+        return {"p": p, "model": self.table.quantile(p), "sample": self.acc.sample_quantiles(p),
+                "unit": self.scenario.time_unit, "n": int(self.acc.x.size)}
+
+    def pp_data(self) -> dict:
+        p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
+        xq = self.acc.sample_quantiles(p)
+        model_p = self.table.cdf(xq) if self.acc.x.size else np.full_like(p, np.nan)
+        return {"empirical": p, "model": model_p, "n": int(self.acc.x.size)}
+
+    def ks(self) -> tuple[float, float]:
+        return self.acc.ks()
+
+    def counters(self) -> dict:
+        return dict(self.sampler.stats)
+
+    def geometry(self) -> dict:
+        """The sampler's own picture data (cached per refit)."""
+        if self._geometry is None:
+            self._geometry = self._guard("method", self.sampler.geometry, 400, 0) or {"method": self.sampler.method}
+        return self._geometry
+
+    def life_figures(self) -> dict | None:
+        """Life figures of the draws so far (reservoir) beside the model's exact values."""
+        import engine
+        if self._exact_life is None:
+            self._exact_life = self._guard("run", engine.exact_life_figures, self.target,
+                                           self.scenario.mission_times)
+        if self.acc is None or self.acc.x.size < 2:
+            return {"sample": None, "exact": self._exact_life, "n": 0, "total": self.n}
+        sample = self._guard("run", engine.life_summary, self.acc.x, self.scenario.mission_times)
+        return {"sample": sample, "exact": self._exact_life, "n": int(self.acc.x.size), "total": self.n}
+
+    def run_comparison(self, n: int = 100_000) -> list:
+        """Measure every method on the current model now (engine.compare.compare_methods)."""
+        from engine.compare import compare_methods
+        try:
+            result = compare_methods(self.target, n=n, rng=self.seed, tolerance=float(self.tolerance))
+        except Exception as err:
+            result = err
+        return self.set_comparison(result, n)
+
+    def set_comparison(self, result, n: int) -> list:
+        """Adopt measured rows, or file the exception ``result`` under "comparison"."""
+        if isinstance(result, Exception):
+            def reraise():
+                raise result
+            self._guard("comparison", reraise)
+            return []
+        self._set_error("comparison", None)
+        self.comparison_note = (f"{n:,} draws per method, measured at {time.strftime('%H:%M:%S')} on this "
+                                "machine in one process; draws/s is the median of 3 timed batches")
+        self.comparison = list(result)
+        return self.comparison
+
+    def report_failed(self, err: Exception) -> None:
+        def reraise():
+            raise err
+        self._guard("report", reraise)
+
+    def current_scenario(self) -> Scenario:
+        """The scenario as it stands now: current values, method, seed, tolerance and sample size."""
+        return dataclasses.replace(self.scenario, method=self.method, seed=int(self.seed),
+                                   tolerance=float(self.tolerance), sample_size=int(self.stop_at))
+
+    def scenario_toml(self) -> str:
+        return self.current_scenario().to_toml()
+
+
+# ---- small parsers for the model editor --------------------------------------------------------
+
+_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*=\s*(\S.*?)\s*$")
+
+
+def parse_assignments(text: str) -> dict[str, float]:
+    """``"k = 2.5, s = 9000"`` (commas, semicolons or new lines) -> {"k": 2.5, "s": 9000.0}."""
+    out: dict[str, float] = {}
+    for part in re.split(r"[,;\n]", str(text or "")):
+        if not part.strip():
+            continue
+        m = _ASSIGN.match(part)
+        if not m:
+            raise ModelError("parameters", f"{part.strip()!r} is not of the form name = number")
+        name, raw = m.group(1), m.group(2)
+        try:
+            value = float(raw)
+        except ValueError:
+            raise ModelError("parameters", f"{name} = {raw!r}: not a number") from None
+        if not math.isfinite(value):
+            raise ModelError("parameters", f"{name} must be finite, got {raw}")
+        if name in out:
+            raise ModelError("parameters", f"{name} is given twice")
+        out[name] = value
+    return out
+
+
+def parse_support(text: str) -> list:
+    """``"0, inf"`` -> [0.0, "inf"] (the scenario file's spelling of an open end)."""
+    parts = [p.strip() for p in re.split(r"[,;]", str(text or "")) if p.strip()]
+    if len(parts) != 2:
+        raise ModelError("support", f"give two ends separated by a comma, e.g. 0, inf; got {text!r}")
+    out = []
+    for p in parts:
+        low = p.lower()
+        if low in ("inf", "+inf", "infinity"):
+            out.append("inf")
+        elif low in ("-inf", "-infinity"):
+            out.append("-inf")
+        else:
+            try:
+                out.append(float(p))
+            except ValueError:
+                raise ModelError("support", f"{p!r} is not a number (use inf for an open end)") from None
+    return out

@@ -1,0 +1,674 @@
+"""The numbered cells of the workbench page; each only presents a ``Workbench`` and forwards
+the user's actions to it (Panel's "DataStore + Views" structure).
+
+Live plots are HoloViews DynamicMaps fed by ``hv.streams.Pipe``; every update a
+user action or a batch causes is grouped with ``pn.io.hold`` into one message.
+"""
+from __future__ import annotations
+
+import asyncio
+import html
+import io
+import logging
+import math
+import tomllib
+from pathlib import Path
+
+import holoviews as hv
+import numpy as np
+import panel as pn
+from bokeh.models import PrintfTickFormatter
+
+from engine.cli import CAUTION
+from engine.families import FAMILIES
+from engine.scenarios import SCENARIO_DIR
+
+from . import plots
+from .state import FORMULA_KINDS, TOLERANCES, Workbench
+
+log = logging.getLogger("lifedraw.dashboard")
+
+TABLE_CSS = """
+table.ld-table { border-collapse: collapse; font-size: 13px; width: 100%; }
+table.ld-table th { text-align: left; font-weight: 600; color: #333; border-bottom: 2px solid #d0d4da;
+                    padding: 5px 10px 5px 0; white-space: nowrap; }
+table.ld-table td { border-bottom: 1px solid #eceef1; padding: 4px 10px 4px 0; vertical-align: top;
+                    font-variant-numeric: tabular-nums; }
+table.ld-compact { width: auto; }
+.ld-muted { color: #6b7280; }
+"""
+HEAD_CSS = """
+h2 { font-size: 19px; margin: 2px 0 4px 0; color: #1f2933; font-weight: 600; }
+h2 .ld-num { display: inline-block; min-width: 26px; height: 26px; line-height: 26px; border-radius: 13px;
+             background: #1f4e79; color: white; text-align: center; font-size: 14px; margin-right: 10px; }
+p { margin: 0 0 4px 0; color: #4b5563; font-size: 14px; }
+"""
+TEXT_CSS = """
+:host { font-size: 14px; color: #1f2933; }
+h3 { font-size: 16px; margin: 4px 0 6px 0; }
+p { margin: 4px 0; line-height: 1.45; }
+pre { background: #f4f6f8; border: 1px solid #e3e6ea; border-radius: 4px; padding: 8px 10px; font-size: 12.5px;
+      white-space: pre-wrap; margin: 6px 0; }
+.ld-muted { color: #6b7280; }
+.ld-small { font-size: 12.5px; }
+code { background: #f4f6f8; padding: 0 3px; border-radius: 3px; }
+"""
+CELL_STYLES = {"background": "#ffffff", "border": "1px solid #dfe3e8", "border-radius": "8px",
+               "padding": "10px 18px 14px 18px", "box-shadow": "0 1px 2px rgba(0,0,0,0.04)"}
+BATCH_SIZES = {"10,000": 10_000, "20,000": 20_000, "50,000": 50_000, "100,000": 100_000, "200,000": 200_000}
+COMPARE_SIZES = {"50,000": 50_000, "100,000": 100_000, "300,000": 300_000}
+
+
+def _html(text="", css=TEXT_CSS, **kw) -> pn.pane.HTML:
+    return pn.pane.HTML(text, stylesheets=[css, TABLE_CSS], sizing_mode=kw.pop("sizing_mode", "stretch_width"),
+                        margin=kw.pop("margin", (0, 10)), **kw)
+
+
+def _alert() -> pn.pane.Alert:
+    return pn.pane.Alert("", alert_type="danger", visible=False, sizing_mode="stretch_width", margin=(4, 10))
+
+
+def _show(alert: pn.pane.Alert, message: str | None) -> None:
+    """Put a field's message in its alert, one line per row problem."""
+    if message:
+        parts = [html.escape(p) for p in str(message).split("; row ")]
+        text = parts[0] if len(parts) == 1 else "<br>".join([parts[0], *(f"row {p}" for p in parts[1:])])
+        alert.object = text.replace("\n", "<br>")
+    alert.visible = bool(message)
+
+
+def scenario_titles() -> dict[str, str]:
+    """Title -> scenario name, read from the files' title lines only (cheap)."""
+    out = {}
+    for path in sorted(Path(SCENARIO_DIR).glob("*.toml")):
+        try:
+            title = tomllib.loads(path.read_text(encoding="utf-8")).get("title", path.stem)
+        except (OSError, tomllib.TOMLDecodeError):
+            title = f"{path.stem} (unreadable)"
+        out[f"{title}  [{path.stem}]"] = path.stem
+    return out
+
+
+class Cell:
+    """A numbered cell: heading, one sentence, then controls and outputs."""
+
+    number = 0
+    title = ""
+    blurb = ""
+
+    def __init__(self, state: Workbench):
+        self.state = state
+
+    def heading(self) -> pn.pane.HTML:
+        return pn.pane.HTML(f'<h2><span class="ld-num">{self.number}</span>{html.escape(self.title)}</h2>'
+                            f"<p>{self.blurb}</p>", stylesheets=[HEAD_CSS], sizing_mode="stretch_width",
+                            margin=(0, 10))
+
+    def body(self) -> list:
+        raise NotImplementedError
+
+    def panel(self) -> pn.Column:
+        return pn.Column(self.heading(), *self.body(), sizing_mode="stretch_width", styles=CELL_STYLES,
+                         margin=(8, 0), css_classes=[f"ld-cell-{self.number}"], name=self.title)
+
+    def act(self, fn, *args, **kwargs):
+        """Run a user action with all the page updates it causes sent as one message."""
+        try:
+            with pn.io.hold():
+                return fn(*args, **kwargs)
+        except Exception:  # the state guards engine errors; this is the last safety net
+            log.exception("unexpected error in %s", getattr(fn, "__name__", fn))
+            return None
+
+
+# ---- 1. model --------------------------------------------------------------------------------
+
+class ModelCell(Cell):
+    number = 1
+    title = "Model"
+    blurb = ("Pick a scenario, move its parameters, write your own formula or family, "
+             "or upload field data; the sampler refits on every change.")
+
+    def __init__(self, state):
+        super().__init__(state)
+        s = state
+        titles = scenario_titles()
+        if s.scenario_name not in titles.values():
+            titles[s.scenario.title] = s.scenario_name
+        self.picker = pn.widgets.Select(name="Scenario", options=titles, value=s.scenario_name, width=460)
+        self.picker.param.watch(lambda e: self.act(setattr, s, "scenario_name", e.new), "value")
+        self.scenario_error = _alert()
+        self.description = _html()
+        self.sliders = pn.Column(sizing_mode="stretch_width", margin=0)
+        self.slider_widgets: dict[str, pn.widgets.FloatSlider] = {}
+        self.parameters_error = _alert()
+
+        self.kind = pn.widgets.RadioButtonGroup(
+            name="Model written as", options={"family": "family", "density f(t)": "density",
+                                              "hazard h(t)": "hazard", "CDF F(t)": "cdf"},
+            value="family", button_type="default", width=420)
+        self.family = pn.widgets.Select(name="Family", options={f.title: k for k, f in sorted(FAMILIES.items())},
+                                        value="weibull", width=260)
+        self.expr = pn.widgets.TextAreaInput(name="Formula in t", value="", height=64,
+                                             sizing_mode="stretch_width", placeholder="e.g. t**(k - 1)*exp(-(t/s)**p)")
+        self.support = pn.widgets.TextInput(name="Support (from, to)", value="0, inf", width=160)
+        self.params = pn.widgets.TextInput(name="Parameters (name = value, ...)", value="",
+                                           sizing_mode="stretch_width", placeholder="shape = 2.5, scale = 9000")
+        self.apply = pn.widgets.Button(name="Use this model", button_type="primary", width=160)
+        self.apply.on_click(lambda e: self.act(self._apply))
+        self.kind.param.watch(lambda e: self._kind_changed(), "value")
+        self.family.param.watch(lambda e: self._family_changed(), "value")
+        self.model_error = _alert()
+        self.editor_help = _html(
+            '<p class="ld-small ld-muted">A formula is a function of <code>t</code> using + − * / **, '
+            "exp, log, sqrt, the functions the formula language lists, and the parameters you name; a "
+            "density need not be normalised. Each parameter gets a slider around its value.</p>")
+
+        self.upload = pn.widgets.FileInput(accept=".csv,text/csv", multiple=False, width=300)
+        self.upload.param.watch(lambda e: self.act(self._uploaded), "value")
+        self.upload_error = _alert()
+        self.upload_help = _html(
+            '<p class="ld-small ld-muted"><b>Failure times</b>: a header row with <code>time</code> and '
+            "<code>suspended</code> (flags 1/0, true/false, yes/no or F/S; without the column every row is a "
+            "failure). <b>Binned counts</b>: <code>lower</code>, <code>upper</code>, <code>count</code>, one "
+            "contiguous bin per row. Problems are listed by line number.</p>")
+        self._source = None
+        s.param.watch(lambda e: self.refresh(), "version")
+        s.param.watch(lambda e: self.show_errors(), "errors")
+        self.refresh()
+        self._kind_changed()
+
+    def body(self):
+        editor = pn.Column(
+            pn.Row(self.kind, self.family, self.support, margin=0),
+            self.expr, self.params, pn.Row(self.apply, margin=0), self.editor_help, self.model_error,
+            sizing_mode="stretch_width", margin=0)
+        return [
+            pn.Row(self.picker, margin=(0, 0)), self.scenario_error,
+            self.description,
+            pn.pane.HTML("<h3>Parameters</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+            self.sliders, self.parameters_error,
+            pn.Row(
+                pn.Column(pn.pane.HTML("<h3>Edit the model</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+                          editor, sizing_mode="stretch_width"),
+                pn.Column(pn.pane.HTML("<h3>Field data (CSV)</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+                          self.upload, self.upload_help, self.upload_error, width=380),
+                sizing_mode="stretch_width"),
+        ]
+
+    # -- presenting --
+    def refresh(self):
+        s = self.state
+        sc = s.scenario
+        story = html.escape(sc.story).replace("\n\n", "</p><p>").replace("\n", " ")
+        self.description.object = (
+            f"<h3>{html.escape(sc.title)}</h3><p>{story}</p>"
+            f"<pre>{html.escape(s.target.describe())}</pre>"
+            f'<p class="ld-small ld-muted">Ages in {html.escape(sc.time_unit)}. Mission times: '
+            f'{", ".join(plots.fmt(t) for t in sc.mission_times) or "none"}.</p>')
+        source = (sc.name, tuple(sc.parameters))
+        if source != self._source:
+            self._source = source
+            self._build_sliders()
+            self._prefill_editor()
+            if self.picker.value != s.scenario_name and s.scenario_name in self.picker.options.values():
+                self.picker.value = s.scenario_name
+            elif s.scenario_name not in self.picker.options.values():
+                options = dict(self.picker.options)
+                options[sc.title] = s.scenario_name
+                self.picker.options = options
+                self.picker.value = s.scenario_name
+
+    def _build_sliders(self):
+        sc = self.state.scenario
+        widgets = {}
+        for name, p in sc.parameters.items():
+            fmt = "%.3g" if (abs(p.high) < 0.01 or abs(p.high) >= 1e5 or p.step < 1e-3) else "%.4g"
+            w = pn.widgets.FloatSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
+                                       format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
+                                       css_classes=[f"ld-slider-{name}"])
+            w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new), "value_throttled")
+            widgets[name] = w
+        self.slider_widgets = widgets
+        if widgets:
+            self.sliders[:] = [pn.FlexBox(*widgets.values(), sizing_mode="stretch_width", margin=0)]
+        else:
+            self.sliders[:] = [_html('<p class="ld-muted ld-small">This model has no parameters to vary '
+                                     "(field data is used as recorded).</p>")]
+
+    def _prefill_editor(self):
+        s = self.state
+        model = s.scenario.model
+        kind = model.get("kind")
+        if kind in FORMULA_KINDS:
+            self.kind.value = kind
+            self.expr.value = str(model.get("expr", ""))
+            lo, hi = model.get("support", [0, "inf"])
+            self.support.value = f"{lo}, {hi}"
+            self.params.value = ", ".join(f"{k} = {v:g}" for k, v in s.values.items())
+        elif kind == "family":
+            self.kind.value = "family"
+            self.family.value = s.target.fam.name
+            self.params.value = ", ".join(f"{k} = {v:g}" for k, v in s.target.params.items()
+                                          if not (k == "location" and v == 0))
+        else:
+            self.kind.value = "family"
+            self.family.value = "weibull"
+            self.params.value = f"shape = 1.5, scale = {float(s.target.quantile(0.632)):.4g}"
+
+    def _kind_changed(self):
+        family = self.kind.value == "family"
+        self.family.visible = family
+        self.expr.visible = not family
+        self.support.visible = not family
+
+    def _family_changed(self):
+        fam = FAMILIES[self.family.value]
+        if self.state.scenario.model.get("kind") == "family" and self.state.target.fam.name == fam.name:
+            return
+        scale = float(self.state.target.quantile(0.5))
+        guess = {"shape": 1.5, "scale": scale, "mu": math.log(max(scale, 1e-300)), "sigma": 0.5,
+                 "mean": scale, "sd": scale / 4, "location": 0.0}
+        self.params.value = ", ".join(f"{p.name} = {guess.get(p.name, 1.0):.4g}" for p in fam.params
+                                      if p.default is None)
+
+    def show_errors(self):
+        e = self.state.errors
+        _show(self.scenario_error, e.get("scenario"))
+        _show(self.parameters_error, e.get("parameters"))
+        _show(self.model_error, e.get("model"))
+        _show(self.upload_error, e.get("upload"))
+
+    # -- acting --
+    def _apply(self):
+        if self.kind.value == "family":
+            self.state.apply_family(self.family.value, self.params.value)
+        else:
+            self.state.apply_formula(self.kind.value, self.expr.value, self.support.value, self.params.value)
+
+    def _uploaded(self):
+        if self.upload.value is None:
+            return
+        self.state.load_field_data(self.upload.value, self.upload.filename or "field-data.csv")
+
+
+# ---- 2. generator ----------------------------------------------------------------------------
+
+class GeneratorCell(Cell):
+    number = 2
+    title = "Generator"
+    blurb = ("Choose the sampling method (auto picks one and says why), its tolerance, the batch size and "
+             "the seed; start, pause or reset the live stream.")
+
+    def __init__(self, state):
+        super().__init__(state)
+        s = state
+        self.method = pn.widgets.Select(name="Method", options=list(s.param.method.objects), value=s.method,
+                                        width=200)
+        self.tolerance = pn.widgets.Select(name="u-error tolerance", options={f"{t:g}": t for t in TOLERANCES},
+                                           value=s.tolerance, width=140)
+        batch_options = dict(BATCH_SIZES)
+        if s.batch_size not in batch_options.values():
+            batch_options[f"{s.batch_size:,}"] = s.batch_size
+        self.batch = pn.widgets.Select(name="Batch size", options=batch_options, value=s.batch_size, width=120)
+        self.seed = pn.widgets.IntInput(name="Seed", value=int(s.seed), start=0, width=140)
+        self.stop_at = pn.widgets.IntInput(name="Stop after (draws)", value=int(s.stop_at), start=1_000,
+                                           end=50_000_000, step=10_000, width=160)
+        self.start = pn.widgets.Button(name="▶ Start", button_type="primary", width=100)
+        self.pause = pn.widgets.Button(name="❚❚ Pause", button_type="default", width=100)
+        self.reset = pn.widgets.Button(name="↺ Reset", button_type="default", width=100)
+        self.status = _html()
+        self.method_error = _alert()
+        self.run_error = _alert()
+        self.method.param.watch(lambda e: self.act(setattr, s, "method", e.new), "value")
+        self.tolerance.param.watch(lambda e: self.act(setattr, s, "tolerance", e.new), "value")
+        self.batch.param.watch(lambda e: self.act(setattr, s, "batch_size", int(e.new)), "value")
+        self.seed.param.watch(lambda e: self.act(self._set_seed, e.new), "value")
+        self.stop_at.param.watch(lambda e: self.act(self._set_stop, e.new), "value")
+        self.start.on_click(lambda e: self.act(s.start))
+        self.pause.on_click(lambda e: self.act(s.pause))
+        self.reset.on_click(lambda e: self.act(s.reset))
+        s.param.watch(lambda e: self.sync(), ["version", "running", "method", "tolerance", "seed", "stop_at"])
+        s.param.watch(lambda e: self.refresh_status(), "batch")
+        s.param.watch(lambda e: self.show_errors(), "errors")
+        self.sync()
+
+    def body(self):
+        return [pn.Row(self.method, self.tolerance, self.batch, self.seed, self.stop_at, margin=0),
+                self.method_error,
+                pn.Row(self.start, self.pause, self.reset, margin=(4, 0)),
+                self.status, self.run_error]
+
+    def _set_seed(self, value):
+        try:
+            self.state.seed = int(value)
+        except (TypeError, ValueError):
+            self.state._set_error("run", f"seed: must be a whole number >= 0, got {value!r}")
+
+    def _set_stop(self, value):
+        try:
+            self.state.stop_at = int(value)
+            self.state._set_error("run", None)
+        except (TypeError, ValueError):
+            self.state._set_error("run", f"stop after: must be a whole number from 1,000 to 50,000,000, "
+                                         f"got {value!r}")
+
+    def sync(self):
+        s = self.state
+        for w, v in ((self.method, s.method), (self.tolerance, s.tolerance), (self.seed, int(s.seed)),
+                     (self.stop_at, int(s.stop_at))):
+            if w.value != v:
+                w.value = v
+        self.refresh_status()
+
+    def refresh_status(self):
+        s = self.state
+        st = s.sampler.stats
+        variant = f" ({st['variant']})" if st.get("variant") else ""
+        state_word = ("streaming" if s.running else ("finished" if s.done else ("paused" if s.n else "ready")))
+        self.start.disabled = s.running
+        self.pause.disabled = not s.running
+        self.status.object = (
+            f"<p><b>{html.escape(s.sampler.method)}{html.escape(variant)}</b>: {html.escape(s.sampler.reason)}."
+            f"</p><p class=\"ld-small ld-muted\">{html.escape(type(s.sampler).reference)}</p>"
+            f'<p><span class="ld-run-state">{state_word}</span> · {s.n:,} of {s.stop_at:,} draws · '
+            f"batches of {s.batch_size:,} · set-up {1e3 * st['setup_seconds']:.1f} ms · "
+            f"last refit {s.last_refit_ms:.0f} ms</p>")
+
+    def show_errors(self):
+        _show(self.method_error, self.state.errors.get("method"))
+        _show(self.run_error, self.state.errors.get("run"))
+
+
+# ---- 3. live check ---------------------------------------------------------------------------
+
+class LiveCheckCell(Cell):
+    number = 3
+    title = "Live check"
+    blurb = ("The draws so far against the model, batch by batch: histogram, QQ and PP plots, the running "
+             "Kolmogorov-Smirnov p-value and acceptance rate, and the sampler's own counters.")
+
+    def __init__(self, state):
+        super().__init__(state)
+        s = state
+        self.log = pn.widgets.Checkbox(name="log density axis (shows the far tail)", value=s.log_scale)
+        self.log.param.watch(lambda e: self.act(self._set_log, e.new), "value")
+        self.pipes = {k: hv.streams.Pipe(data=None) for k in ("hist", "qq", "pp", "trace")}
+        self._push_all()
+        self.hist = hv.DynamicMap(lambda data: plots.density_histogram(data), streams=[self.pipes["hist"]])
+        self.qq = hv.DynamicMap(lambda data: plots.qq_plot(data), streams=[self.pipes["qq"]])
+        self.pp = hv.DynamicMap(lambda data: plots.pp_plot(data), streams=[self.pipes["pp"]])
+        self.ks_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "ks_p"), streams=[self.pipes["trace"]])
+        self.acc_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "acceptance"),
+                                       streams=[self.pipes["trace"]])
+        for dm in (self.hist, self.qq, self.pp, self.ks_trace, self.acc_trace):
+            dm.opts(framewise=True, axiswise=True)
+        self.counters = _html(margin=(0, 10), sizing_mode="fixed", width=330)
+        self.summary = _html()
+        self.marker = _html(css_classes=["ld-marker"])
+        s.param.watch(lambda e: self.refresh(), "batch")
+        self.refresh(push=False)
+
+    def body(self):
+        pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
+        return [pn.Row(self.log, self.marker, margin=0),
+                pane(self.hist, 330),
+                pn.Row(pane(self.qq, 290), pane(self.pp, 290), sizing_mode="stretch_width", margin=0),
+                pn.Row(pane(self.ks_trace, 250), pane(self.acc_trace, 250), sizing_mode="stretch_width",
+                       margin=0),
+                pn.Row(pn.Column(pn.pane.HTML("<h3>Sampler counters</h3>", stylesheets=[TEXT_CSS],
+                                              margin=(0, 10)), self.counters),
+                       pn.Column(pn.pane.HTML("<h3>What the check says</h3>", stylesheets=[TEXT_CSS],
+                                              margin=(0, 10)), self.summary, sizing_mode="stretch_width"),
+                       sizing_mode="stretch_width", margin=0)]
+
+    def _set_log(self, value):
+        self.state.log_scale = bool(value)
+        self.pipes["hist"].send(self.state.histogram_data())
+
+    def _push_all(self):
+        s = self.state
+        self.pipes["hist"].send(s.histogram_data())
+        self.pipes["qq"].send(s.qq_data())
+        self.pipes["pp"].send(s.pp_data())
+        self.pipes["trace"].send({k: list(v) for k, v in s.trace.items()})
+
+    def refresh(self, push=True):
+        s = self.state
+        if push:
+            self._push_all()
+        self.counters.object = plots.counters_table(s.counters())
+        d, p = s.ks()
+        n_res = int(s.acc.x.size)
+        if s.n:
+            verdict = ("no evidence against the model at the 0.001 level" if p >= 1e-3 else
+                       "the draws differ from the model (p < 0.001)")
+            sub = ("all draws" if n_res == s.n else f"a uniform reservoir of {n_res:,} of the {s.n:,} draws")
+            self.summary.object = (
+                f"<p>Kolmogorov-Smirnov on {sub}: D = {d:.3g}, p = {p:.3g}: {verdict}.</p>"
+                '<p class="ld-small ld-muted">Under the model the p-value wanders uniformly between 0 and 1 as '
+                "draws accumulate; a sampler error drives it to 0. The model cdf is read from a 1,025-node "
+                "table of exact values (interpolation error far below the test's resolution).</p>")
+        else:
+            self.summary.object = '<p class="ld-muted">No draws yet.</p>'
+        self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}">'
+                              f"model v{s.version} · batch {s.batch} · {s.n:,} draws</span>")
+
+
+# ---- 4. geometry -----------------------------------------------------------------------------
+
+class GeometryCell(Cell):
+    number = 4
+    title = "Method geometry"
+    blurb = "How the chosen method turns uniform numbers into lifetimes, drawn from the sampler's own tables."
+
+    def __init__(self, state):
+        super().__init__(state)
+        self.caption = _html()
+        self.plots = pn.FlexBox(sizing_mode="stretch_width", margin=0)
+        self._shown = None
+
+    def body(self):
+        return [self.caption, self.plots]
+
+    def refresh(self):
+        s = self.state
+        key = (s.version, id(s.sampler))
+        if key == self._shown:
+            return
+        self._shown = key
+        geom = s.geometry()
+        fallback = None
+        if s.acc is not None and s.acc.x.size and not s.target.atoms.size:
+            x = np.linspace(s.acc.edges[0], s.view_right, 400)
+            fallback = {"x": x, "pdf": s.target.pdf(x), "draws": s.acc.x[:50_000]}
+        elements = plots.geometry_plots(geom, s.scenario.time_unit, fallback=fallback)
+        self.caption.object = (f'<p><b class="ld-geometry-method">{html.escape(s.sampler.method)}</b> — '
+                               f"{html.escape(type(s.sampler).reference)}</p>")
+        wide = len(elements) == 1
+        self.plots[:] = [pn.pane.HoloViews(e, sizing_mode="stretch_width" if wide else "fixed",
+                                           width=None if wide else 520, height=e.opts.get().kwargs.get("height", 300)
+                                           + 10, margin=(0, 6))
+                         for e in elements]
+
+
+# ---- 5. comparison ---------------------------------------------------------------------------
+
+class ComparisonCell(Cell):
+    number = 5
+    title = "Method comparison"
+    blurb = ("Every method that can serve this model, measured now on this machine: throughput, set-up "
+             "time, costs per draw and accuracy. It takes a second or two.")
+
+    def __init__(self, state):
+        super().__init__(state)
+        self.size = pn.widgets.Select(name="Draws per method", options=COMPARE_SIZES, value=100_000, width=150)
+        self.run = pn.widgets.Button(name="Measure all methods", button_type="primary", width=180,
+                                     margin=(22, 10, 0, 10))
+        self.run.on_click(self._run)
+        self.note = _html()
+        self.error = _alert()
+        self.table = _html()
+        self.bars = pn.FlexBox(sizing_mode="stretch_width", margin=0)
+        state.param.watch(lambda e: self.refresh(), "comparison")
+        state.param.watch(lambda e: _show(self.error, state.errors.get("comparison")), "errors")
+        self.refresh()
+
+    def body(self):
+        return [pn.Row(self.size, self.run, margin=0), self.error, self.note, self.table, self.bars]
+
+    async def _run(self, event):
+        s = self.state
+        was_running = s.running
+        self.run.loading = True
+        self.note.object = '<p class="ld-muted">Measuring…</p>'
+        s.pause()   # timings of one process alone, not sharing the core with the live stream
+        try:
+            n = int(self.size.value)
+            target, seed, tol = s.target, int(s.seed), float(s.tolerance)
+            loop = asyncio.get_running_loop()
+            result = await loop.run_in_executor(None, _measure, target, n, seed, tol)
+            with pn.io.hold():
+                s.set_comparison(result, n)
+        finally:
+            self.run.loading = False
+            if was_running and not s.done:
+                s.running = True
+
+    def refresh(self):
+        s = self.state
+        rows = [r.to_dict() for r in s.comparison]
+        if not rows:
+            self.note.object = ('<p class="ld-muted">Not measured yet for this model: press '
+                                "<b>Measure all methods</b>.</p>")
+            self.table.object = ""
+            self.bars[:] = []
+            return
+        self.note.object = f'<p class="ld-small ld-muted">{html.escape(s.comparison_note)}.</p>'
+        self.table.object = plots.comparison_table(rows)
+        self.bars[:] = [pn.pane.HoloViews(b, width=330, height=230, margin=(0, 6))
+                        for b in plots.comparison_bars(rows, width=320, height=220)]
+
+
+def _measure(target, n, seed, tol):
+    """Run in a worker thread: measure, and hand back rows or the exception."""
+    from engine.compare import compare_methods
+    try:
+        return compare_methods(target, n=n, rng=seed, tolerance=tol)
+    except Exception as err:  # reported on the page by the state's guard
+        return err
+
+
+# ---- 6. life figures -------------------------------------------------------------------------
+
+class LifeCell(Cell):
+    number = 6
+    title = "Life figures"
+    blurb = ("MTTF, B-lives and reliability at the mission times, estimated from the draws with confidence "
+             "intervals, beside the model's exact values.")
+
+    def __init__(self, state):
+        super().__init__(state)
+        self.table = _html()
+        self.note = _html()
+        self._shown = None
+
+    def body(self):
+        return [self.table, self.note]
+
+    def refresh(self):
+        s = self.state
+        key = (s.version, s.batch)
+        if key == self._shown:
+            return
+        self._shown = key
+        figs = s.life_figures()
+        if figs is None:
+            return
+        self.table.object = plots.life_table(figs, s.scenario.time_unit)
+        if figs["n"]:
+            src = ("all draws" if figs["n"] == figs["total"] else
+                   f"a uniform reservoir of {figs['n']:,} of the {figs['total']:,} draws")
+            self.note.object = (f'<p class="ld-small ld-muted">From {src}. MTTF interval: normal theory; '
+                                "B-lives: distribution-free order-statistic intervals; R(t): Wilson score "
+                                "intervals. A ✓ says the model's exact value lies inside the interval, as it "
+                                "should about 95 times in 100.</p>")
+        else:
+            self.note.object = '<p class="ld-muted">No draws yet: the model\'s exact values are shown.</p>'
+
+
+# ---- 7. report -------------------------------------------------------------------------------
+
+class ReportCell(Cell):
+    number = 7
+    title = "Report"
+    blurb = ("Save this snapshot as a self-contained HTML report (it opens offline), or save the current "
+             "settings as a scenario file.")
+
+    def __init__(self, state, report_dir: Path):
+        super().__init__(state)
+        self.report_dir = Path(report_dir)
+        self.write = pn.widgets.Button(name="Write HTML report", button_type="primary", width=180)
+        self.write.on_click(self._write)
+        self.path = _html(css_classes=["ld-report-path"])
+        self.error = _alert()
+        self.download = pn.widgets.FileDownload(label="Download the report", visible=False, width=220,
+                                                button_type="success")
+        self.toml = pn.widgets.FileDownload(callback=self._toml, filename=f"{state.scenario.name}.toml",
+                                            label="Download scenario file (.toml)", width=260,
+                                            button_type="default")
+        state.param.watch(lambda e: self._renamed(), "version")
+        state.param.watch(lambda e: _show(self.error, state.errors.get("report")), "errors")
+
+    def body(self):
+        return [pn.Row(self.write, self.download, self.toml, margin=0), self.path, self.error]
+
+    def _renamed(self):
+        self.toml.filename = f"{self.state.scenario.name}.toml"
+
+    def _toml(self):
+        return io.StringIO(self.state.scenario_toml())
+
+    async def _write(self, event):
+        from .report import default_report_path, write_report
+        s = self.state
+        was_running = s.running
+        s.pause()
+        self.write.loading = True
+        self.path.object = '<p class="ld-muted">Writing the report (fit, draws, checks and a method '
+        self.path.object += "comparison take a few seconds)…</p>"
+        try:
+            scenario = s.current_scenario()
+            path = default_report_path(self.report_dir, scenario)
+            rows = list(s.comparison) or None
+            loop = asyncio.get_running_loop()
+            result = await loop.run_in_executor(None, _write_report, write_report, scenario, path, rows)
+            with pn.io.hold():
+                if isinstance(result, Exception):
+                    s.report_failed(result)
+                    self.path.object = ""
+                else:
+                    s._set_error("report", None)
+                    self.path.object = (f'<p>Written: <code class="ld-path">{html.escape(str(result))}</code> '
+                                        f"({result.stat().st_size / 1e6:.1f} MB)</p>")
+                    self.download.file = str(result)
+                    self.download.filename = result.name
+                    self.download.visible = True
+        finally:
+            self.write.loading = False
+            if was_running and not s.done:
+                s.running = True
+
+
+def _write_report(write_report, scenario, path, rows):
+    try:
+        return write_report(scenario, path, comparison=rows)
+    except Exception as err:
+        return err
+
+
+# ---- the page --------------------------------------------------------------------------------
+
+def caution_banner() -> pn.pane.Alert:
+    return pn.pane.Alert(f"<b>Caution.</b> {html.escape(CAUTION)}", alert_type="warning",
+                         sizing_mode="stretch_width", margin=(6, 0), css_classes=["ld-caution"])

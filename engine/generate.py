@@ -1,0 +1,654 @@
+"""Generation at scale: n lifetimes as a lazy Dask array of chunks, chunk i drawn from its own
+stream, on local threads or a Dask cluster, optionally written as resumable .npy shards.
+
+Streams follow numpy's parallel-generation model (NEP 19; numpy.random "Parallel random
+number generation"): chunk i uses SeedSequence(seed, spawn_key=(i,)), so the numbers depend on
+(sampler, seed, chunk, n) only, never on the scheduler, the worker count or the order of work.
+"""
+from __future__ import annotations
+
+import contextlib
+import copy
+import hashlib
+import io
+import json
+import math
+import os
+import pickle
+import sys
+import tempfile
+import threading
+import time
+import uuid
+from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any, Callable
+
+import numpy as np
+
+from .errors import ModelError, memory_limit_values
+from .methods.base import Sampler
+from .target import Target
+
+DEFAULT_CHUNK = 10**7
+MANIFEST = "manifest.json"
+SHARD_FORMAT = "lifedraw-shards"
+SHARD_VERSION = 1
+# Beyond this many chunks the task graph itself becomes the bottleneck; bigger chunks are the answer.
+MAX_CHUNKS = 1_000_000
+# Saved-sampler fields that vary between two set-ups of the same model and do not change a draw.
+_VOLATILE_META = {"setup_seconds", "reason"}
+
+Progress = Callable[[int, int, int], None]
+
+
+# ---- streams ----------------------------------------------------------------------------------
+
+def chunk_rng(seed: int, index: int) -> np.random.Generator:
+    """The generator of chunk ``index``: default_rng(SeedSequence(seed, spawn_key=(index,)))."""
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(index,)))
+
+
+def chunk_sizes(n: int, chunk: int) -> tuple[int, ...]:
+    full, last = divmod(n, chunk)
+    return (chunk,) * full + ((last,) if last else ())
+
+
+# ---- samplers as bytes (pickle cannot carry formula targets' compiled functions) --------------
+
+def sampler_to_bytes(sampler: Sampler) -> bytes:
+    """The sampler's saved file (engine.storage format) as bytes."""
+    from .storage import save_sampler
+    with tempfile.TemporaryDirectory(prefix="lifedraw-") as tmp:
+        path = Path(tmp) / "sampler.npz"
+        save_sampler(sampler, path)
+        return path.read_bytes()
+
+
+def sampler_from_bytes(blob: bytes) -> Sampler:
+    """Rebuild a sampler from ``sampler_to_bytes`` output (no set-up is redone)."""
+    from .storage import load_sampler
+    with tempfile.TemporaryDirectory(prefix="lifedraw-") as tmp:
+        path = Path(tmp) / "sampler.npz"
+        path.write_bytes(blob)
+        return load_sampler(path)
+
+
+def sampler_fingerprint(obj) -> str:
+    """sha256 of what decides the draws: the saved sampler's metadata and tables.
+
+    Timing and the "why this method" sentence are left out, so two set-ups of the same
+    model give the same fingerprint. A system's fingerprint combines its structure and
+    its parts' fingerprints.
+    """
+    if isinstance(obj, Sampler):
+        return _blob_fingerprint(sampler_to_bytes(obj))
+    fingerprint = getattr(obj, "fingerprint", None)
+    if callable(fingerprint):
+        return fingerprint()
+    raise ModelError("sampler", f"must be a sampler or a system, got {type(obj).__name__}")
+
+
+def _blob_fingerprint(blob: bytes) -> str:
+    from .storage import META_KEY
+    digest = hashlib.sha256()
+    with np.load(io.BytesIO(blob), allow_pickle=False) as archive:
+        meta = json.loads(bytes(archive[META_KEY]).decode("utf-8"))
+        digest.update(json.dumps(_without_volatile(meta), sort_keys=True).encode("utf-8"))
+        for name in sorted(archive.files):
+            if name == META_KEY:
+                continue
+            table = np.ascontiguousarray(archive[name])
+            digest.update(f"{name}|{table.dtype.str}|{table.shape}|".encode("utf-8"))
+            digest.update(table.tobytes())
+    return digest.hexdigest()
+
+
+def _without_volatile(value):
+    if isinstance(value, dict):
+        return {k: _without_volatile(v) for k, v in value.items() if k not in _VOLATILE_META}
+    if isinstance(value, list):
+        return [_without_volatile(v) for v in value]
+    return value
+
+
+class _Shipped:
+    """A sampler or system packed once as bytes, for every chunk task to reference.
+
+    Each chunk draws from a fresh copy of the unpacked object (unpacked once per
+    process), so a chunk's numbers never depend on what ran before it in that process.
+    """
+
+    def __init__(self, payload: bytes, kind: str, fingerprint: str):
+        self.payload, self.kind, self.fingerprint = payload, kind, fingerprint
+        self._lock = threading.Lock()
+        self._base = None
+
+    @classmethod
+    def of(cls, obj) -> "_Shipped":
+        if isinstance(obj, Sampler):
+            blob = sampler_to_bytes(obj)
+            return cls(blob, "sampler", _blob_fingerprint(blob))
+        # Systems pickle through their components' saved files (engine.systems).
+        return cls(pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL), "system", obj.fingerprint())
+
+    def fresh(self):
+        with self._lock:
+            if self._base is None:
+                self._base = (sampler_from_bytes(self.payload) if self.kind == "sampler"
+                              else pickle.loads(self.payload))
+        return copy.deepcopy(self._base)
+
+    def __reduce__(self):
+        return (_Shipped, (self.payload, self.kind, self.fingerprint))
+
+    def __dask_tokenize__(self):
+        return ("lifedraw-sampler", self.fingerprint)
+
+
+def _draw_chunk(shipped: _Shipped, seed: int, index: int, size: int) -> np.ndarray:
+    return shipped.fresh().sample(size, chunk_rng(seed, index))
+
+
+# ---- validation ---------------------------------------------------------------------------------
+
+def _whole(field: str, value, minimum: int) -> int:
+    if isinstance(value, bool):
+        raise ModelError(field, f"must be a whole number, got {value!r}")
+    if isinstance(value, (int, np.integer)):
+        number = int(value)
+    else:
+        try:
+            as_float = float(str(value).replace("_", "")) if isinstance(value, str) else float(value)
+        except (TypeError, ValueError):
+            raise ModelError(field, f"must be a whole number, got {value!r}") from None
+        if not math.isfinite(as_float) or as_float != math.floor(as_float):
+            raise ModelError(field, f"must be a whole number, got {value!r}")
+        number = int(as_float)
+    if number < minimum:
+        raise ModelError(field, f"must be >= {minimum}, got {number}")
+    return number
+
+
+def _as_drawable(sampler):
+    from .systems import System
+    if isinstance(sampler, Target):
+        from .sampling import fit
+        return fit(sampler, "auto")
+    if isinstance(sampler, (Sampler, System)):
+        return sampler
+    raise ModelError("sampler", f"must be a sampler (engine.fit), a system or a Target, got {type(sampler).__name__}")
+
+
+def _check_client(client):
+    if client is None:
+        return None
+    if not (hasattr(client, "submit") and hasattr(client, "scatter") and hasattr(client, "scheduler_info")):
+        raise ModelError("client", f"must be a dask.distributed.Client or None, got {type(client).__name__}")
+    try:
+        workers = client.scheduler_info(n_workers=-1)["workers"]
+    except Exception as err:  # a closed or lost client: say so rather than hang
+        raise ModelError("client", f"cannot reach its scheduler ({err})") from None
+    if not workers:
+        raise ModelError("client", "its cluster has no workers; start some or use --workers K")
+    return workers
+
+
+def _check_chunk(chunk: int, n: int, threads: int, workers: dict | None) -> None:
+    """A chunk (and the temporaries of drawing it) must fit, times the chunks in flight at once."""
+    per = min(chunk, n)
+    limit = memory_limit_values() // max(threads, 1)
+    if per > limit:
+        raise ModelError("chunk", f"{per:.3g} draws per chunk with {threads} chunks in flight need "
+                                  f"{per * 8 * 3 * threads / 2**30:.1f} GiB, more than fits in memory here; "
+                                  f"use a chunk of at most {limit:.3g}")
+    for address, info in (workers or {}).items():
+        mem, nthreads = info.get("memory_limit") or 0, max(int(info.get("nthreads") or 1), 1)
+        if mem and per * 8 * 3 * nthreads > mem:
+            raise ModelError("chunk", f"{per:.3g} draws per chunk need {per * 8 * 3 * nthreads / 2**30:.1f} GiB "
+                                      f"on worker {address}, above its memory limit of {mem / 2**30:.1f} GiB; "
+                                      f"use a chunk of at most {mem // (8 * 3 * nthreads):.3g}")
+
+
+def _local_threads() -> int:
+    import dask
+    return int(dask.config.get("num_workers", None) or os.cpu_count() or 1)
+
+
+# ---- the public verbs -------------------------------------------------------------------------
+
+def generate(sampler, n, chunk=DEFAULT_CHUNK, seed=0, client=None, out=None,
+             progress: Progress | None = None):
+    """``n`` lifetimes as a lazy dask array; chunk i = sampler.sample(size_i, chunk_rng(seed, i)).
+
+    - ``sampler``: a sampler (``engine.fit``), a system (``engine.series`` ...) or a Target
+      (fitted with "auto"). It is packed once (its saved file) and every chunk task
+      references that one packed copy.
+    - ``client``: a ``dask.distributed.Client``; the packed sampler is scattered to every
+      worker and the array is bound to that cluster. ``None``: the array runs on whatever
+      scheduler computes it (local threads unless a distributed client is the default).
+    - ``out``: a folder. The chunks are written there now, one ``draws-<i>.npy`` per chunk
+      plus ``manifest.json``, with at most a few chunks in flight; a rerun with the same
+      settings skips finished shards, and a folder from any other run is refused. The
+      returned array then reads the shards.
+    - ``progress(done_chunks, total_chunks, draws_this_run)`` is called as shards finish.
+    """
+    import dask
+    import dask.array as da
+    from dask.highlevelgraph import HighLevelGraph
+
+    n = _whole("n", n, 1)
+    chunk = _whole("chunk", chunk, 1)
+    seed = _whole("seed", seed, 0)
+    sizes = chunk_sizes(n, chunk)
+    if len(sizes) > MAX_CHUNKS:
+        raise ModelError("chunk", f"{n:.3g} draws in chunks of {chunk:.3g} make {len(sizes):.3g} chunks; "
+                                  f"use chunks of at least {math.ceil(n / MAX_CHUNKS):.3g}")
+    workers = _check_client(client)
+    # Locally every thread holds a chunk; on a cluster each worker's own limit is checked.
+    _check_chunk(chunk, n, _local_threads() if client is None else 1, workers)
+    drawable = _as_drawable(sampler)
+    shipped = _Shipped.of(drawable)
+
+    if out is not None:
+        return _write_shards(drawable, shipped, n, chunk, seed, sizes, Path(out), client, progress)
+
+    if client is not None:
+        source, dependencies = client.scatter(shipped, broadcast=True, hash=False), []
+    else:
+        node = dask.delayed(shipped, pure=True)
+        source, dependencies = node.key, [node]
+    name = "lifedraw-draws-" + dask.base.tokenize(shipped.fingerprint, n, chunk, seed)
+    graph = {(name, i): (_draw_chunk, source, seed, i, size) for i, size in enumerate(sizes)}
+    return da.Array(HighLevelGraph.from_collections(name, graph, dependencies=dependencies),
+                    name, chunks=(sizes,), dtype=np.float64)
+
+
+def open_shards(out):
+    """The draws of a finished ``out`` folder as a lazy dask array (one chunk per shard)."""
+    import dask
+    import dask.array as da
+
+    folder = Path(out)
+    manifest = _read_manifest(folder)
+    if manifest is None:
+        raise ModelError("out", f"{folder} has no {MANIFEST}; it is not a lifedraw shard folder")
+    sizes = chunk_sizes(int(manifest["n"]), int(manifest["chunk"]))
+    missing = [i for i, size in enumerate(sizes) if not _shard_ok(_shard_path(folder, i, len(sizes)), size)]
+    if missing:
+        raise ModelError("out", f"{len(missing)} of {len(sizes)} shards in {folder} are missing or incomplete "
+                                f"(first: {_shard_path(folder, missing[0], len(sizes)).name}); run generate "
+                                "again with the same settings to finish them")
+    name = "lifedraw-shards-" + dask.base.tokenize(manifest["sampler"]["fingerprint"], manifest["n"],
+                                                   manifest["chunk"], manifest["seed"], str(folder.resolve()))
+    graph = {(name, i): (_load_shard, str(_shard_path(folder, i, len(sizes)))) for i in range(len(sizes))}
+    return da.Array(graph, name, chunks=(sizes,), dtype=np.float64)
+
+
+def read_manifest(out) -> dict:
+    """The manifest of a shard folder (seed, chunking, n, sampler fingerprint, model, versions)."""
+    manifest = _read_manifest(Path(out))
+    if manifest is None:
+        raise ModelError("out", f"{out} has no {MANIFEST}")
+    return manifest
+
+
+# ---- shards -------------------------------------------------------------------------------------
+
+def _index_width(total: int) -> int:
+    return max(6, len(str(total - 1)))
+
+
+def _shard_path(folder: Path, index: int, total: int) -> Path:
+    return folder / f"draws-{index:0{_index_width(total)}d}.npy"
+
+
+def _shard_ok(path: Path, size: int) -> bool:
+    """A finished shard: a complete float64 .npy of the right length (the header and file size agree)."""
+    try:
+        array = np.load(path, mmap_mode="r", allow_pickle=False)
+    except (OSError, ValueError):
+        return False
+    ok = array.shape == (size,) and array.dtype == np.float64
+    del array
+    return ok
+
+
+def _load_shard(path: str) -> np.ndarray:
+    return np.load(path, allow_pickle=False)
+
+
+def _write_shard(shipped: _Shipped, seed: int, index: int, size: int, path: str) -> dict:
+    """Draw chunk ``index`` and write it under a temporary name, then rename it into place:
+    a shard under its final name is always complete."""
+    start = time.perf_counter()
+    draws = _draw_chunk(shipped, seed, index, size)
+    final = Path(path)
+    temp = final.with_name(f".{final.name}.{uuid.uuid4().hex}.tmp")
+    try:
+        with open(temp, "wb") as fh:
+            np.save(fh, draws, allow_pickle=False)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(temp, final)
+    except OSError as err:
+        with contextlib.suppress(OSError):
+            temp.unlink()
+        raise ModelError("out", f"could not write {final}: {err}") from None
+    return {"index": index, "size": size, "seconds": time.perf_counter() - start}
+
+
+def _versions() -> dict:
+    from importlib import metadata
+    out = {"python": sys.version.split()[0]}
+    for package in ("lifedraw", "numpy", "dask", "distributed", "scipy"):
+        try:
+            out[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            out[package] = "not installed"
+    return out
+
+
+def _manifest(drawable, shipped: _Shipped, n: int, chunk: int, seed: int, sizes) -> dict:
+    from .storage import _jsonable
+    if isinstance(drawable, Sampler):
+        model = {"method": drawable.method, "class": type(drawable).__name__,
+                 "model": drawable.target.spec(), "description": drawable.target.describe()}
+    else:
+        model = {"method": "system", "class": type(drawable).__name__,
+                 "model": drawable.spec(), "description": drawable.describe()}
+    return _jsonable({
+        "format": SHARD_FORMAT, "version": SHARD_VERSION,
+        "n": n, "chunk": chunk, "chunks": len(sizes), "seed": seed,
+        "stream": "chunk i: numpy.random.default_rng(numpy.random.SeedSequence(seed, spawn_key=(i,)))",
+        "shards": f"draws-<index>.npy, index zero-padded to {_index_width(len(sizes))} digits",
+        "dtype": "float64",
+        "sampler": {"fingerprint": shipped.fingerprint, "kind": shipped.kind, **model},
+        "versions": _versions(),
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+    })
+
+
+def _read_manifest(folder: Path) -> dict | None:
+    path = folder / MANIFEST
+    if not path.exists():
+        return None
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as err:
+        raise ModelError("out", f"{path} could not be read ({err})") from None
+
+
+def _differences(old: dict, new: dict) -> list[str]:
+    """What makes an existing folder's shards different numbers from this run's."""
+    checks = [("format", lambda m: (m.get("format"), m.get("version"))),
+              ("sampler", lambda m: m.get("sampler", {}).get("fingerprint")),
+              ("seed", lambda m: m.get("seed")),
+              ("chunk size", lambda m: m.get("chunk")),
+              ("n", lambda m: m.get("n")),
+              ("numpy version (its generators' streams may change between versions)",
+               lambda m: m.get("versions", {}).get("numpy"))]
+    out = []
+    for label, get in checks:
+        if get(old) != get(new):
+            shown_old, shown_new = get(old), get(new)
+            if label == "sampler":
+                shown_old, shown_new = f"fingerprint {str(shown_old)[:12]}", f"fingerprint {str(shown_new)[:12]}"
+            out.append(f"{label}: {shown_new} here, {shown_old} in the folder")
+    return out
+
+
+def _prepare_folder(folder: Path, manifest: dict) -> None:
+    if folder.exists() and not folder.is_dir():
+        raise ModelError("out", f"{folder} is a file, not a folder")
+    old = _read_manifest(folder)
+    if old is not None:
+        differences = _differences(old, manifest)
+        if differences:
+            raise ModelError("out", f"{folder} holds shards of another run ({'; '.join(differences)}); "
+                                    "mixing them would mix different numbers; choose a new folder")
+    else:
+        if folder.exists() and any(folder.iterdir()):
+            raise ModelError("out", f"{folder} is not empty and has no {MANIFEST}, so it is not a lifedraw "
+                                    "shard folder; choose a new or empty folder")
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+            temp = folder / f".{MANIFEST}.{uuid.uuid4().hex}.tmp"
+            temp.write_text(json.dumps(manifest, indent=2, allow_nan=False), encoding="utf-8")
+            os.replace(temp, folder / MANIFEST)
+        except OSError as err:
+            raise ModelError("out", f"could not create {folder}: {err}") from None
+    # Temporary shards left by an interrupted run are never complete: drop them.
+    for stale in folder.glob(".draws-*.tmp"):
+        with contextlib.suppress(OSError):
+            stale.unlink()
+
+
+def _write_shards(drawable, shipped, n, chunk, seed, sizes, folder: Path, client, progress):
+    manifest = _manifest(drawable, shipped, n, chunk, seed, sizes)
+    _prepare_folder(folder, manifest)
+    total = len(sizes)
+    todo = [(i, size, str(_shard_path(folder, i, total))) for i, size in enumerate(sizes)
+            if not _shard_ok(_shard_path(folder, i, total), size)]
+    state = {"done": total - len(todo), "drawn": 0}
+
+    def finished(result):
+        state["done"] += 1
+        state["drawn"] += result["size"]
+        if progress is not None:
+            progress(state["done"], total, state["drawn"])
+
+    if progress is not None:
+        progress(state["done"], total, 0)
+    if todo:
+        if client is None:
+            _run_threads(shipped, seed, todo, _local_threads(), finished)
+        else:
+            _run_cluster(client, shipped, seed, todo, finished)
+    try:
+        return open_shards(folder)
+    except ModelError as err:
+        if client is None:
+            raise
+        raise ModelError("out", f"{err.reason}. The workers wrote the shards where this process cannot "
+                                "see them: with a cluster, --out must be a folder shared by every "
+                                "worker and this machine") from None
+
+
+def _run_threads(shipped, seed, todo, threads, finished) -> None:
+    """Local threads with a sliding window: at most ``threads`` chunks in memory at once."""
+    tasks = iter(todo)
+    with ThreadPoolExecutor(max_workers=threads, thread_name_prefix="lifedraw-generate") as pool:
+        pending = set()
+        try:
+            for i, size, path in tasks:
+                pending.add(pool.submit(_write_shard, shipped, seed, i, size, path))
+                if len(pending) >= threads:
+                    break
+            while pending:
+                done, pending = wait(pending, return_when=FIRST_COMPLETED)
+                for future in done:
+                    finished(future.result())
+                    nxt = next(tasks, None)
+                    if nxt is not None:
+                        pending.add(pool.submit(_write_shard, shipped, seed, *nxt))
+        except BaseException:
+            for future in pending:
+                future.cancel()
+            raise
+
+
+def _run_cluster(client, shipped, seed, todo, finished) -> None:
+    """On a Dask cluster, submitting only ~2 tasks per worker thread ahead (bounded memory
+    and a small scheduler graph however many chunks there are)."""
+    from distributed import as_completed
+
+    source = client.scatter(shipped, broadcast=True, hash=False)
+    threads = sum(int(w.get("nthreads") or 1) for w in client.scheduler_info(n_workers=-1)["workers"].values())
+    window = max(2 * threads, 2)
+    tasks = iter(todo)
+
+    def submit(task):
+        i, size, path = task
+        return client.submit(_write_shard, source, seed, i, size, path, pure=False,
+                             key=f"lifedraw-shard-{i}-{uuid.uuid4().hex[:8]}")
+
+    running = as_completed([submit(t) for t, _ in zip(tasks, range(window))])
+    try:
+        for future in running:
+            result = future.result()
+            future.release()
+            finished(result)
+            nxt = next(tasks, None)
+            if nxt is not None:
+                running.add(submit(nxt))
+    except BaseException:
+        client.cancel(list(running.futures))
+        raise
+    finally:
+        source.release()
+
+
+# ---- clusters -----------------------------------------------------------------------------------
+
+def connect(address: str, timeout: float = 10.0):
+    """A Client on the Dask scheduler at ``address`` (tcp://HOST:PORT), or a ModelError
+    naming "scheduler" if it cannot be reached within ``timeout`` seconds."""
+    from distributed import Client
+
+    text = str(address).strip()
+    if "://" not in text:
+        text = "tcp://" + text
+    try:
+        return Client(text, timeout=timeout, set_as_default=False)
+    except (OSError, TimeoutError, ValueError) as err:
+        raise ModelError("scheduler", f"could not connect to the Dask scheduler at {text} within "
+                                      f"{timeout:g} s ({type(err).__name__}: {err})") from None
+
+
+@contextlib.contextmanager
+def dask_client(scheduler: str | None = None, workers: int | None = None, timeout: float = 10.0):
+    """A Client for ``scheduler`` (an address), or on a new local cluster of ``workers``
+    single-threaded processes on 127.0.0.1, or None (local threads); closed on exit."""
+    if scheduler and workers:
+        raise ModelError("workers", "give either a scheduler address or a number of local workers, not both")
+    if scheduler:
+        client = connect(scheduler, timeout)
+        try:
+            yield client
+        finally:
+            client.close()
+        return
+    if workers is None:
+        yield None
+        return
+    workers = _whole("workers", workers, 1)
+    import logging
+
+    from distributed import Client, LocalCluster
+    cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+                           dashboard_address=None, silence_logs=logging.ERROR)
+    client = Client(cluster, set_as_default=False)
+    try:
+        yield client
+    finally:
+        client.close()
+        cluster.close()
+
+
+# ---- command line -------------------------------------------------------------------------------
+
+class TextProgress:
+    """A plain-text progress bar on stderr: shards done, draws per second, time left."""
+
+    def __init__(self, stream=None, width: int = 30):
+        self.stream = stream or sys.stderr
+        self.width = width
+        self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
+        self.first = None            # shards already finished when this run started
+        self.start = self.last = 0.0
+
+    def __call__(self, done: int, total: int, drawn: int) -> None:
+        now = time.perf_counter()
+        if self.first is None:
+            self.first, self.start = done, now
+        # A terminal redraws often; a log file gets a line every 10 s.
+        if done < total and done != self.first and now - self.last < (0.2 if self.tty else 10.0):
+            return
+        self.last = now
+        elapsed = now - self.start
+        this_run = done - self.first
+        rate = drawn / elapsed if elapsed > 0 else 0.0
+        filled = int(self.width * done / max(total, 1))
+        text = f"[{'#' * filled}{'.' * (self.width - filled)}] {done}/{total} shards, {rate / 1e6:.1f} M draws/s"
+        if this_run and done < total:
+            text += f", about {(total - done) * elapsed / this_run:.0f} s left"
+        self.stream.write(("\r" + text) if self.tty else (text + "\n"))
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.tty:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def cmd_generate(args) -> int:
+    from .sampling import fit
+    from .scenarios import load_scenario
+    from .systems import system_from_scenario
+
+    sc = load_scenario(args.scenario)
+    if sc.system and not args.model_only:
+        drawable, what = system_from_scenario(sc), "system lifetimes"
+    else:
+        tolerance = args.tolerance if args.tolerance is not None else sc.tolerance
+        drawable, what = fit(sc.target(), args.method or sc.method, tolerance), "lifetimes"
+    n = args.n if args.n is not None else sc.sample_size
+    seed = args.seed if args.seed is not None else sc.seed
+    bar = TextProgress()
+    start = time.perf_counter()
+    try:
+        with dask_client(args.scheduler, args.workers, args.timeout) as client:
+            where = ("local threads" if client is None else
+                     f"{len(client.scheduler_info(n_workers=-1)['workers'])} Dask workers")
+            print(f"{sc.title}: {n:,} {what} ({sc.time_unit}) in chunks of {min(args.chunk, n):,} "
+                  f"on {where}, seed {seed}", file=sys.stderr)
+            generate(drawable, n, chunk=args.chunk, seed=seed, client=client, out=args.out, progress=bar)
+    except KeyboardInterrupt:
+        bar.close()
+        print(f"lifedraw: stopped; finished shards are kept in {args.out}, run the same command "
+              "again to resume", file=sys.stderr)
+        raise
+    bar.close()
+    seconds = time.perf_counter() - start
+    manifest = read_manifest(args.out)
+    print(f"{args.out}: {manifest['chunks']} shards, {n:,} {what}, {seconds:.1f} s "
+          f"(sampler {manifest['sampler']['fingerprint'][:12]}, manifest {MANIFEST})")
+    return 0
+
+
+def add_generate_parser(sub) -> None:
+    """Register ``lifedraw generate`` on an argparse subparsers object."""
+    from .cli import _number
+
+    p = sub.add_parser("generate", help="draw many lifetimes in chunks to resumable .npy shards",
+                       description="Draw n lifetimes of a scenario (its [system] if it has one) in "
+                                   "chunks, each from its own random stream, to .npy shards plus a "
+                                   "manifest. Rerunning the same command resumes.")
+    p.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
+    p.add_argument("-n", type=_number, default=None, help="number of lifetimes, e.g. 1e9 (default: the scenario's)")
+    p.add_argument("--chunk", type=_number, default=DEFAULT_CHUNK, help="draws per chunk and shard (default 1e7)")
+    p.add_argument("--out", required=True, help="output folder for the shards and manifest.json")
+    p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--scheduler", metavar="tcp://HOST:PORT", default=None,
+                       help="run on this Dask scheduler (--out must be visible to its workers)")
+    where.add_argument("--workers", metavar="K", type=int, default=None,
+                       help="start a local Dask cluster of K single-threaded processes on 127.0.0.1")
+    p.add_argument("--timeout", type=float, default=10.0, help="seconds to wait for the scheduler (default 10)")
+    p.add_argument("--method", default=None, help="sampling method for the [model] (systems: per part)")
+    p.add_argument("--tolerance", type=float, default=None, help="u-error tolerance for the [model]")
+    p.add_argument("--model-only", action="store_true",
+                   help="draw the scenario's [model] even if it describes a [system]")
+    p.set_defaults(func=cmd_generate)
