@@ -1,0 +1,8 @@
+"""lifedraw's browser workbench: per-session state, cells, plots, the app shell and the HTML report.
+Built on Panel, HoloViews and Bokeh; nothing here is imported by ``engine``.
+
+Layout: ``state`` (what the user chose and what the engine derived), ``plots``
+(pictures and tables from plain arrays), ``views`` (the numbered cells),
+``app`` (the page and the server), ``report`` (the standalone HTML file),
+``commands`` (the ``serve`` and ``report`` subcommands).
+"""

@@ -93,7 +93,7 @@ def density_histogram(data: dict, width=None, height=320) -> hv.Overlay:
     if n and hidden:
         title += f" ({hidden:,} beyond the binned range)"
     opts = _common(title, width, height, xlim=(float(edges[0]), float(right)), legend_position="top_right",
-                   tools=["hover"])
+                   tools=["hover"], yformatter="%.3g")
     if log:
         positive = np.concatenate([reference[np.isfinite(reference) & (reference > 0)],
                                    density[np.isfinite(density) & (density > 0)]])
@@ -349,21 +349,18 @@ COMPARISON_METRICS = (
 
 
 def comparison_bars(rows: list[dict], width=None, height=220) -> list:
-    """One small bar chart per measured figure; methods that do not apply are left out."""
+    """One small bar chart per measured figure that at least one applicable method reports."""
     measured = [r for r in rows if r.get("applicable")]
     out = []
     for key, label, log in COMPARISON_METRICS:
-        pairs = [(r["method"], r.get(key)) for r in measured]
-        values = [(m, float(v)) for m, v in pairs if v is not None and math.isfinite(float(v))]
-        md = hv.Dimension("method", label="method")
-        vd = hv.Dimension(key, label=label)
+        values = [(r["method"], float(r[key])) for r in measured
+                  if r.get(key) is not None and math.isfinite(float(r[key]))]
+        if not values:
+            continue
         if log:
             values = [(m, max(v, 1e-17)) for m, v in values]
-        if not values:
-            values = [(m, 0.0) for m, _ in pairs] or [("none", 0.0)]
-            label += " (not reported)"
-        bars = hv.Bars(values, md, vd).opts(color=DRAWS, tools=["hover"], xrotation=0,
-                                            **_common(label, width, height, logy=log))
+        bars = hv.Bars(values, hv.Dimension("method", label="method"), hv.Dimension(key, label=label)).opts(
+            color=DRAWS, tools=["hover"], **_common(label, width, height, logy=log))
         if log:
             top = max(v for _, v in values)
             bars = bars.opts(ylim=(1e-17, max(top * 10, 1e-14)))
@@ -425,19 +422,21 @@ def counters_table(stats: dict) -> str:
 def comparison_table(rows: list[dict]) -> str:
     header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
               "squeeze share", "table bytes", "max u-error"]
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
     body = []
     for r in rows:
+        name = f"<td><b>{html.escape(r['method'])}</b></td>"
         if not r.get("applicable"):
-            body.append([f"<b>{html.escape(r['method'])}</b>",
-                         f'<span class="ld-muted" title="{html.escape(r.get("reason", ""))}">not applicable: '
-                         f'{html.escape(r.get("reason", ""))}</span>', "", "", "", "", "", "", "", ""])
+            body.append(f'<tr class="ld-na">{name}<td colspan="{len(header) - 1}" class="ld-muted">'
+                        f"not applicable: {html.escape(r.get('reason', ''))}</td></tr>")
             continue
-        body.append([f"<b>{html.escape(r['method'])}</b>", html.escape(str(r.get("variant") or "")),
-                     fmt(r.get("setup_ms"), 3), fmt(r.get("draws_per_second"), 3),
-                     fmt(r.get("acceptance_rate")), fmt(r.get("uniforms_per_sample")),
-                     fmt(r.get("density_evals_per_sample")), fmt(r.get("squeeze_rate")),
-                     fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)])
-    return html_table(header, body)
+        cells = [html.escape(str(r.get("variant") or "")), fmt(r.get("setup_ms"), 3),
+                 fmt(r.get("draws_per_second"), 3), fmt(r.get("acceptance_rate")),
+                 fmt(r.get("uniforms_per_sample")), fmt(r.get("density_evals_per_sample")),
+                 fmt(r.get("squeeze_rate")), fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)]
+        body.append("<tr>" + name + "".join(f"<td>{c}</td>" for c in cells) + "</tr>")
+    return (f'<table class="ld-table ld-comparison"><thead><tr>{head}</tr></thead>'
+            f"<tbody>{''.join(body)}</tbody></table>")
 
 
 def life_table(figures: dict, unit: str) -> str:

@@ -203,6 +203,38 @@ class DrawAccumulator:
         return xs[j] + (h - j) * (xs[k] - xs[j])
 
 
+# ---- plain data for the plots (shared with the report) --------------------------------------
+
+def model_on_bins(target, edges: np.ndarray):
+    """Expected share of each bin from cdf differences, and the density on a grid (None with atoms)."""
+    F = np.asarray(target.cdf(edges), dtype=float)
+    F[0] = float(target.cdf(np.nextafter(edges[0], -np.inf)))   # the first bin is closed on the left
+    if target.atoms.size:
+        return np.diff(F), None, None
+    x = np.linspace(edges[0], edges[-1], 801)
+    return np.diff(F), x, np.asarray(target.pdf(x), dtype=float)
+
+
+def histogram_payload(acc: DrawAccumulator, model_bins, view_right: float, log: bool, unit: str) -> dict:
+    expected, x, y = model_bins
+    return {"edges": acc.edges, "counts": acc.counts.copy(), "n": acc.n, "below": acc.below,
+            "above": acc.above, "expected": expected, "model_x": x, "model_pdf": y,
+            "view_right": view_right, "log": bool(log), "unit": unit}
+
+
+def qq_payload(acc: DrawAccumulator, table: CdfTable, unit: str) -> dict:
+    p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
+    return {"p": p, "model": table.quantile(p), "sample": acc.sample_quantiles(p), "unit": unit,
+            "n": int(acc.x.size)}
+
+
+def pp_payload(acc: DrawAccumulator, table: CdfTable) -> dict:
+    p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
+    xq = acc.sample_quantiles(p)
+    model_p = table.cdf(xq) if acc.x.size else np.full_like(p, np.nan)
+    return {"empirical": p, "model": model_p, "n": int(acc.x.size)}
+
+
 # ---- the workbench -----------------------------------------------------------------------
 
 def _scenario_objects() -> list[str]:
@@ -539,38 +571,21 @@ class Workbench(param.Parameterized):
 
     # ---- derived data for the views (plain arrays and dicts) ------------------------------------
     def _model_on_bins(self):
-        """Expected share of each bin (cdf differences) and the density curve, cached per refit."""
+        """Expected share of each bin and the density curve, cached per refit."""
         edges = self.acc.edges
         if self._model_curve is None or self._model_curve[0] is not edges:
-            t = self.target
-            F = np.asarray(t.cdf(edges), dtype=float)
-            F[0] = float(t.cdf(np.nextafter(edges[0], -np.inf)))   # the first bin is closed on the left
-            if t.atoms.size:
-                x = y = None
-            else:
-                x = np.linspace(edges[0], edges[-1], 801)
-                y = np.asarray(t.pdf(x), dtype=float)
-            self._model_curve = (edges, np.diff(F), x, y)
+            self._model_curve = (edges, *model_on_bins(self.target, edges))
         return self._model_curve[1:]
 
     def histogram_data(self) -> dict:
-        acc = self.acc
-        expected, x, y = self._model_on_bins()
-        return {"edges": acc.edges, "counts": acc.counts.copy(), "n": acc.n, "below": acc.below,
-                "above": acc.above, "expected": expected, "model_x": x, "model_pdf": y,
-                "view_right": self.view_right, "log": bool(self.log_scale),
-                "unit": self.scenario.time_unit}
+        return histogram_payload(self.acc, self._model_on_bins(), self.view_right, bool(self.log_scale),
+                                 self.scenario.time_unit)
 
     def qq_data(self) -> dict:
-        p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
-        return {"p": p, "model": self.table.quantile(p), "sample": self.acc.sample_quantiles(p),
-                "unit": self.scenario.time_unit, "n": int(self.acc.x.size)}
+        return qq_payload(self.acc, self.table, self.scenario.time_unit)
 
     def pp_data(self) -> dict:
-        p = (np.arange(PLOT_POINTS) + 0.5) / PLOT_POINTS
-        xq = self.acc.sample_quantiles(p)
-        model_p = self.table.cdf(xq) if self.acc.x.size else np.full_like(p, np.nan)
-        return {"empirical": p, "model": model_p, "n": int(self.acc.x.size)}
+        return pp_payload(self.acc, self.table)
 
     def ks(self) -> tuple[float, float]:
         return self.acc.ks()

@@ -403,7 +403,7 @@ class LiveCheckCell(Cell):
                                        streams=[self.pipes["trace"]])
         for dm in (self.hist, self.qq, self.pp, self.ks_trace, self.acc_trace):
             dm.opts(framewise=True, axiswise=True)
-        self.counters = _html(margin=(0, 10), sizing_mode="fixed", width=330)
+        self.counters = _html(margin=(0, 10), sizing_mode=None, width=330)
         self.summary = _html()
         self.marker = _html(css_classes=["ld-marker"])
         s.param.watch(lambda e: self.refresh(), "batch")

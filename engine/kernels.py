@@ -38,18 +38,13 @@ def _pinv_eval_py(u, guide, u_start, x0, width, du, coef, out):
         g = int(ui * g_size)
         if g >= g_size:
             g = g_size - 1
-        if g < 0:
-            g = 0
         k = guide[g]
         # Guide-table search (Chen & Asau 1974): expected steps below one.
         while k < m - 1 and u_start[k + 1] <= ui:
             k += 1
         d = du[k]
         s = (ui - u_start[k]) / d if d > 0 else 0.0
-        if s < 0.0:
-            s = 0.0
-        elif s > 1.0:
-            s = 1.0
+        s = min(max(s, 0.0), 1.0)
         acc = coef[k, order - 1]
         for j in range(order - 2, -1, -1):
             acc = acc * s + coef[k, j]

@@ -202,9 +202,6 @@ def test_residual_lower_tail_keeps_relative_digits():
     assert rel_err(target.cdf(x), u) <= 1e-10
 
 
-@pytest.mark.xfail(strict=True, reason="engine bug: at an old age (R(a) = 2e-9) ResidualTarget still takes "
-                                       "the cancelling path F(a+x) - F(a) for F_X >= 1e-3: 2.1e-12 relative "
-                                       "error in cdf, 1.2e-12 in quantile at u = 1e-3")
 def test_residual_at_an_old_age_keeps_relative_digits():
     # Memorylessness at age 2000 = 20 mean lives (R(a) = 2e-9): F_X(x) = 1 - exp(-x/theta) exactly,
     # to 1e-12 relative, as the base exponential itself gives.

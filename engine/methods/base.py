@@ -75,10 +75,13 @@ class Sampler:
         rng = np.random.default_rng(rng)
         out = np.empty(n)
         for start in range(0, n, CHUNK):
-            stop = min(start + CHUNK, n)
-            out[start:stop] = self._draw(stop - start, rng)
+            self._fill(out[start:start + CHUNK], rng)
         self.counts["samples"] += n
         return out
+
+    def _fill(self, out: np.ndarray, rng: np.random.Generator) -> None:
+        """Write out.size draws into ``out`` (methods that can, draw in place)."""
+        out[:] = self._draw(out.size, rng)
 
     def _draw(self, m: int, rng: np.random.Generator) -> np.ndarray:
         raise NotImplementedError

@@ -278,9 +278,15 @@ class NumericalInversion(Inversion):
         return x.reshape(u.shape) if u.ndim else float(x[0])
 
     def _draw(self, m, rng):
-        u = rng.random(m)
-        self.counts["uniforms"] += m
-        return kernels.pinv_eval(u, self.guide, self.u_start, self.x0, self.width, self.du, self.coef, out=u)
+        out = np.empty(m)
+        self._fill(out, rng)
+        return out
+
+    def _fill(self, out, rng):
+        # Uniforms are drawn straight into the output and transformed in place.
+        rng.random(out=out)
+        self.counts["uniforms"] += out.size
+        kernels.pinv_eval(out, self.guide, self.u_start, self.x0, self.width, self.du, self.coef, out=out)
 
     def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:
         out = super().geometry(n_points, rng)

@@ -17,7 +17,7 @@ from ..errors import MethodNotApplicable
 from ..target import Target
 from .base import Sampler
 
-# Leva (1992), Table I / Algorithm: centre (s, t) and coefficients (a, b) of the
+# Leva (1992), the algorithm's constants: centre (s, t) and coefficients (a, b) of the
 # quadratic q = x^2 + y (a y - b x), x = u - s, y = |v| - t; q < r1 lies inside
 # A (accept), q > r2 outside (reject).
 S, T = 0.449871, -0.386595
@@ -69,27 +69,37 @@ class LevaNormal(Sampler):
     @staticmethod
     def _candidates(k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
         # 1 - U lies in (0, 1]: u > 0 keeps v/u finite and ln u defined.
-        u = 1.0 - rng.random(k)
-        v = V_SPAN * (rng.random(k) - 0.5)
+        u = rng.random(k)
+        np.subtract(1.0, u, out=u)
+        v = rng.random(k)
+        v -= 0.5
+        v *= V_SPAN
         return u, v
 
     @staticmethod
     def _classify(u, v):
-        """inner-squeezed, accepted, and the indices where the logarithm was needed."""
+        """inner-squeezed and accepted masks, and the indices where the logarithm was needed."""
         x = u - S
-        y = np.abs(v) - T
-        q = x * x + y * (A * y - B * x)
+        y = np.abs(v)
+        y -= T
+        q = y * A
+        q -= B * x
+        q *= y
+        x *= x
+        q += x                      # q = x^2 + y (a y - b x), in place to spare temporaries
         inner = q < R1
-        accepted = inner.copy()
-        between = np.flatnonzero(~inner & (q <= R2))
+        # r1 <= q <= r2: between the ellipses only the exact test decides.
+        between = np.flatnonzero((q <= R2) ^ inner)
         ub, vb = u[between], v[between]
-        # The exact boundary of A for exp(-z^2/2): v^2 <= -4 u^2 ln u (Leva 1992, step 4).
-        accepted[between] = vb * vb <= -4.0 * ub * ub * np.log(ub)
+        # The exact boundary of A for exp(-z^2/2): v^2 <= -4 u^2 ln u (Kinderman & Monahan 1977).
+        passed = vb * vb <= -4.0 * ub * ub * np.log(ub)
+        accepted = inner.copy()
+        accepted[between[passed]] = True
         return inner, accepted, between.size
 
-    def standard_normal(self, m: int, rng: np.random.Generator) -> np.ndarray:
-        """m standard normal deviates Z = V/U, counting the cost."""
-        out = np.empty(m)
+    def standard_normal(self, m: int, rng: np.random.Generator, out: np.ndarray | None = None) -> np.ndarray:
+        """m standard normal deviates Z = V/U (into ``out`` if given), counting the cost."""
+        out = np.empty(m) if out is None else out
         filled = 0
         while filled < m:
             need = m - filled
@@ -100,20 +110,31 @@ class LevaNormal(Sampler):
             inner, accepted, logs = self._classify(u, v)
             self.counts["uniforms"] += 2 * k
             self.counts["candidates"] += k
-            self.counts["squeezed"] += int(inner.sum())
-            self.counts["accepted"] += int(accepted.sum())
+            self.counts["squeezed"] += int(np.count_nonzero(inner))
+            self.counts["accepted"] += int(np.count_nonzero(accepted))
             self.counts["log_evals"] += logs
             self.counts["density_evals"] += logs
-            z = v[accepted][:need] / u[accepted][:need]
+            take = np.flatnonzero(accepted)[:need]
+            z = v.take(take)
+            z /= u.take(take)
             out[filled:filled + z.size] = z
             filled += z.size
         return out
 
-    def _draw(self, m, rng):
-        z = self.standard_normal(m, rng)
+    def _fill(self, out, rng):
+        z = self.standard_normal(out.size, rng, out=out)
         if self.family == "normal":
-            return self._loc + self._scale * z
-        return self._loc + np.exp(self._mu + self._sigma * z)
+            z *= self._scale
+        else:
+            z *= self._sigma
+            z += self._mu
+            np.exp(z, out=z)
+        z += self._loc
+
+    def _draw(self, m, rng):
+        out = np.empty(m)
+        self._fill(out, rng)
+        return out
 
     # ---- pictures and persistence --------------------------------------------------------
     @staticmethod

@@ -81,7 +81,7 @@ def _heavy_tail(target: Target) -> str | None:
         with np.errstate(all="ignore"):
             g = np.abs(np.asarray(x, dtype=float) - centre) * np.sqrt(target.pdf(x))
         if np.all(np.isfinite(g)) and g[2] > g[1] * (1 + 1e-3) and g[1] > g[0]:
-            return (f"the {name} tail is heavier than 1/t^2 (|t - m|·sqrt f(t) is still growing at the "
+            return (f"the {name} tail is heavier than 1/t^2 (|t|·sqrt f(t) is still growing at the "
                     f"{far[-1]:g} tail quantile), so the region A is unbounded and no rectangle encloses it")
     return None
 
@@ -138,6 +138,23 @@ def _sector_triangles(poly: np.ndarray, pts: np.ndarray):
     area = np.concatenate([f[3] for f, _ in parts])
     sector = np.concatenate([np.full(f[3].size, s, dtype=np.int64) for f, s in parts])
     return apex, e1, e2, area, sector
+
+
+def _alias_table(p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Walker's alias table for probabilities p (Vose 1991, IEEE TSE 17(9), the stable set-up)."""
+    n = p.size
+    scaled = p * n
+    prob = np.ones(n)
+    alias = np.arange(n)
+    small = [i for i in range(n) if scaled[i] < 1.0]
+    large = [i for i in range(n) if scaled[i] >= 1.0]
+    while small and large:
+        s, g = small.pop(), large.pop()
+        prob[s], alias[s] = scaled[s], g
+        scaled[g] -= 1.0 - scaled[s]
+        (small if scaled[g] < 1.0 else large).append(g)
+    # Whatever is left has scaled probability 1 up to rounding.
+    return prob, alias
 
 
 class RatioOfUniforms(Sampler):
@@ -463,15 +480,11 @@ class RatioOfUniforms(Sampler):
         if self.envelope == "polygon":
             apex, e1, e2, area, self._tri_sector = _sector_triangles(self.polygon, self.points)
             self._tri = (apex[:, 0], apex[:, 1], e1[:, 0], e1[:, 1], e2[:, 0], e2[:, 1])
-            self._tri_cum = np.cumsum(area)
-            env_area = float(self._tri_cum[-1])
-            # Guide table (Chen & Asau 1974): guide[g] = first triangle whose cumulative
-            # area passes g/G of the total, so the search from there takes < 1 step on average.
-            size = 2 * area.size
-            self._guide = np.searchsorted(self._tri_cum, np.arange(size) / size * env_area, side="right")
+            env_area = float(np.sum(area))
+            self._alias_prob, self._alias = _alias_table(area / env_area)
         else:
             env_area = rect_area
-        # area(A) = 1/2 for a normalised density (Kinderman & Monahan 1977, Theorem 1).
+        # area(A) = 1/2 for a normalised density (Kinderman & Monahan 1977).
         self.expected_acceptance = min(0.5 / env_area, 1.0)
         squeeze = state["squeeze"] or "none"
         self.extra_stats.update({
@@ -492,16 +505,13 @@ class RatioOfUniforms(Sampler):
         """k points uniform on the envelope, and the squeeze sector of each where known
         (rectangle: 2 uniforms a point; polygon: 3, one picks the triangle)."""
         if self.envelope == "polygon":
-            total = self._tri_cum[-1]
-            pick = rng.random(k)
-            w = pick * total
-            j = self._guide[(pick * self._guide.size).astype(np.int64)]
-            last = self._tri_cum.size - 1
-            for _ in range(self._tri_cum.size):
-                step = (j < last) & (self._tri_cum[np.minimum(j, last)] <= w)
-                if not step.any():
-                    break
-                j = j + step
+            # Triangle by its area, in constant time: Walker's alias method (Walker 1977,
+            # ACM TOMS 3(3) 253-256) on one uniform, whose integer part picks a column.
+            n = self._alias.size
+            pick = rng.random(k) * n
+            j = pick.astype(np.int64)
+            np.minimum(j, n - 1, out=j)
+            j = np.where(pick - j < self._alias_prob.take(j), j, self._alias.take(j))
             # (s, r) is uniform on the unit square; folding the half s + r > 1 onto the other
             # by (1 - s, 1 - r) preserves area, so apex + s e1 + r e2 is uniform on the triangle.
             s, r = rng.random(k), rng.random(k)
@@ -523,7 +533,8 @@ class RatioOfUniforms(Sampler):
         if sector is None:
             sector = np.searchsorted(self.construction_x, x, side="right") - 1
             sector = np.where(sector < n, sector, -1)
-        valid = sector >= 0
+        # u > 0 also keeps out a candidate rounded onto the u = 0 edge, whose v/u is no age.
+        valid = (sector >= 0) & (u > 0)
         j = np.maximum(sector, 0)
         a, b, c = self.chords[:, 0].take(j), self.chords[:, 1].take(j), self.chords[:, 2].take(j)
         return valid & (a * u + b * v <= c)
@@ -542,6 +553,11 @@ class RatioOfUniforms(Sampler):
 
     def _draw(self, m, rng):
         out = np.empty(m)
+        self._fill(out, rng)
+        return out
+
+    def _fill(self, out, rng):
+        m = out.size
         filled = 0
         per_candidate = 3 if self.envelope == "polygon" else 2
         while filled < m:
@@ -556,10 +572,9 @@ class RatioOfUniforms(Sampler):
             self.counts["density_evals"] += evals
             self.counts["squeezed"] += int(squeezed.sum())
             self.counts["accepted"] += int(accepted.sum())
-            got = x[accepted][:need]
+            got = x.take(np.flatnonzero(accepted)[:need])
             out[filled:filled + got.size] = got
             filled += got.size
-        return out
 
     # ---- pictures and persistence --------------------------------------------------------
     def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:

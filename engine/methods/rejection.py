@@ -119,8 +119,9 @@ class Rejection(Sampler):
                                                 "product-limit estimate does); a hat over a density cannot "
                                                 "produce them: use 'table' or 'inversion'")
         if any(getattr(p, "kind", "") == "histogram" for p in _parts(target)):
-            raise MethodNotApplicable("method", "binned data has a piecewise-constant density that jumps at "
-                                                "every bin edge; 'table' draws it exactly in constant time")
+            raise MethodNotApplicable("method", "binned data: its density breaks at every bin edge (constant "
+                                                "within bins, or a smoothed cubic that vanishes in empty bins); "
+                                                "'table' or 'inversion' draw it exactly")
 
     # ---- log f and its slope -------------------------------------------------------------
     def _logf(self, x):
@@ -317,7 +318,8 @@ class Rejection(Sampler):
         bad = ~(np.isfinite(lm) & np.isfinite(lp))
         if np.any(bad):
             i = int(np.flatnonzero(bad)[0])
-            what = "is 0" if min(lm[i], lp[i]) == -np.inf else "is not finite"
+            what = ("is 0 (or below the smallest double)" if min(lm[i], lp[i]) == -np.inf
+                    else "is not finite")
             raise MethodNotApplicable("method", f"the density {what} at t = {x[i]:.6g}, inside the "
                                                 "support; rejection needs f > 0 and bounded between the "
                                                 "ends (use 'inversion')")
@@ -636,6 +638,8 @@ class Rejection(Sampler):
         self.points_x = pts["x"].copy()
         self.points_logf = np.maximum(pts["lm"], pts["lp"])
         self.interval_labels = pts["lab"].astype(np.int8)
+        self.piece_edges = np.concatenate([pieces[:, 0], pieces[-1:, 1]])
+        self.piece_convex = pieces[:, 2] > 0
         self._tabulate()
         squeeze_area = float(np.sum(sq[keep]))
         self.extra_stats.update({
@@ -653,48 +657,63 @@ class Rejection(Sampler):
         })
 
     def _tabulate(self) -> None:
-        """Cumulative areas for picking a piece: [left inversion, segments..., right inversion]."""
-        self.cum = np.cumsum(np.concatenate([[self.FL], self.seg_area, [self.SR]]))
+        """The drawing table: one row per piece, [left inversion, hat segments..., right
+        inversion], with the cumulative areas that pick a piece and the constants that
+        invert its exponential hat."""
+        area = np.concatenate([[self.FL], self.seg_area, [self.SR]])
+        self.cum = np.cumsum(area)
         self.total = float(self.cum[-1])
-        self.seg_dir = np.where(self.seg_slope <= 0, 1.0, -1.0)
-        self.seg_g = -np.abs(self.seg_slope)
+        pad = lambda a, fill=0.0: np.concatenate([[fill], a, [fill]])  # noqa: E731
+        width = self.seg_x1 - self.seg_x0
+        g = -np.abs(self.seg_slope)
+        y = g * width
+        small = y > -1e-12
+        table = np.column_stack([
+            self.cum - area,                                        # 0 start of the piece's share
+            1.0 / np.where(area > 0, area, 1.0),                    # 1
+            pad(width),                                             # 2
+            pad(np.where(small, 0.0, np.expm1(y))),                 # 3 expm1(g w)
+            pad(np.where(small, 0.0, 1.0 / np.where(small, 1.0, g))),  # 4 1/g
+            pad(small.astype(float), 1.0),                          # 5
+            pad(self.seg_xa),                                       # 6
+            pad(np.where(self.seg_slope <= 0, 1.0, -1.0)),          # 7 direction from the anchor
+            pad(self.seg_ya),                                       # 8
+            pad(g),                                                 # 9
+            pad(self.seg_qa, -np.inf),                              # 10
+            pad(self.seg_qslope),                                   # 11
+        ])
+        self._table = np.ascontiguousarray(table)
 
     # ---- drawing ----------------------------------------------------------------------------------
     def _propose(self, n, rng):
-        """n candidates: (x, v, log hat, log squeeze, source) with source 0 = a hat segment,
-        1 = drawn exactly by inversion; plus the number of uniforms used."""
+        """n candidates: (x, v, log hat, log squeeze, exact) where ``exact`` marks draws made
+        by inversion beyond the hat; plus the number of uniforms used."""
         u = rng.random(n)
         v = rng.random(n)
         used = 2 * n
         uA = u * self.total
-        nseg = self.seg_area.size
+        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
         # u * total can round up to total: stay on the last piece that has mass.
-        k = np.minimum(np.searchsorted(self.cum, uA, side="right"), nseg + 1 if self.SR > 0 else nseg)
-        x = np.empty(n)
-        loghat = np.full(n, np.inf)
-        logsq = np.full(n, np.inf)
-        expo = (k >= 1) & (k <= nseg)
-        j = k[expo] - 1
-        # The piece's own uniform is recycled from the one that chose it (Hörmann,
+        k = np.minimum(np.searchsorted(self.cum, uA, side="right"), last)
+        row = self._table[k]
+        # The position's uniform is recycled from the one that chose the piece (Hörmann,
         # Leydold & Derflinger 2004, Automatic Nonuniform Random Variate Generation, sec. 2.3).
-        w = np.clip((uA[expo] - (self.cum[j + 1] - self.seg_area[j])) / self.seg_area[j], 0.0, 1.0)
-        width = self.seg_x1[j] - self.seg_x0[j]
-        g = self.seg_g[j]
-        y = g * width
-        small = y > -1e-12
+        w = np.minimum(np.maximum((uA - row[:, 0]) * row[:, 1], 0.0), 1.0)
+        width = row[:, 2]
         with np.errstate(all="ignore"):
-            # Inverse of the exponential segment's cdf, from its higher end: D in [0, width].
-            D = np.where(small, w * width, np.log1p(w * np.expm1(y)) / np.where(small, 1.0, g))
-        D = np.clip(D, 0.0, width)
-        xe = self.seg_xa[j] + self.seg_dir[j] * D
-        x[expo] = np.clip(xe, self.seg_x0[j], self.seg_x1[j])
-        loghat[expo] = self.seg_ya[j] + g * D
-        logsq[expo] = self.seg_qa[j] + self.seg_qslope[j] * (xe - self.seg_xa[j])
-        for side, mask in ((0, k == 0), (1, k == nseg + 1)):
-            if np.any(mask):
-                x[mask], extra = self._end_draws(side, int(mask.sum()), rng)
-                used += extra
-        return x, v, loghat, logsq, ~expo, used
+            # Inverse cdf of exp(g * D) on [0, width], D measured from the hat's higher end.
+            D = np.where(row[:, 5] > 0, w * width, np.log1p(w * row[:, 3]) * row[:, 4])
+        D = np.minimum(np.maximum(D, 0.0), width)
+        x = row[:, 6] + row[:, 7] * D
+        loghat = row[:, 8] + row[:, 9] * D
+        logsq = row[:, 10] + row[:, 11] * (x - row[:, 6])
+        exact = (k == 0) | (k == self.cum.size - 1)
+        if np.any(exact):
+            for side, mask in ((0, k == 0), (1, k == self.cum.size - 1)):
+                if np.any(mask):
+                    x[mask], extra = self._end_draws(side, int(mask.sum()), rng)
+                    used += extra
+        return x, v, loghat, logsq, exact, used
 
     def _end_draws(self, side, count, rng):
         """``count`` exact draws beyond the hat (side 0: below cL by quantile, 1: above cR by
@@ -798,13 +817,14 @@ class Rejection(Sampler):
             "x": x, "f": t.pdf(x), "hat": self.hat(x), "squeeze": self.squeeze(x),
             "points": self.points_x.copy(), "points_f": np.exp(self.points_logf),
             "interval_convex": self.interval_labels > 0,
+            "piece_edges": self.piece_edges.copy(), "piece_convex": self.piece_convex.copy(),
             "domain": (lo, hi), "inversion_mass_left": self.FL, "inversion_mass_right": self.SR,
             "candidates": {"x": cx[on_hat], "y": (cv * np.exp(loghat))[on_hat], "label": label},
             "expected_acceptance": 1.0 / self.total,
         }
 
     _TABLES = ("seg_x0", "seg_x1", "seg_xa", "seg_ya", "seg_slope", "seg_qa", "seg_qslope", "seg_area",
-               "points_x", "points_logf", "interval_labels")
+               "points_x", "points_logf", "interval_labels", "piece_edges", "piece_convex")
 
     def _tables(self):
         return {k: getattr(self, k) for k in self._TABLES}

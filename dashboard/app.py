@@ -1,0 +1,98 @@
+"""Compose the workbench page, one state per browser session, and serve it on loopback.
+Panel/Bokeh server (Tornado); every script and stylesheet is served by the app itself, none from a CDN.
+
+``create_app`` is called once per session; the periodic callback draws one
+bounded batch per tick, so the page never freezes and each tab has its own stream.
+"""
+from __future__ import annotations
+
+import html
+import logging
+import os
+from pathlib import Path
+
+import panel as pn
+
+from .state import Workbench
+from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveCheckCell, ModelCell, ReportCell,
+                    caution_banner)
+
+log = logging.getLogger("lifedraw.dashboard")
+
+TITLE = "lifedraw — lifetime sampler workbench"
+TICK_MS = 400
+PAGE_CSS = """
+body { background: #f3f4f6; font-family: -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif; }
+"""
+HEADER_CSS = """
+h1 { font-size: 24px; margin: 6px 0 2px 0; color: #1f2933; font-weight: 650; }
+p { margin: 0; color: #4b5563; font-size: 14px; }
+"""
+
+
+def _configure() -> None:
+    # Panel serves its own and Bokeh's files from the server in server mode;
+    # inline resources and no CDN make that explicit for every extension too.
+    pn.config.inline = True
+    pn.extension(raw_css=[PAGE_CSS], notifications=False, design="native")
+
+
+def default_report_dir() -> Path:
+    """Where the Report cell writes: $LIFEDRAW_REPORT_DIR, else ~/lifedraw-reports (outside any checkout)."""
+    return Path(os.environ.get("LIFEDRAW_REPORT_DIR") or Path.home() / "lifedraw-reports")
+
+
+def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
+    """Build one session's page: a fresh ``Workbench`` and the seven cells that present it."""
+    state = Workbench(scenario)
+    report_dir = Path(report_dir or default_report_dir())
+    model, generator = ModelCell(state), GeneratorCell(state)
+    live, geometry, comparison = LiveCheckCell(state), GeometryCell(state), ComparisonCell(state)
+    life, report = LifeCell(state), ReportCell(state, report_dir)
+    geometry.refresh()
+    life.refresh()
+
+    def tick():
+        # One bounded batch per tick; cells whose data changed since the last
+        # tick (geometry after a refit, life figures after a batch) follow here,
+        # so a slider release redraws the live check first.
+        try:
+            with pn.io.hold():
+                if state.running:
+                    state.step()
+                geometry.refresh()
+                life.refresh()
+        except Exception:
+            log.exception("unexpected error in the periodic update")
+
+    header = pn.pane.HTML(
+        f"<h1>{html.escape(TITLE)}</h1><p>Reproduce a reliability model with exact, fast random lifetimes, "
+        "watch the draws converge on it, and compare the sampling methods.</p>",
+        stylesheets=[HEADER_CSS], sizing_mode="stretch_width", margin=(4, 0))
+    page = pn.Column(
+        header, caution_banner(),
+        *(cell.panel() for cell in (model, generator, live, geometry, comparison, life, report)),
+        caution_banner(),
+        sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
+    if pn.state.curdoc is not None and pn.state.curdoc.session_context is not None:
+        callback = pn.state.add_periodic_callback(tick, period=TICK_MS)
+        pn.state.on_session_destroyed(lambda ctx: callback.stop())
+    page._lifedraw_state = state          # for tests that build the page without a server
+    return page
+
+
+def serve(port: int = 5006, address: str = "127.0.0.1", scenario: str | None = None, report_dir=None,
+          show: bool = False) -> int:
+    """Serve the workbench until Ctrl-C; returns 0 after a clean stop."""
+    from engine.scenarios import load_scenario
+    if scenario:
+        load_scenario(scenario)    # a bad name fails here, with its message, before the server starts
+    _configure()
+    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(levelname)s: %(message)s")
+    url = f"http://{address}:{port}/"
+    print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
+    pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
+             websocket_origin=[f"{address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"],
+             show=show, threaded=False, title=TITLE, verbose=False)
+    print("lifedraw workbench: stopped", flush=True)
+    return 0

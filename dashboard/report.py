@@ -1,0 +1,252 @@
+"""The standalone HTML report of a scenario: model, draws against the model, method geometry,
+method comparison and life figures, with Bokeh's JavaScript inline so the file opens offline.
+
+One function, ``write_report``, serves both ``lifedraw report`` and the dashboard's
+Report cell. Plots are HoloViews elements rendered to plain Bokeh models
+(``hv.render``) and embedded with ``bokeh.embed.components``; no Panel template.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import html
+import importlib.metadata
+import platform
+import re
+import time
+from pathlib import Path
+
+import holoviews as hv
+import numpy as np
+from bokeh.embed import components
+from bokeh.resources import Resources
+
+import engine
+from engine import ModelError, fit
+from engine.cli import CAUTION
+from engine.compare import MethodResult, compare_methods
+from engine.scenarios import Scenario
+
+from . import plots
+from .state import CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, \
+    pp_payload, qq_payload
+
+PLOT_WIDTH = 880
+COMPARE_N = 100_000
+PACKAGES = ("lifedraw", "numpy", "scipy", "bokeh", "holoviews", "panel", "param")
+
+PAGE_CSS = """
+body { font-family: -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif; color: #1f2933;
+       background: #f5f6f8; margin: 0; }
+main { max-width: 920px; margin: 0 auto; padding: 24px 20px 48px 20px; }
+header h1 { font-size: 24px; margin: 0 0 2px 0; }
+header p { margin: 0; color: #4b5563; }
+section { background: white; border: 1px solid #dfe3e8; border-radius: 8px; padding: 12px 20px 16px 20px;
+          margin: 14px 0; }
+h2 { font-size: 18px; margin: 4px 0 8px 0; }
+p { line-height: 1.5; margin: 6px 0; }
+pre { background: #f4f6f8; border: 1px solid #e3e6ea; border-radius: 4px; padding: 8px 10px; font-size: 12.5px;
+      white-space: pre-wrap; }
+.caution { background: #fff7e0; border: 1px solid #f0d48a; border-radius: 6px; padding: 10px 14px; }
+.muted { color: #6b7280; font-size: 13px; }
+.plot { margin: 8px 0; }
+table.ld-table { border-collapse: collapse; font-size: 13px; width: 100%; }
+table.ld-table th { text-align: left; font-weight: 600; border-bottom: 2px solid #d0d4da; padding: 5px 10px 5px 0; }
+table.ld-table td { border-bottom: 1px solid #eceef1; padding: 4px 10px 4px 0; vertical-align: top;
+                    font-variant-numeric: tabular-nums; }
+table.ld-compact { width: auto; }
+.ld-muted { color: #6b7280; }
+"""
+
+
+def default_report_path(directory, scenario: Scenario) -> Path:
+    """``DIR/lifedraw-<scenario>-<date>-<time>.html``."""
+    stamp = time.strftime("%Y%m%d-%H%M%S")
+    safe = re.sub(r"[^A-Za-z0-9_-]+", "-", scenario.name).strip("-") or "scenario"
+    return Path(directory) / f"lifedraw-{safe}-{stamp}.html"
+
+
+def write_report(scenario: Scenario, path, n: int | None = None, seed: int | None = None,
+                 method: str | None = None, tolerance: float | None = None,
+                 comparison: list | None = None, compare_n: int = COMPARE_N) -> Path:
+    """Draw ``n`` lifetimes of ``scenario`` with ``seed`` and write the report to ``path``.
+
+    Defaults come from the scenario's run table. ``comparison`` reuses rows
+    already measured (``MethodResult`` or dicts); without it the methods are
+    measured now with ``compare_n`` draws each. Returns the path written.
+    """
+    path = Path(path)
+    if path.suffix.lower() not in (".html", ".htm"):
+        raise ModelError("output", f"the report is an HTML file; give a name ending in .html, got {path.name!r}")
+    text = build_report(scenario, n=n, seed=seed, method=method, tolerance=tolerance,
+                        comparison=comparison, compare_n=compare_n)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def build_report(scenario: Scenario, n: int | None = None, seed: int | None = None, method: str | None = None,
+                 tolerance: float | None = None, comparison: list | None = None,
+                 compare_n: int = COMPARE_N) -> str:
+    """The report as one HTML string (see ``write_report``)."""
+    n = int(scenario.sample_size if n is None else n)
+    if n < 1000:
+        raise ModelError("n", f"a report needs at least 1,000 draws, got {n}")
+    seed = int(scenario.seed if seed is None else seed)
+    method = method or scenario.method
+    tolerance = float(scenario.tolerance if tolerance is None else tolerance)
+    unit = scenario.time_unit
+
+    target = scenario.target()
+    sampler = fit(target, method, tolerance)
+    start = time.perf_counter()
+    draws = sampler.sample(n, seed)
+    seconds = time.perf_counter() - start
+    stats = dict(sampler.stats)
+
+    table = CdfTable(target, draws)
+    edges, view_right = histogram_edges(target, table)
+    acc = DrawAccumulator(edges, table, capacity=n, rng=seed)
+    acc.add(draws)
+    checked = engine.check(draws, target, rng=seed)
+    life = {"sample": engine.life_summary(draws, scenario.mission_times),
+            "exact": engine.exact_life_figures(target, scenario.mission_times), "n": n, "total": n}
+    if comparison is None:
+        comparison = compare_methods(target, n=compare_n, rng=seed, tolerance=tolerance)
+    rows = [r.to_dict() if isinstance(r, MethodResult) else dict(r) for r in comparison]
+
+    hist = plots.density_histogram(histogram_payload(acc, model_on_bins(target, edges), view_right, False, unit),
+                                   width=PLOT_WIDTH, height=340)
+    qq = plots.qq_plot(qq_payload(acc, table, unit), width=PLOT_WIDTH // 2 - 10, height=320)
+    pp = plots.pp_plot(pp_payload(acc, table), width=PLOT_WIDTH // 2 - 10, height=320)
+    fallback = None
+    if not target.atoms.size:
+        x = np.linspace(edges[0], view_right, 400)
+        fallback = {"x": x, "pdf": target.pdf(x), "draws": draws[:50_000]}
+    geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300)
+    bars = plots.comparison_bars(rows, width=PLOT_WIDTH // 2 - 10, height=220)
+
+    figures = [hist, qq, pp, *geometry, *bars]
+    script, divs = components([hv.render(f, backend="bokeh") for f in figures])
+    d_hist, d_qq, d_pp = divs[:3]
+    d_geom = divs[3:3 + len(geometry)]
+    d_bars = divs[3 + len(geometry):]
+
+    inline_assets = _inline_assets()
+    now = _dt.datetime.now().astimezone()
+    e = html.escape
+    story = e(scenario.story).replace("\n\n", "</p><p>").replace("\n", " ")
+    gof = _goodness_table(checked)
+    params = plots.parameters_table(scenario.parameters) if scenario.parameters else \
+        '<p class="muted">No parameters: the model is the recorded field data.</p>'
+
+    def grid(items):
+        cells = "".join(f'<div class="plot" style="display:inline-block;vertical-align:top">{d}</div>' for d in items)
+        return f"<div>{cells}</div>"
+
+    body = f"""
+<main>
+<header>
+  <h1>lifedraw report — {e(scenario.title)}</h1>
+  <p>Scenario <code>{e(scenario.name)}</code> · written {e(now.strftime('%Y-%m-%d %H:%M %Z'))}</p>
+</header>
+<div class="caution"><b>Caution.</b> {e(CAUTION)}</div>
+
+<section id="model"><h2>Model</h2>
+<p>{story}</p>
+<pre>{e(target.describe())}</pre>
+<p class="muted">Formula: <code>{e(target.formula())}</code> · ages in {e(unit)}.</p>
+{params}
+</section>
+
+<section id="run"><h2>Run</h2>
+{plots.html_table(["setting", "value"], [
+    ["method", f"{e(sampler.method)}{' (' + e(str(stats['variant'])) + ')' if stats.get('variant') else ''}"],
+    ["why", e(sampler.reason)], ["published method", e(type(sampler).reference)],
+    ["seed", str(seed)], ["sample size", f"{n:,}"], ["tolerance (u-error)", f"{tolerance:g}"],
+    ["set-up", f"{1e3 * stats['setup_seconds']:.1f} ms"], ["drawing time", f"{seconds:.3f} s"],
+    ["mission times", ", ".join(f"{plots.fmt(t)} {e(unit)}" for t in scenario.mission_times) or "none"]],
+    "ld-table ld-compact")}
+</section>
+
+<section id="check"><h2>Draws against the model</h2>
+<div class="plot">{d_hist}</div>
+{grid([d_qq, d_pp])}
+{gof}
+</section>
+
+<section id="geometry"><h2>Method geometry: {e(sampler.method)}</h2>
+{''.join(f'<div class="plot">{d}</div>' for d in d_geom)}
+<h3>Sampler counters</h3>
+{plots.counters_table(stats)}
+</section>
+
+<section id="comparison"><h2>Method comparison</h2>
+<p class="muted">Every method measured on this machine when the report was written (or when the dashboard
+measured it), one process; draws/s is the median of 3 timed batches.</p>
+{plots.comparison_table(rows)}
+{grid(d_bars)}
+</section>
+
+<section id="life"><h2>Life figures</h2>
+{plots.life_table(life, unit)}
+<p class="muted">From all {n:,} draws. MTTF: normal-theory interval; B-lives: distribution-free
+order-statistic intervals (Hahn &amp; Meeker 1991); R(t): Wilson score intervals. The model's exact
+values come from the model itself.</p>
+</section>
+
+<section id="versions"><h2>Software</h2>
+{plots.html_table(["package", "version"], [[e(k), e(v)] for k, v in _versions().items()], "ld-table ld-compact")}
+</section>
+
+<div class="caution"><b>Caution.</b> {e(CAUTION)} The draws are simulated from the stated model;
+they say nothing the model does not already assume.</div>
+</main>"""
+
+    return f"""<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>lifedraw report — {e(scenario.title)}</title>
+<style>{PAGE_CSS}</style>
+{inline_assets}
+</head>
+<body>
+{body}
+{script}
+</body>
+</html>
+"""
+
+
+def _inline_assets() -> str:
+    """BokehJS itself, inline. Only the raw code is used: with Panel imported, Bokeh's resource
+    lists also name Panel's extension files by relative URL, which a standalone file cannot load."""
+    resources = Resources(mode="inline", components=["bokeh"])
+    scripts = "".join(f"<script>\n{js}\n</script>\n" for js in resources.js_raw)
+    styles = "".join(f"<style>\n{css}\n</style>\n" for css in resources.css_raw)
+    return scripts + styles
+
+
+def _goodness_table(rep) -> str:
+    rows = [["Kolmogorov-Smirnov", plots.fmt(rep.ks_statistic), plots.fmt(rep.ks_pvalue)],
+            ["Anderson-Darling", plots.fmt(rep.ad_statistic), plots.fmt(rep.ad_pvalue)],
+            [f"chi-square ({rep.chi2_dof} dof)" if rep.chi2_dof else "chi-square", plots.fmt(rep.chi2_statistic),
+             plots.fmt(rep.chi2_pvalue)]]
+    verdict = "no test rejects the model at alpha = 0.001" if rep.passed() else \
+        "at least one test rejects the model at alpha = 0.001"
+    notes = "".join(f"<li>{html.escape(n)}</li>" for n in rep.notes)
+    return (f"<h3>Goodness of fit ({rep.n:,} draws): {verdict}</h3>"
+            + plots.html_table(["test", "statistic", "p-value"], rows, "ld-table ld-compact")
+            + (f'<ul class="muted">{notes}</ul>' if notes else ""))
+
+
+def _versions() -> dict[str, str]:
+    out = {"python": platform.python_version()}
+    for name in PACKAGES:
+        try:
+            out[name] = importlib.metadata.version(name)
+        except importlib.metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    out["platform"] = platform.platform(terse=True)
+    return out
