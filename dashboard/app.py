@@ -9,6 +9,7 @@ from __future__ import annotations
 import html
 import logging
 import os
+import time
 from pathlib import Path
 
 import panel as pn
@@ -57,11 +58,14 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         # tick (geometry after a refit, life figures after a batch) follow here,
         # so a slider release redraws the live check first.
         try:
+            start = time.perf_counter()
             with pn.io.hold():
                 if state.running:
                     state.step()
+                live.refresh_secondary()
                 geometry.refresh()
                 life.refresh()
+            log.debug("tick took %.0f ms", 1e3 * (time.perf_counter() - start))
         except Exception:
             log.exception("unexpected error in the periodic update")
 
@@ -89,6 +93,8 @@ def serve(port: int = 5006, address: str = "127.0.0.1", scenario: str | None = N
         load_scenario(scenario)    # a bad name fails here, with its message, before the server starts
     _configure()
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(levelname)s: %(message)s")
+    if os.environ.get("LIFEDRAW_DEBUG"):
+        log.setLevel(logging.DEBUG)
     url = f"http://{address}:{port}/"
     print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
     pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,

@@ -383,8 +383,8 @@ class Workbench(param.Parameterized):
             self.values = {k: p.value for k, p in sc.parameters.items()}
         self.comparison = []
         self.comparison_note = ""
+        self.version += 1      # before the first batch, so views redrawing on that batch see the new version
         self._restart()
-        self.version += 1
         return True
 
     def _probe_seed(self):

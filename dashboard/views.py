@@ -11,6 +11,7 @@ import html
 import io
 import logging
 import math
+import time
 import tomllib
 from pathlib import Path
 
@@ -114,8 +115,11 @@ class Cell:
     def act(self, fn, *args, **kwargs):
         """Run a user action with all the page updates it causes sent as one message."""
         try:
+            start = time.perf_counter()
             with pn.io.hold():
-                return fn(*args, **kwargs)
+                out = fn(*args, **kwargs)
+            log.debug("%s took %.0f ms", getattr(fn, "__name__", fn), 1e3 * (time.perf_counter() - start))
+            return out
         except Exception:  # the state guards engine errors; this is the last safety net
             log.exception("unexpected error in %s", getattr(fn, "__name__", fn))
             return None
@@ -406,6 +410,8 @@ class LiveCheckCell(Cell):
         self.counters = _html(margin=(0, 10), sizing_mode=None, width=330)
         self.summary = _html()
         self.marker = _html(css_classes=["ld-marker"])
+        self._version_seen = s.version
+        self._stale = False
         s.param.watch(lambda e: self.refresh(), "batch")
         self.refresh(push=False)
 
@@ -429,14 +435,39 @@ class LiveCheckCell(Cell):
     def _push_all(self):
         s = self.state
         self.pipes["hist"].send(s.histogram_data())
+        self._push_secondary()
+
+    def _push_secondary(self):
+        s = self.state
         self.pipes["qq"].send(s.qq_data())
         self.pipes["pp"].send(s.pp_data())
         self.pipes["trace"].send({k: list(v) for k, v in s.trace.items()})
 
     def refresh(self, push=True):
+        """After a batch: the histogram and the marker now; after a refit the other plots
+        follow on the next tick (``refresh_secondary``), so a slider release redraws first."""
         s = self.state
         if push:
-            self._push_all()
+            self.pipes["hist"].send(s.histogram_data())
+            if s.version != self._version_seen:
+                self._stale = True
+            else:
+                self._push_secondary()
+                self._stale = False
+        self._version_seen = s.version
+        self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}">'
+                              f"model v{s.version} · batch {s.batch} · {s.n:,} draws</span>")
+        if not self._stale:
+            self._texts()
+
+    def refresh_secondary(self):
+        if self._stale:
+            self._stale = False
+            self._push_secondary()
+            self._texts()
+
+    def _texts(self):
+        s = self.state
         self.counters.object = plots.counters_table(s.counters())
         d, p = s.ks()
         n_res = int(s.acc.x.size)
@@ -451,8 +482,6 @@ class LiveCheckCell(Cell):
                 "table of exact values (interpolation error far below the test's resolution).</p>")
         else:
             self.summary.object = '<p class="ld-muted">No draws yet.</p>'
-        self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}">'
-                              f"model v{s.version} · batch {s.batch} · {s.n:,} draws</span>")
 
 
 # ---- 4. geometry -----------------------------------------------------------------------------
@@ -467,11 +496,15 @@ class GeometryCell(Cell):
         self.caption = _html()
         self.plots = pn.FlexBox(sizing_mode="stretch_width", margin=0)
         self._shown = None
+        self._layout = None
+        self._pipes: list[hv.streams.Pipe] = []
 
     def body(self):
         return [self.caption, self.plots]
 
     def refresh(self):
+        """Redraw after a refit: in place through the Pipes while the pictures keep their
+        structure (same method, same layers), as new plots when it changes."""
         s = self.state
         key = (s.version, id(s.sampler))
         if key == self._shown:
@@ -485,11 +518,28 @@ class GeometryCell(Cell):
         elements = plots.geometry_plots(geom, s.scenario.time_unit, fallback=fallback)
         self.caption.object = (f'<p><b class="ld-geometry-method">{html.escape(s.sampler.method)}</b> — '
                                f"{html.escape(type(s.sampler).reference)}</p>")
+        layout = (s.sampler.method, tuple(_signature(e) for e in elements))
+        if layout == self._layout:
+            for pipe, element in zip(self._pipes, elements):
+                pipe.send(element)
+            return
+        self._layout = layout
+        self._pipes = [hv.streams.Pipe(data=e) for e in elements]
         wide = len(elements) == 1
-        self.plots[:] = [pn.pane.HoloViews(e, sizing_mode="stretch_width" if wide else "fixed",
-                                           width=None if wide else 520, height=e.opts.get().kwargs.get("height", 300)
-                                           + 10, margin=(0, 6))
-                         for e in elements]
+        panes = []
+        for pipe, e in zip(self._pipes, elements):
+            dm = hv.DynamicMap(lambda data: data, streams=[pipe]).opts(framewise=True, axiswise=True)
+            height = e.opts.get().kwargs.get("height", 300) + 10
+            panes.append(pn.pane.HoloViews(dm, sizing_mode="stretch_width" if wide else "fixed",
+                                           width=None if wide else 540, height=height, margin=(0, 6)))
+        self.plots[:] = panes
+
+
+def _signature(element) -> tuple:
+    """What must stay the same for a DynamicMap to redraw an element in place."""
+    if isinstance(element, hv.Overlay):
+        return ("Overlay", tuple((type(e).__name__, e.label) for e in element))
+    return (type(element).__name__,)
 
 
 # ---- 5. comparison ---------------------------------------------------------------------------

@@ -36,6 +36,7 @@ class SupportMap:
     centre: float
     scale: float
     power: float = 1.0
+    tail_power: float = 1.0
 
     @property
     def y_range(self) -> tuple[float, float]:
@@ -45,15 +46,26 @@ class SupportMap:
             return -1.0, 0.0
         return -1.0, 1.0
 
+    # For [lo, inf): z = y**power, 1 - w = (1 - z)**tail_power, t = lo + c*w/(1 - w).
+    # A tail f ~ t**-p with 1 < p < 2 becomes a smooth integrand with
+    # tail_power = 1/(p - 1), as the lower power does for a pole.
+    def _lower_w(self, y):
+        z = y ** self.power if self.power != 1.0 else y
+        if self.tail_power == 1.0:
+            return z, 1.0 - z
+        rest = (1.0 - z) ** self.tail_power
+        return 1.0 - rest, rest
+
     def to_t(self, y):
         y = np.asarray(y, dtype=float)
         c = self.scale
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             if np.isfinite(self.lo):
-                w = y ** self.power if self.power != 1.0 else y
                 if np.isfinite(self.hi):
+                    w = y ** self.power if self.power != 1.0 else y
                     return self.lo + (self.hi - self.lo) * w
-                return self.lo + c * w / (1.0 - w)
+                w, rest = self._lower_w(y)
+                return self.lo + c * w / rest
             if np.isfinite(self.hi):
                 return self.hi + c * y / (1.0 + y)
             return self.centre + c * y / (1.0 - y * y)
@@ -64,11 +76,14 @@ class SupportMap:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             if np.isfinite(self.lo):
                 p = self.power
-                w = y**p if p != 1.0 else y
-                dw = p * y ** (p - 1.0) if p != 1.0 else np.ones_like(y)
+                z = y**p if p != 1.0 else y
+                dz = p * y ** (p - 1.0) if p != 1.0 else np.ones_like(y)
                 if np.isfinite(self.hi):
-                    return (self.hi - self.lo) * dw
-                return c / (1.0 - w) ** 2 * dw
+                    return (self.hi - self.lo) * dz
+                q = self.tail_power
+                rest = (1.0 - z) ** q if q != 1.0 else 1.0 - z
+                dw = q * (1.0 - z) ** (q - 1.0) * dz if q != 1.0 else dz
+                return c / rest**2 * dw
             if np.isfinite(self.hi):
                 return c / (1.0 + y) ** 2
             return c * (1.0 + y * y) / (1.0 - y * y) ** 2
@@ -79,17 +94,33 @@ class SupportMap:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             if np.isfinite(self.lo):
                 if np.isfinite(self.hi):
-                    w = np.clip((t - self.lo) / (self.hi - self.lo), 0.0, 1.0)
+                    z = np.clip((t - self.lo) / (self.hi - self.lo), 0.0, 1.0)
                 else:
                     s = np.maximum(t - self.lo, 0.0) / c
-                    w = np.where(np.isinf(s), 1.0, s / (1.0 + s))
-                return w ** (1.0 / self.power) if self.power != 1.0 else w
+                    # 1 - w = 1/(1 + s); z = 1 - (1 - w)**(1/q), without cancellation
+                    z = np.where(np.isinf(s), 1.0, -np.expm1(-np.log1p(s) / self.tail_power))
+                return z ** (1.0 / self.power) if self.power != 1.0 else z
             if np.isfinite(self.hi):
                 s = np.minimum(t - self.hi, 0.0) / c
                 return np.where(np.isinf(s), -1.0, s / (1.0 - s))
             s = (t - self.centre) / c
             y = 2.0 * s / (1.0 + np.sqrt(1.0 + 4.0 * s * s))
             return np.where(np.isinf(s), np.sign(s), y)
+
+
+def upper_tail_power(g: Callable, lo: float, scale: float) -> float:
+    """tail_power 1/(p - 1) for a heavy tail g(t) ~ t**-p with 1 < p < 2 (else 1)."""
+    t = lo + scale * np.array([1e7, 1e9])
+    with np.errstate(all="ignore"):
+        v = np.asarray(g(t), dtype=float)
+    if not (np.all(np.isfinite(v)) and np.all(v > 0)):
+        return 1.0
+    p = -float(np.log(v[1] / v[0]) / np.log((t[1] - lo) / (t[0] - lo)))
+    snapped = round(p * 1000) / 1000      # round exponents, as for the lower end
+    p = snapped if abs(p - snapped) < 1e-5 else p
+    if not np.isfinite(p) or p >= 1.99 or p <= 1.0:
+        return 1.0
+    return float(np.clip(1.0 / (p - 1.0), 1.0, 20.0))
 
 
 def lower_end_exponent(g: Callable, lo: float, width: float) -> float | None:
@@ -153,11 +184,13 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
                 centre = float(probe[k])
                 positive = probe[values > values[k] * 1e-3]
                 scale = float(max(np.ptp(positive) / 4.0, 1e-8 * max(1.0, abs(centre))))
-    power = 1.0
+    power, tail = 1.0, 1.0
     if density is not None and np.isfinite(lo):
         width = (hi - lo) if np.isfinite(hi) else scale
         power = lower_end_power(density, lo, width)
-    return SupportMap(float(lo), float(hi), centre, scale, power)
+        if not np.isfinite(hi):
+            tail = upper_tail_power(density, lo, scale)
+    return SupportMap(float(lo), float(hi), centre, scale, power, tail)
 
 
 class CumulativeIntegral:
@@ -339,6 +372,22 @@ def invert_monotone(cdf: Callable, sf: Callable, u, mapping: SupportMap, pdf: Ca
     above = k >= t_grid.size
     k = np.clip(k, 1, t_grid.size - 1)
     a, b = t_grid[k - 1].copy(), t_grid[k].copy()
+    if np.any(above) and not np.isfinite(hi):
+        # Heavy tails reach beyond the grid: extend the bracket geometrically.
+        far = np.flatnonzero(above)
+        a[far] = t_grid[-1]
+        b[far] = t_grid[-1]
+        for _ in range(200):
+            with np.errstate(all="ignore"):
+                left = np.where(upper[far], sf(b[far]) > goal[far], cdf(b[far]) < goal[far])
+            if not left.any():
+                break
+            move = far[left]
+            a[move] = b[move]
+            b[move] = np.where(b[move] > 0, b[move] * 16.0, np.abs(b[move]) + 1.0)
+            if np.all(np.isinf(b[move])):
+                break
+        above = above & ~np.isfinite(b)
     x = _polish(cdf, sf, pdf, upper, goal, a, b)
     x = np.where(below, t_grid[0], x)
     x = np.where(above, t_grid[-1] if not np.isfinite(hi) else hi, x)

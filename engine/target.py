@@ -101,7 +101,12 @@ class Target:
             out = np.where((t > self.support[0]) & (t < self.support[1]), exact(t), 0.0)
             return out if out.ndim else float(out)
         lo, hi = self.support
-        h = 1e-3 * np.maximum(np.abs(t), self.mapping.scale)  # ~eps**(1/5), optimal for this stencil
+        # Step ~ eps**(1/5) of the local length scale (optimal for this stencil):
+        # the distance to a finite lower end (power-law behaviour there), capped
+        # by the model's scale; never |t|, which is large under a big location.
+        scale = self.mapping.scale
+        local = np.minimum(np.maximum(t - lo, 1e-9 * scale), scale) if np.isfinite(lo) else scale
+        h = 1e-3 * local
         # Keep the stencil inside the support.
         room = np.minimum(t - lo, hi - t) / 2.5
         h = np.where(np.isfinite(room), np.minimum(h, room), h)

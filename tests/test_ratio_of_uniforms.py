@@ -66,6 +66,9 @@ CASES = {
                               stats.fisk(1.5, scale=100.0).cdf),
     "birnbaum-saunders": (lambda: Target.family("birnbaum_saunders", shape=0.5, scale=100.0),
                           stats.fatiguelife(0.5, scale=100.0).cdf),
+    # 2/(pi (1 + t^2)) is the half-Cauchy law: t^2 f -> 2/pi, the boundary case where A is
+    # still bounded (its v-extent is reached only as t -> infinity).
+    "half-cauchy formula": (lambda: Target.density("1/(1+t*t)"), stats.halfcauchy().cdf),
     # Two wear-out modes far apart: bimodal, so not T_{-1/2}-concave (no squeeze).
     "bimodal mixture": (lambda: Target.mixture([Target.family("weibull", shape=3.0, scale=10.0),
                                                 Target.family("weibull", shape=4.0, scale=50.0)], [0.4, 0.6]),
@@ -235,12 +238,16 @@ def test_weibull_with_shape_below_one_is_refused_for_its_pole():
         RatioOfUniforms.build(Target.family("weibull", shape=0.7, scale=100.0))
 
 
-def test_tail_heavier_than_one_over_t_squared_is_refused():
+@pytest.mark.parametrize("make", [
     # Residual life of a loglogistic shape 0.8 unit past age 10: no pole (the age is
     # past it), but f ~ t^-1.8, so t sqrt f ~ t^0.1 grows without bound (v unbounded).
-    target = Target.family("loglogistic", shape=0.8, scale=100.0).given_survival(10.0)
+    lambda: Target.family("loglogistic", shape=0.8, scale=100.0).given_survival(10.0),
+    # A Lomax (Pareto II) density with shape 0.5: f ~ t^-1.5, t sqrt f ~ t^0.25.
+    lambda: Target.density("1/(1+t)**1.5"),
+], ids=["residual loglogistic 0.8", "lomax 0.5 formula"])
+def test_tail_heavier_than_one_over_t_squared_is_refused(make):
     with pytest.raises(MethodNotApplicable, match=r"heavier than 1/t\^2"):
-        RatioOfUniforms.build(target)
+        RatioOfUniforms.build(make())
 
 
 def test_loglogistic_shape_1_5_is_served():

@@ -5,17 +5,21 @@ from ..errors import ModelError
 from .base import Sampler
 from .composition import Composition
 from .inversion import Inversion, NumericalInversion
+from .leva import LevaNormal
+from .ratio_of_uniforms import RatioOfUniforms
 from .table import TableSampler
 
 #: method name -> the class whose ``build`` serves it
 METHODS: dict[str, type[Sampler]] = {
     "inversion": Inversion,
+    "ratio-of-uniforms": RatioOfUniforms,
     "table": TableSampler,
     "composition": Composition,
 }
 
 _ALL_CLASSES: dict[str, type[Sampler]] = {
-    cls.__name__: cls for cls in (Inversion, NumericalInversion, TableSampler, Composition)}
+    cls.__name__: cls for cls in (Inversion, NumericalInversion, RatioOfUniforms, LevaNormal,
+                                  TableSampler, Composition)}
 
 
 def register(name: str | None, *classes: type[Sampler]) -> None:

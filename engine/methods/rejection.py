@@ -191,8 +191,8 @@ class Rejection(Sampler):
         self._kinks = _declared_kinks(t)
         self._ends()
         self._kinks = self._kinks[(self._kinks > self.cL) & (self._kinks < self.cR)]
-        x, kind, lab, pieces = self._scan()
-        pts = self._initial_points(x, kind, lab, pieces)
+        pieces = self._scan()
+        pts = self._initial_points(pieces)
         reached = self._refine(pts, start)
         self._check_and_lift(pts)
         self._finish(pts, pieces, reached)
@@ -221,15 +221,23 @@ class Rejection(Sampler):
         """Where the hat starts and ends, and the masses beyond that inversion draws."""
         t = self.target
         lo, hi = t.support
+        # Beside a finite end where f is 0 or infinite, log f changes by a lot between
+        # neighbouring doubles when the end is far from 0 (a location parameter); the hat
+        # starts where ages are resolved to ~1e-9 relative to the distance from the end.
+        resolved = 2.0**30
         if np.isfinite(lo) and not t.pole_at_lower and self._regular_end(lo, 1.0):
             self.cL, self.FL = lo, 0.0
         else:
             self.cL = self._q[POLE_MASS if t.pole_at_lower else float(self._tail_p[0])]
+            if np.isfinite(lo):
+                self.cL = max(self.cL, lo + resolved * np.spacing(abs(lo)))
             self.FL = float(t.cdf(self.cL))
         if np.isfinite(hi) and self._regular_end(hi, -1.0):
             self.cR, self.SR = hi, 0.0
         else:
             self.cR = self._isf[float(self._tail_p[0])]
+            if np.isfinite(hi):
+                self.cR = min(self.cR, hi - resolved * np.spacing(abs(hi)))
             self.SR = float(t.sf(self.cR))
         if not (np.isfinite(self.cL) and np.isfinite(self.cR) and self.cL < self.cR):
             raise MethodNotApplicable("method", "could not place the hat: the model's quantiles at the "
@@ -238,8 +246,8 @@ class Rejection(Sampler):
     def _scan(self):
         """Dense look at log f: jumps, inflexion points and the concave/convex pieces.
 
-        Returns the grid (sorted), its point kinds, the cell labels (-1 concave, +1 convex)
-        and the pieces as (start, end, label) rows.
+        Returns the pieces as rows (start, end, label), label -1 where log f is concave
+        and +1 where it is convex; keeps the modes found on the way for construction points.
         """
         lo = self.target.support[0]
         cL, cR = self.cL, self.cR
@@ -276,7 +284,7 @@ class Rejection(Sampler):
         plab = np.where(votes > 0, 1, -1)
         pieces = np.column_stack([edges[:-1], edges[1:], plab])
         self._modes = self._find_modes(x, d, kind)
-        return x, kind, lab, pieces
+        return pieces
 
     def _resolve(self, x, kind, lm, lp, d):
         """Refine the scan until every cell sees log f as nearly quadratic.
@@ -365,7 +373,13 @@ class Rejection(Sampler):
             left = np.abs(lmid - la - (m - a) * s) >= np.abs(lb - lmid - (b - m) * s)
             b = np.where(active & left, m, b); lb = np.where(active & left, lmid, lb)
             a = np.where(active & ~left, m, a); la = np.where(active & ~left, lmid, la)
-        jump = np.abs(lb - la) > 1e-8
+        # A jump keeps its size as the bracket shrinks; smooth change (however steep, as
+        # next to a root or pole at an end) is matched by the change over the same width
+        # just beside the bracket.
+        w = b - a
+        beside = np.maximum(np.abs(la - self._logf(a - w)), np.abs(self._logf(b + w) - lb))
+        with np.errstate(invalid="ignore"):
+            jump = (np.abs(lb - la) > 1e-8) & (np.abs(lb - la) > 100 * beside)
         return np.unique(b[jump])
 
     def _cell_labels(self, x, lm, lp, d):
@@ -418,18 +432,21 @@ class Rejection(Sampler):
         return x[k] + (x[k + 1] - x[k]) * d[k] / (d[k] - d[k + 1])
 
     # ---- construction points -------------------------------------------------------------------
-    def _initial_points(self, x, kind, lab, pieces) -> dict:
-        t = self.target
+    def _initial_points(self, pieces) -> dict:
+        """Piece ends, modes and quantiles spread over the mass: the start of the construction."""
         spread = np.array([self._q[p] for p in self._start_p.tolist()] + [self._isf[1e-6], self._isf[1e-3]])
         inner = np.concatenate([spread, self._modes, pieces[:, 0], pieces[:, 1]])
         inner = inner[np.isfinite(inner) & (inner > self.cL) & (inner < self.cR)]
+        # A point within a few ulps of a kink or of another point adds nothing but noise.
+        tol = 64 * _EPS * np.maximum(np.abs(inner), self._spread)
+        if self._kinks.size:
+            gap = np.min(np.abs(inner[:, None] - self._kinks[None, :]), axis=1)
+            inner = inner[gap > tol]
+        inner = np.unique(inner)
+        if inner.size:
+            inner = inner[np.concatenate([[True], np.diff(inner) > 64 * _EPS * np.maximum(
+                np.abs(inner[1:]), self._spread)])]
         xs = np.unique(np.concatenate([[self.cL, self.cR], inner, self._kinks]))
-        # Points closer than a few ulps to a kink or another point add nothing.
-        tol = 64 * _EPS * np.maximum(np.abs(xs), self._spread)
-        keep = np.concatenate([[True], np.diff(xs) > tol[1:]])
-        keep |= np.isin(xs, self._kinks)
-        xs = xs[keep]
-        xs = np.unique(xs)
         pts = self._make_points(xs)
         self._piece_edges = pieces[:, :2]
         self._piece_labels = pieces[:, 2]
@@ -603,23 +620,37 @@ class Rejection(Sampler):
         where = xc.reshape(n, s.size)[np.arange(n), np.argmax(worst, axis=1)]
         return over_seg, under_seg, np.max(worst, axis=1), where
 
+    @staticmethod
+    def _noise(pts, seg):
+        """How far log f as computed can stray from a smooth curve, per segment: the models'
+        own accuracy (F_NOISE) plus the slope times the spacing of doubles at x, since an
+        age is known only to the nearest double (large for a location far from 0)."""
+        x, d, lm, lp = pts["x"], pts["d"], pts["lm"], pts["lp"]
+        chord = (lm[1:] - lp[:-1]) / np.diff(x)
+        steep = np.nanmax(np.abs(np.column_stack([d[:-1], d[1:], chord])), axis=1)
+        steep = np.repeat(np.where(np.isfinite(steep), steep, 0.0), 2)
+        spacing = np.spacing(np.maximum(np.abs(seg["x0"]), np.abs(seg["x1"])))
+        return F_NOISE + 16.0 * steep * spacing
+
     def _check_and_lift(self, pts) -> None:
         """Confirm hat >= f >= squeeze on a dense grid; split where a boundary was misplaced,
-        then lift each hat (lower each squeeze) by twice any excess left plus rounding."""
+        then lift each hat (lower each squeeze) by twice any excess left plus the noise."""
+        self._repairs = 0
         for _ in range(6):
             seg = self._segments(pts)
             over, under, worst, where = self._excess(pts, seg)
-            big = worst > BIG_EXCESS
+            noise = self._noise(pts, seg).reshape(-1, 2).max(axis=1)
+            big = worst > BIG_EXCESS + 4.0 * noise
             if not np.any(big) or pts["x"].size >= 4 * self.max_points:
                 break
-            self._insert(pts, where[big], relabel=True)
+            self._repairs += self._insert(pts, where[big], relabel=True)
         seg = self._segments(pts)
         over, under, worst, where = self._excess(pts, seg)
         xa, ya, qa, hat, sq = self._areas(seg)
         width = seg["x1"] - seg["x0"]
-        rounding = F_NOISE + 16 * _EPS * (1.0 + np.abs(ya) + np.abs(seg["hs"]) * width)
-        self._hat_lift = np.maximum(2.0 * over, 0.0) + rounding
-        self._sq_drop = np.maximum(2.0 * under, 0.0) + rounding
+        slack = self._noise(pts, seg) + 16 * _EPS * (1.0 + np.abs(ya) + np.abs(seg["hs"]) * width)
+        self._hat_lift = np.maximum(2.0 * over, 0.0) + slack
+        self._sq_drop = np.maximum(2.0 * under, 0.0) + slack
         self._max_excess = float(max(np.max(over), np.max(under), 0.0))
 
     def _finish(self, pts, pieces, reached) -> None:
@@ -653,6 +684,7 @@ class Rejection(Sampler):
             "convex_pieces": int(np.sum(pieces[:, 2] > 0)),
             "inversion_mass": self.FL + self.SR,
             "stopped_by": reached,
+            "repair_points": self._repairs,
             "max_lift": self._max_excess,
         })
 
