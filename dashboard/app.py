@@ -95,6 +95,15 @@ def serve(port: int = 5006, address: str = "127.0.0.1", scenario: str | None = N
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(levelname)s: %(message)s")
     if os.environ.get("LIFEDRAW_DEBUG"):
         log.setLevel(logging.DEBUG)
+        import gc
+        _gc_start = {}
+
+        def _gc_timer(phase, info):
+            if phase == "start":
+                _gc_start["t"] = time.perf_counter()
+            elif info["generation"] == 2:
+                log.debug("gc gen2 %.0f ms", 1e3 * (time.perf_counter() - _gc_start.get("t", 0)))
+        gc.callbacks.append(_gc_timer)
     url = f"http://{address}:{port}/"
     print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
     pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,

@@ -86,3 +86,48 @@ def _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out):
     np.multiply(width[k], acc, out=out)
     out += x0[k]
     return out
+
+
+# ---- Leva's normal: classify ratio-of-uniforms candidates (Leva 1992) -------------------
+
+def _leva_py(u, v, out, start, s, t, a, b, r1, r2):
+    """Examine candidates (u, v) in order; write accepted z = v/u into out[start:] until full.
+
+    Candidates past the point where ``out`` is full are still classified, so the
+    counts describe every candidate drawn (as the vectorised path does).
+    Returns (filled, accepted, squeezed, logs).
+    """
+    m = out.shape[0]
+    k = start
+    accepted = 0
+    squeezed = 0
+    logs = 0
+    for i in range(u.shape[0]):
+        ui = u[i]
+        vi = v[i]
+        x = ui - s
+        y = abs(vi) - t
+        q = x * x + y * (a * y - b * x)
+        ok = False
+        if q < r1:
+            squeezed += 1
+            ok = True
+        elif q <= r2:
+            logs += 1
+            ok = vi * vi <= -4.0 * ui * ui * np.log(ui)
+        if ok:
+            accepted += 1
+            if k < m:
+                out[k] = vi / ui
+                k += 1
+    return k - start, accepted, squeezed, logs
+
+
+_leva_jit = _jit(_leva_py)
+
+
+def leva_take(u, v, out, start, constants):
+    """Compiled candidate loop for Leva's generator (None when no JIT is available)."""
+    if _leva_jit is None:
+        return None
+    return _leva_jit(u, v, out, start, *constants)

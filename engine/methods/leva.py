@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import kernels
 from ..errors import MethodNotApplicable
 from ..target import Target
 from .base import Sampler
@@ -101,6 +102,8 @@ class LevaNormal(Sampler):
         """m standard normal deviates Z = V/U (into ``out`` if given), counting the cost."""
         out = np.empty(m) if out is None else out
         filled = 0
+        if kernels.HAVE_JIT:
+            return self._standard_normal_compiled(m, rng, out)
         while filled < m:
             need = m - filled
             # About one binomial sd more candidates than the shortfall needs: a second
@@ -119,6 +122,23 @@ class LevaNormal(Sampler):
             z /= u.take(take)
             out[filled:filled + z.size] = z
             filled += z.size
+        return out
+
+    def _standard_normal_compiled(self, m, rng, out):
+        """The same algorithm, candidates examined in order by a compiled loop (engine.kernels)."""
+        filled = 0
+        while filled < m:
+            need = m - filled
+            k = int(need / ACCEPTANCE + math.sqrt(need) + 16)
+            u, v = self._candidates(k, rng)
+            got, accepted, squeezed, logs = kernels.leva_take(u, v, out, filled, (S, T, A, B, R1, R2))
+            self.counts["uniforms"] += 2 * k
+            self.counts["candidates"] += k
+            self.counts["squeezed"] += squeezed
+            self.counts["accepted"] += accepted
+            self.counts["log_evals"] += logs
+            self.counts["density_evals"] += logs
+            filled += got
         return out
 
     def _fill(self, out, rng):

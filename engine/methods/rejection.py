@@ -13,9 +13,11 @@ The two ends of the support are cut off and drawn exactly by inversion (composit
 pole at the lower end (mass POLE_MASS) and the tails beyond mass 0.01 * tolerance, so the
 hat never relies on the shape of log f where it was not examined. Piece boundaries (the
 inflexion points of log f, kinks declared by the model, jumps found by a scan) are located
-numerically; a check of hat >= f >= squeeze on a dense grid in every interval follows, and
-any measurable excess, which can only come from rounding or from the numerical slopes of a
-model without an exact f', lifts that interval's hat (lowers its squeeze) by twice the excess.
+numerically; a check of hat >= f >= squeeze on a dense grid in every interval follows. Every
+hat is then lifted (every squeeze lowered) by the noise with which f can be computed (the
+models' accuracy, and the slope times the spacing of doubles) plus twice any excess the
+check found, which only rounding or the numerical slopes of a model without an exact f'
+can leave; the stats report that excess ("check_excess") and any repairs.
 """
 from __future__ import annotations
 
@@ -448,7 +450,7 @@ class Rejection(Sampler):
                 np.abs(inner[1:]), self._spread)])]
         xs = np.unique(np.concatenate([[self.cL, self.cR], inner, self._kinks]))
         pts = self._make_points(xs)
-        self._piece_edges = pieces[:, :2]
+        self._piece_rows = pieces[:, :2]
         self._piece_labels = pieces[:, 2]
         pts["lab"] = self._label_of(0.5 * (xs[:-1] + xs[1:]))
         # A concave interval needs a tangent at one end at least.
@@ -460,7 +462,7 @@ class Rejection(Sampler):
         return pts
 
     def _label_of(self, mids):
-        k = np.clip(np.searchsorted(self._piece_edges[:, 1], mids), 0, self._piece_labels.size - 1)
+        k = np.clip(np.searchsorted(self._piece_rows[:, 1], mids), 0, self._piece_labels.size - 1)
         return self._piece_labels[k].astype(float)
 
     def _make_points(self, xs) -> dict:
@@ -685,7 +687,7 @@ class Rejection(Sampler):
             "inversion_mass": self.FL + self.SR,
             "stopped_by": reached,
             "repair_points": self._repairs,
-            "max_lift": self._max_excess,
+            "check_excess": self._max_excess,
         })
 
     def _tabulate(self) -> None:
