@@ -137,8 +137,9 @@ def main(argv=None) -> int:
     finally:
         server.terminate()
         server.wait(timeout=10)
+    load = ", ".join(f"{v:.1f}" for v in os.getloadavg())
     print(f"scenario {args.scenario}, batch {args.batch:,}, {'streaming' if args.streaming else 'paused'}, "
-          f"{len(ms)} slider releases")
+          f"{len(ms)} slider releases; {os.cpu_count()} CPUs, load average {load}")
     print(f"release -> redraw: median {statistics.median(ms):.0f} ms, p95 {percentile(ms, 0.95):.0f} ms, "
           f"min {min(ms):.0f} ms, max {max(ms):.0f} ms")
     return 0

@@ -54,17 +54,21 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
     life.refresh()
 
     def tick():
-        # One bounded batch per tick; cells whose data changed since the last
-        # tick (geometry after a refit, life figures after a batch) follow here,
-        # so a slider release redraws the live check first.
+        # One bounded piece of work per tick, so the server answers the next user
+        # action quickly: after a refit the live check's other plots first, then
+        # the geometry; otherwise the next batch (and its life figures).
         try:
             start = time.perf_counter()
-            with pn.io.hold():
-                if state.running:
+            with pn.io.hold(freeze=True):
+                if live.stale:
+                    live.refresh_secondary()
+                elif geometry.stale:
+                    geometry.refresh()
+                elif state.running:
                     state.step()
-                live.refresh_secondary()
-                geometry.refresh()
-                life.refresh()
+                    life.refresh()
+                else:
+                    life.refresh()
             log.debug("tick took %.0f ms", 1e3 * (time.perf_counter() - start))
         except Exception:
             log.exception("unexpected error in the periodic update")

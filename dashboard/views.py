@@ -116,7 +116,9 @@ class Cell:
         """Run a user action with all the page updates it causes sent as one message."""
         try:
             start = time.perf_counter()
-            with pn.io.hold():
+            # freeze: one recomputation of the document's model graph per action,
+            # not one per plot that HoloViews updates.
+            with pn.io.hold(freeze=True):
                 out = fn(*args, **kwargs)
             log.debug("%s took %.0f ms", getattr(fn, "__name__", fn), 1e3 * (time.perf_counter() - start))
             return out
@@ -460,6 +462,10 @@ class LiveCheckCell(Cell):
         if not self._stale:
             self._texts()
 
+    @property
+    def stale(self) -> bool:
+        return self._stale
+
     def refresh_secondary(self):
         if self._stale:
             self._stale = False
@@ -501,6 +507,10 @@ class GeometryCell(Cell):
 
     def body(self):
         return [self.caption, self.plots]
+
+    @property
+    def stale(self) -> bool:
+        return (self.state.version, id(self.state.sampler)) != self._shown
 
     def refresh(self):
         """Redraw after a refit: in place through the Pipes while the pictures keep their
@@ -578,7 +588,7 @@ class ComparisonCell(Cell):
             target, seed, tol = s.target, int(s.seed), float(s.tolerance)
             loop = asyncio.get_running_loop()
             result = await loop.run_in_executor(None, _measure, target, n, seed, tol)
-            with pn.io.hold():
+            with pn.io.hold(freeze=True):
                 s.set_comparison(result, n)
         finally:
             self.run.loading = False
@@ -693,7 +703,7 @@ class ReportCell(Cell):
             rows = list(s.comparison) or None
             loop = asyncio.get_running_loop()
             result = await loop.run_in_executor(None, _write_report, write_report, scenario, path, rows)
-            with pn.io.hold():
+            with pn.io.hold(freeze=True):
                 if isinstance(result, Exception):
                     s.report_failed(result)
                     self.path.object = ""

@@ -262,6 +262,18 @@ class ResidualTarget(Target):
             return x
         return invert_monotone(self.cdf, self.sf, u, self.mapping, pdf=self.pdf)
 
+    def _isf(self, v):
+        v = np.asarray(v, dtype=float)
+        if self.base.exact_quantile and self.base.atoms.size == 0:
+            # R(a + x) = v R(a): the base model's own upper tail keeps the digits.
+            return np.maximum(self.base.isf(v * self.r_age) - self.age, self.support[0])
+        return super()._isf(v)
+
+    def breakpoints(self) -> list[float]:
+        lo, hi = self.support
+        shifted = [b - self.age for b in getattr(self.base, "breakpoints", lambda: [])()]
+        return [b for b in shifted if lo < b < hi]
+
     def atom_masses(self):
         return [(t - self.age, p / self.r_age) for t, p in self.base.atom_masses() if t > self.age]
 

@@ -7,18 +7,20 @@ from .composition import Composition
 from .inversion import Inversion, NumericalInversion
 from .leva import LevaNormal
 from .ratio_of_uniforms import RatioOfUniforms
+from .rejection import Rejection
 from .table import TableSampler
 
 #: method name -> the class whose ``build`` serves it
 METHODS: dict[str, type[Sampler]] = {
     "inversion": Inversion,
+    "rejection": Rejection,
     "ratio-of-uniforms": RatioOfUniforms,
     "table": TableSampler,
     "composition": Composition,
 }
 
 _ALL_CLASSES: dict[str, type[Sampler]] = {
-    cls.__name__: cls for cls in (Inversion, NumericalInversion, RatioOfUniforms, LevaNormal,
+    cls.__name__: cls for cls in (Inversion, NumericalInversion, Rejection, RatioOfUniforms, LevaNormal,
                                   TableSampler, Composition)}
 
 
