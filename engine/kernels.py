@@ -131,3 +131,63 @@ def leva_take(u, v, out, start, constants):
     if _leva_jit is None:
         return None
     return _leva_jit(u, v, out, start, *constants)
+
+
+# ---- rejection from a piecewise-exponential hat (engine.methods.rejection) ---------------
+
+def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status):
+    """Candidates from the hat and their squeeze test, one pass.
+
+    status[i]: 0 accepted by the squeeze, 1 needs the density, 2 / 3 drawn by
+    inversion below / above the hat (x left for the caller).
+    The arithmetic follows Rejection._propose term by term.
+    """
+    n = u.shape[0]
+    top = cum.shape[0] - 1
+    g_size = guide.shape[0]
+    for i in range(n):
+        uA = u[i] * total
+        # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
+        g = int(u[i] * g_size)
+        if g >= g_size:
+            g = g_size - 1
+        k = guide[g]
+        while k < top and cum[k] <= uA:
+            k += 1
+        if k > last:
+            k = last
+        if k == 0:
+            status[i] = 2
+            continue
+        if k == top:
+            status[i] = 3
+            continue
+        w = (uA - table[k, 0]) * table[k, 1]
+        w = min(max(w, 0.0), 1.0)
+        width = table[k, 2]
+        if table[k, 5] > 0:
+            d = w * width
+        else:
+            d = np.log1p(w * table[k, 3]) * table[k, 4]
+        d = min(max(d, 0.0), width)
+        xi = table[k, 6] + table[k, 7] * d
+        lh = table[k, 8] + table[k, 9] * d
+        ls = table[k, 10] + table[k, 11] * (xi - table[k, 6])
+        x[i] = xi
+        loghat[i] = lh
+        status[i] = 0 if v[i] <= np.exp(min(ls - lh, 0.0)) else 1
+
+
+_hat_propose_jit = _jit(_hat_propose_py)
+
+
+def hat_propose(u, v, cum, guide, total, last, table):
+    """Compiled candidate pass for rejection (None when no JIT is available)."""
+    if _hat_propose_jit is None:
+        return None
+    n = u.shape[0]
+    x = np.empty(n)
+    loghat = np.empty(n)
+    status = np.empty(n, dtype=np.int8)
+    _hat_propose_jit(u, v, cum, guide, float(total), int(last), table, x, loghat, status)
+    return x, loghat, status

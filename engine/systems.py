@@ -143,7 +143,7 @@ def _as_array(t) -> np.ndarray:
 
 
 def _scalar_or_array(x: np.ndarray, like: np.ndarray):
-    return float(x) if np.ndim(like) == 0 else x.reshape(np.shape(like))
+    return float(x.reshape(-1)[0]) if np.ndim(like) == 0 else x.reshape(np.shape(like))
 
 
 # ---- systems -------------------------------------------------------------------------------
@@ -694,20 +694,22 @@ def _mean_by_integration(block: _Block) -> float:
 
 
 def _integral_of(fn, a, b, tail_from=None, tail_scale=1.0) -> float:
-    """Sum of integral_a^b fn over pieces, plus integral from ``tail_from`` to +-inf
-    (t = tail_from + c w / (1 - w), c = tail_scale, whose sign gives the direction)."""
+    """Sum of integral_a^b fn over the pieces, plus the integral from ``tail_from`` to +inf
+    (or -inf when ``tail_scale`` < 0) mapped to [0, 1) by t = tail_from + c w / (1 - w)."""
     pieces = a.size
     problems = pieces + (tail_from is not None)
     if problems == 0:
         return 0.0
+    a_all = np.concatenate([a, [tail_from if tail_from is not None else 0.0]])
+    b_all = np.concatenate([b, [0.0]])
 
     def integrand(pid, w):
         tail = pid >= pieces
-        piece = np.minimum(pid, max(pieces - 1, 0))
-        width = np.where(tail, 0.0, (b[piece] - a[piece]) if pieces else 0.0)
-        t = np.where(tail, (tail_from or 0.0) + tail_scale * w / (1.0 - w), (a[piece] if pieces else 0.0) + width * w)
-        jacobian = np.where(tail, abs(tail_scale) / (1.0 - w) ** 2, width)
-        return (fn(t) * jacobian)[None, :]
+        width = np.where(tail, 0.0, b_all[pid] - a_all[pid])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t = np.where(tail, a_all[pid] + tail_scale * w / (1.0 - w), a_all[pid] + width * w)
+            jacobian = np.where(tail, abs(tail_scale) / (1.0 - w) ** 2, width)
+            return (fn(t) * jacobian)[None, :]
     return float(np.sum(_adaptive_integral(integrand, problems, 1, epsrel=1e-11)))
 
 

@@ -27,6 +27,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import kernels
 from ..errors import MethodNotApplicable, ModelError, finite_number, sample_size
 from ..target import Target
 from .base import Sampler
@@ -787,14 +788,41 @@ class Rejection(Sampler):
             accepted[test] = v[test] * np.exp(loghat[test]) <= f
         return accepted, squeezed, test
 
+    def _propose_and_decide(self, n, rng):
+        """Candidates and their verdicts: the compiled pass (engine.kernels) where
+        available, else the vectorised numpy pass; both consume the same uniforms."""
+        if not kernels.HAVE_JIT:
+            x, v, loghat, logsq, exact, used = self._propose(n, rng)
+            return (x, *self._decide(x, v, loghat, logsq, exact), used)
+        u = rng.random(n)
+        v = rng.random(n)
+        used = 2 * n
+        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
+        guide = getattr(self, "_guide", None)
+        if guide is None or guide.size != 2 * self.cum.size:
+            # guide[j] = first piece whose cumulative end exceeds j/G of the total (derived, not saved).
+            levels = np.arange(2 * self.cum.size) / (2 * self.cum.size) * self.total
+            self._guide = guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
+        x, loghat, status = kernels.hat_propose(u, v, self.cum, guide, self.total, last, self._table)
+        for side, code in ((0, 2), (1, 3)):
+            mask = status == code
+            if np.any(mask):
+                x[mask], extra = self._end_draws(side, int(mask.sum()), rng)
+                used += extra
+        squeezed = status == 0
+        test = status == 1
+        accepted = status != 1
+        if np.any(test):
+            accepted[test] = v[test] * np.exp(loghat[test]) <= self.target.pdf(x[test])
+        return x, accepted, squeezed, test, used
+
     def _draw(self, m, rng):
         out = np.empty(m)
         got = 0
         while got < m:
             need = m - got
             n = int(need * self.total * 1.02) + 16
-            x, v, loghat, logsq, exact, used = self._propose(n, rng)
-            accepted, squeezed, tested = self._decide(x, v, loghat, logsq, exact)
+            x, accepted, squeezed, tested, used = self._propose_and_decide(n, rng)
             c = self.counts
             c["uniforms"] += used
             c["candidates"] += n
