@@ -11,6 +11,9 @@ from .storage import load_sampler as load
 from .check import check
 from .life import exact_life_figures, life_summary
 from .fitting import fit_family
+from .generate import generate
+from .systems import k_out_of_n, parallel, series, standby
 
 __all__ = ["Target", "fit", "load", "check", "life_summary", "exact_life_figures", "fit_family",
-           "applicable_methods", "ModelError", "MethodNotApplicable"]
+           "applicable_methods", "generate", "series", "parallel", "k_out_of_n", "standby",
+           "ModelError", "MethodNotApplicable"]

@@ -45,3 +45,23 @@ def _compare(sub):
     p.add_argument("--seed", type=int, default=None)
     p.add_argument("--tolerance", type=float, default=None)
     p.set_defaults(func=run)
+
+
+# The browser workbench and the HTML report live in the dashboard package; its
+# commands module is light (argparse only) and imports Panel only when run.
+@command
+def _serve(sub):
+    from dashboard.commands import add_serve_parser
+    add_serve_parser(sub)
+
+
+@command
+def _report(sub):
+    from dashboard.commands import add_report_parser
+    add_report_parser(sub)
+
+
+@command
+def _generate(sub):
+    from .generate import add_generate_parser
+    add_generate_parser(sub)

@@ -42,8 +42,28 @@ def _from_json(value):
     return value
 
 
+def dumps(sampler) -> bytes:
+    """The sampler file's bytes (the same format as ``save``), for shipping or pickling."""
+    import io
+    buffer = io.BytesIO()
+    _write(sampler, buffer)
+    return buffer.getvalue()
+
+
+def loads(blob: bytes):
+    """A sampler from ``dumps`` bytes."""
+    import io
+    return load_sampler(io.BytesIO(blob))
+
+
 def save_sampler(sampler, path) -> Path:
     path = Path(path)
+    with open(path, "wb") as fh:
+        _write(sampler, fh)
+    return path
+
+
+def _write(sampler, fh) -> None:
     meta = {"format": FORMAT, "version": VERSION, "method": sampler.method,
             "class": type(sampler).__name__, "tolerance": sampler.tolerance,
             "setup_seconds": sampler.setup_seconds, "reason": sampler.reason,
@@ -51,16 +71,14 @@ def save_sampler(sampler, path) -> Path:
     blob = json.dumps(_jsonable(meta), allow_nan=False).encode("utf-8")
     arrays = {f"table.{k}": np.ascontiguousarray(v) for k, v in sampler._tables().items()}
     arrays[META_KEY] = np.frombuffer(blob, dtype=np.uint8)
-    with open(path, "wb") as fh:
-        np.savez(fh, **arrays)
-    return path
+    np.savez(fh, **arrays)
 
 
 def load_sampler(path):
     """Rebuild a sampler saved with ``sampler.save(path)``."""
     from .specs import target_from_spec
 
-    path = Path(path)
+    path = path if hasattr(path, "read") else Path(path)
     try:
         with np.load(path, allow_pickle=False) as archive:
             if META_KEY not in archive.files:

@@ -14,7 +14,7 @@ import math
 from typing import Any, Mapping, Sequence
 
 import numpy as np
-from scipy import integrate, special
+from scipy import special
 
 from .errors import ModelError, sample_size
 from .methods.base import CHUNK, Sampler
@@ -97,9 +97,10 @@ class Component(_Block):
         return q[np.isfinite(q)]
 
     def spec(self) -> dict:
-        out = {**({"name": self.name} if self.name else {}), **self.target.spec()}
-        if self.sampler.method != "inversion":
-            out["method"] = self.sampler.method
+        """The model table plus the method (and a non-default tolerance) that drew it."""
+        out = {**({"name": self.name} if self.name else {}), **self.target.spec(), "method": self.sampler.method}
+        if self.sampler.tolerance != 1e-10:
+            out["tolerance"] = self.sampler.tolerance
         return out
 
     def describe(self) -> str:
@@ -381,13 +382,15 @@ class KOutOfN(System):
 class Standby(System):
     """Cold standby with perfect switching: T = T_1 + ... + T_n (e-Handbook 8.1.8.5).
 
-    R(t) = R_1(t) + integral_0^t f_1(s) R_rest(t - s) ds, the handbook's convolution
-    written in the first part's probability scale, s = Q_1(v):
-    R(t) = R_1(t) + integral_0^{F_1(t)} R_rest(t - Q_1(v)) dv, and F(t) likewise with F_rest.
-    That form needs no density, so poles, atoms and failure-free periods cost nothing;
-    the integrals are adaptive Gauss-Kronrod (scipy's quad_vec) to a relative 1e-10.
-    A part with an inverse CDF (a component) is put first; if every part is itself a
-    system, the density form with the first part's f is used.
+    R(t) = R_1(t) + integral_0^t f_1(s) R_rest(t - s) ds, the handbook's convolution,
+    is written in the first part's probability scale, s = Q_1(v):
+    R(t) = R_1(t) + integral_0^{F_1(t)} R_rest(t - Q_1(v)) dv, and F(t) likewise with F_rest
+    (v up to 1/2; beyond, u = 1 - v on a log scale, so far-tail values keep their digits).
+    That form needs no density, so density poles, atoms and failure-free periods cost
+    nothing. Integrals are adaptive and vectorised (``_adaptive_integral``), to a relative
+    1e-10 of each value; a rest of several parts nests them. A component (which has an
+    inverse CDF) is put first; if every part is itself a system, the density form with the
+    first part's f is used.
     """
 
     kind = "standby"
@@ -622,7 +625,7 @@ def _adaptive_integral(integrand, problems: int, rows: int, epsrel: float = _EPS
     whole; while a problem's summed error exceeds epsrel x |value| (or rounding level),
     its intervals with the largest errors are halved. One numpy call per round, so
     integrals nested in the integrand (standby of three or more parts) stay vectorised.
-    ``max_open`` caps the work: beyond it the intervals are accepted as they stand.
+    ``max_open`` (or 8 per problem) caps the work: beyond it intervals are accepted as they stand.
     """
     def rule(pid, a, b):
         half = 0.5 * (b - a)
@@ -655,7 +658,7 @@ def _adaptive_integral(integrand, problems: int, rows: int, epsrel: float = _EPS
         tol = np.maximum(epsrel * np.abs(per_problem(val, pid)), 64 * np.finfo(float).eps * per_problem(mag, pid))
         ratio = np.max(err / np.where(tol > 0, tol, np.finfo(float).tiny)[:, pid], axis=0)
         finished = per_problem(ratio, pid) <= 1.0
-        if round_ == max_rounds - 1 or pid.size > max_open:
+        if round_ == max_rounds - 1 or pid.size > max(max_open, 8 * problems):
             finished[:] = True
         closing = finished[pid]
         done += per_problem(val[:, closing], pid[closing])

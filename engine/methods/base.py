@@ -134,5 +134,11 @@ class Sampler:
         from ..storage import save_sampler
         save_sampler(self, path)
 
+    def __reduce__(self):
+        # Pickle through the portable file format: targets hold compiled formula
+        # closures that pickle cannot carry, the file's spec and tables can.
+        from ..storage import dumps, loads
+        return loads, (dumps(self),)
+
     def __repr__(self) -> str:
         return f"<{type(self).__name__} method={self.method!r} target={self.target!r}>"
