@@ -11,7 +11,8 @@ from typing import Any, Mapping
 from .errors import ModelError
 from .target import Target
 
-KINDS = ("family", "density", "hazard", "cdf", "histogram", "failures", "mixture", "competing", "residual")
+KINDS = ("family", "density", "hazard", "cdf", "histogram", "failures", "mixture", "competing", "residual",
+         "system")
 
 
 def _get(spec: Mapping, key: str, path: str):
@@ -56,6 +57,9 @@ def target_from_spec(spec: Mapping[str, Any], path: str = "model") -> Target:
             comps = [target_from_spec(c, f"{path}.components[{i}]")
                      for i, c in enumerate(_get(spec, "components", path))]
             return Target.competing(comps)
+        if kind == "system":
+            from .systems import SystemTarget, system_from_spec
+            return SystemTarget(system_from_spec(_get(spec, "system", path)))
         if kind == "residual":
             base = target_from_spec(_get(spec, "base", path), f"{path}.base")
             return base.given_survival(_get(spec, "age", path))

@@ -337,3 +337,22 @@ def test_describe_names_each_part_and_rule():
     text = system_from_scenario(load_scenario("pumping-station-system")).describe()
     for words in ("pumping station", "control panel", "duty pump", "spare pump", "cold standby", "8.1.8.5"):
         assert words in text
+
+
+def test_a_system_seen_as_a_target_passes_the_checks_against_its_own_draws():
+    # The Target view (exact R, F, f from the structure) must agree with the
+    # structure's own draws: KS at 3000 draws (the exact convolution costs
+    # ~0.5 ms a point) and the life figures' intervals covering the exact values.
+    from engine.scenarios import load_scenario
+    from engine.systems import as_target, system_from_scenario
+
+    system = system_from_scenario(load_scenario("pumping-station-system"))
+    target = as_target(system)
+    draws = system.sample(3000, 2026)
+    assert stats.kstest(draws, target.cdf).pvalue > 1e-3
+    exact = engine.exact_life_figures(target, [8760.0])
+    summary = engine.life_summary(system.sample(200_000, 7), [8760.0])
+    assert summary["mttf"]["lower"] <= exact["mttf"]["value"] <= summary["mttf"]["upper"]
+    r = summary["reliability"][0]
+    assert r["lower"] <= exact["reliability"][0]["value"] <= r["upper"]
+    assert engine.Target.from_spec(target.spec()).system.spec() == system.spec()
