@@ -6,9 +6,11 @@ bounded batch per tick, so the page never freezes and each tab has its own strea
 """
 from __future__ import annotations
 
+import gc
 import html
 import logging
 import os
+import socket
 import time
 from pathlib import Path
 
@@ -21,7 +23,8 @@ from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveC
 log = logging.getLogger("lifedraw.dashboard")
 
 TITLE = "lifedraw — lifetime sampler workbench"
-TICK_MS = 400
+TICK_MS = 250
+DRAG_GRACE_S = 0.6
 PAGE_CSS = """
 body { background: #f3f4f6; font-family: -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif; }
 """
@@ -32,10 +35,37 @@ p { margin: 0; color: #4b5563; font-size: 14px; }
 
 
 def _configure() -> None:
-    # Panel serves its own and Bokeh's files from the server in server mode;
-    # inline resources and no CDN make that explicit for every extension too.
+    # In server mode Panel serves Bokeh's and its own files from /static; inline
+    # resources keep any exported output self-contained too. Nothing points at a CDN
+    # (the browser test aborts every request that leaves the server).
     pn.config.inline = True
     pn.extension(raw_css=[PAGE_CSS], notifications=False, design="native")
+
+
+def _log_timings() -> None:
+    """LIFEDRAW_DEBUG=1: log each action's and tick's duration and every full garbage collection."""
+    log.setLevel(logging.DEBUG)
+    started = {}
+
+    def timer(phase, info):
+        if phase == "start":
+            started["t"] = time.perf_counter()
+        elif info["generation"] == 2:
+            log.debug("gc gen2 %.0f ms", 1e3 * (time.perf_counter() - started.get("t", 0.0)))
+
+    gc.callbacks.append(timer)
+
+
+def _settle_memory() -> None:
+    """Move the page's long-lived objects out of the garbage collector's way.
+
+    A full collection walks every object the page holds (thousands of Bokeh
+    models, HoloViews plots) and stalls the event loop for a few hundred ms;
+    after ``gc.freeze`` it walks only what the stream creates. The session's
+    end unfreezes them again so they can be collected.
+    """
+    gc.collect()
+    gc.freeze()
 
 
 def default_report_dir() -> Path:
@@ -47,28 +77,36 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
     """Build one session's page: a fresh ``Workbench`` and the seven cells that present it."""
     state = Workbench(scenario)
     report_dir = Path(report_dir or default_report_dir())
-    model, generator = ModelCell(state), GeneratorCell(state)
+    # While a slider handle moves the stream yields, so its release finds the server idle.
+    yield_until = [0.0]
+
+    def dragging():
+        yield_until[0] = time.monotonic() + DRAG_GRACE_S
+
+    model, generator = ModelCell(state, on_drag=dragging), GeneratorCell(state)
     live, geometry, comparison = LiveCheckCell(state), GeometryCell(state), ComparisonCell(state)
     life, report = LifeCell(state), ReportCell(state, report_dir)
     geometry.refresh()
     life.refresh()
 
     def tick():
-        # One bounded piece of work per tick, so the server answers the next user
-        # action quickly: after a refit the live check's other plots first, then
-        # the geometry; otherwise the next batch (and its life figures).
+        # One bounded piece of work per tick, so the server answers the next user action
+        # quickly: a batch (histogram), then the live check's other plots and the life
+        # figures, then, after a refit, the geometry; nothing while a slider moves.
+        if time.monotonic() < yield_until[0]:
+            return
         try:
             start = time.perf_counter()
             with pn.io.hold(freeze=True):
                 if live.stale:
                     live.refresh_secondary()
+                    life.refresh()
                 elif geometry.stale:
                     geometry.refresh()
+                elif life.stale:
+                    life.refresh()
                 elif state.running:
                     state.step()
-                    life.refresh()
-                else:
-                    life.refresh()
             log.debug("tick took %.0f ms", 1e3 * (time.perf_counter() - start))
         except Exception:
             log.exception("unexpected error in the periodic update")
@@ -84,8 +122,8 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
     if pn.state.curdoc is not None and pn.state.curdoc.session_context is not None:
         callback = pn.state.add_periodic_callback(tick, period=TICK_MS)
-        pn.state.on_session_destroyed(lambda ctx: callback.stop())
-    page._lifedraw_state = state          # for tests that build the page without a server
+        pn.state.onload(_settle_memory)
+        pn.state.on_session_destroyed(lambda ctx: (callback.stop(), gc.unfreeze()))
     return page
 
 
@@ -98,20 +136,15 @@ def serve(port: int = 5006, address: str = "127.0.0.1", scenario: str | None = N
     _configure()
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(levelname)s: %(message)s")
     if os.environ.get("LIFEDRAW_DEBUG"):
-        log.setLevel(logging.DEBUG)
-        import gc
-        _gc_start = {}
-
-        def _gc_timer(phase, info):
-            if phase == "start":
-                _gc_start["t"] = time.perf_counter()
-            elif info["generation"] == 2:
-                log.debug("gc gen2 %.0f ms", 1e3 * (time.perf_counter() - _gc_start.get("t", 0)))
-        gc.callbacks.append(_gc_timer)
+        _log_timings()
+    logging.getLogger("tornado.access").setLevel(logging.WARNING)
+    origins = {f"{address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"}
+    if address in ("0.0.0.0", "::", ""):
+        # Bound to every interface on purpose: accept this machine's own names as origins.
+        origins |= {f"{socket.gethostname()}:{port}", f"{socket.getfqdn()}:{port}"}
     url = f"http://{address}:{port}/"
     print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
     pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
-             websocket_origin=[f"{address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"],
-             show=show, threaded=False, title=TITLE, verbose=False)
+             websocket_origin=sorted(origins), show=show, threaded=False, title=TITLE, verbose=False)
     print("lifedraw workbench: stopped", flush=True)
     return 0

@@ -12,6 +12,7 @@ import math
 
 import holoviews as hv
 import numpy as np
+from bokeh.models import NumeralTickFormatter
 
 if "bokeh" not in hv.Store.renderers:
     hv.extension("bokeh", logo=False)
@@ -38,8 +39,17 @@ def _size(width, height):
 
 
 def _common(title, width, height, **extra):
+    # framewise: ranges follow each new frame of a live plot (a refit can move them anywhere).
     return dict(title=title, show_grid=True, fontsize=FONTS, default_tools=TOOLS, toolbar="right",
-                **_size(width, height), **extra)
+                framewise=True, **_size(width, height), **extra)
+
+
+def _finish(obj, **opts):
+    """Apply the plot options; in an overlay every layer is also marked framewise, since
+    HoloViews recomputes a live overlay's ranges only for layers that ask for it."""
+    if isinstance(obj, hv.Overlay):
+        obj = obj.map(lambda e: e.opts(framewise=True), hv.Element)
+    return obj.opts(**opts)
 
 
 def unit_singular(unit: str) -> str:
@@ -74,9 +84,13 @@ def density_histogram(data: dict, width=None, height=320) -> hv.Overlay:
     age = hv.Dimension("age", label=age_label(unit))
     dens = hv.Dimension("density", label=f"density (1/{per})" if per else "density")
     if log:
+        # Bars from 0 cannot be drawn on a log axis: the draws become a step outline.
         density = np.where(density > 0, density, np.nan)
-    bars = hv.Histogram((edges, density), kdims=[age], vdims=[dens], label="draws").opts(
-        fill_color=DRAWS, fill_alpha=0.55, line_color=DRAWS, line_alpha=0.8, line_width=0.5)
+        sx, sy = _steps(edges, density)
+        bars = hv.Curve((sx, sy), age, dens, label="draws").opts(color=DRAWS, line_width=2)
+    else:
+        bars = hv.Histogram((edges, density), kdims=[age], vdims=[dens], label="draws").opts(
+            fill_color=DRAWS, fill_alpha=0.55, line_color=DRAWS, line_alpha=0.8, line_width=0.5)
     if data.get("model_x") is not None:
         y = np.asarray(data["model_pdf"], dtype=float)
         model = hv.Curve((data["model_x"], np.where(y > 0, y, np.nan) if log else y), age, dens,
@@ -100,7 +114,7 @@ def density_histogram(data: dict, width=None, height=320) -> hv.Overlay:
         top = float(positive.max()) if positive.size else 1.0
         bottom = float(positive.min()) if positive.size else top * 1e-6
         opts.update(logy=True, ylim=(max(bottom / 2, top * 1e-9), top * 2))
-    return (bars * model).opts(**opts)
+    return _finish(bars * model, **opts)
 
 
 def qq_plot(data: dict, width=None, height=280) -> hv.Overlay:
@@ -114,8 +128,8 @@ def qq_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([lo, hi], [lo, hi]), mx, sy, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((model, sample), mx, sy, label="quantiles").opts(color=DRAWS, size=4, tools=["hover"])
     n = int(data.get("n", 0))
-    return (line * pts).opts(**_common(f"QQ plot ({n:,} draws in the sample)", width, height,
-                                       legend_position="top_left"))
+    return _finish(line * pts, **_common(f"QQ plot ({n:,} draws in the sample)", width, height,
+                                         legend_position="top_left"))
 
 
 def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
@@ -124,8 +138,8 @@ def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([0, 1], [0, 1]), mx, ey, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((data["model"], data["empirical"]), mx, ey, label="probabilities").opts(
         color=DRAWS, size=4, tools=["hover"])
-    return (line * pts).opts(**_common("PP plot", width, height, legend_position="top_left",
-                                       xlim=(0, 1), ylim=(0, 1)))
+    return _finish(line * pts, **_common("PP plot", width, height, legend_position="top_left",
+                                         xlim=(0, 1), ylim=(0, 1)))
 
 
 def trace_plot(data: dict, key: str, width=None, height=240) -> hv.Overlay:
@@ -149,23 +163,25 @@ def trace_plot(data: dict, key: str, width=None, height=240) -> hv.Overlay:
         ylim = (max(0.0, float(finite.min()) - 0.05) if finite.size else 0.0, 1.02)
     curve = hv.Curve((n, y), nd, yd).opts(color=DRAWS, line_width=2, tools=["hover"])
     dots = hv.Scatter((n, y), nd, yd).opts(color=DRAWS, size=4)
-    opts = _common(title, width, height, ylim=ylim)
-    if n.size and n.max() > n.min() * 10:
-        opts["logx"] = True
-    return (curve * dots * ref).opts(**opts)
+    # Linear from 0 so the first batches sit at the left; the axis type cannot change
+    # while the plot lives, so no switch to log as draws pile up.
+    right = float(n.max()) * 1.05 if n.size else 1.0
+    opts = _common(title, width, height, ylim=ylim, xlim=(0.0, right), xformatter="%d")
+    return _finish(curve * dots * ref, **opts)
 
 
 # ---- method geometry ------------------------------------------------------------------------
 
 def geometry_plots(geom: dict, unit: str = "", fallback: dict | None = None, width=None,
-                   height=300) -> list:
+                   height=300, view: tuple[float, float] | None = None) -> list:
     """Pictures of how the method works, chosen by the keys its ``geometry()`` returned.
 
     ``fallback`` (``{"x", "pdf", "draws"}``) draws the density and a histogram of
-    draws when the method's picture is not one this module knows.
+    draws when the method's picture is not one this module knows; ``view`` is the
+    range of ages the linear pictures show (the live histogram's), if given.
     """
     if "candidates" in geom and "hat" in geom:
-        return _rejection_plots(geom, unit, width, height)
+        return _rejection_plots(geom, unit, width, height, view)
     if "boundary_u" in geom and "candidates_u" in geom:
         return [_ratio_of_uniforms_plot(geom, width, height)]
     if "u_error" in geom and "u" in geom:
@@ -192,8 +208,8 @@ def _inversion_plots(g, unit, width, height):
     curve = hv.Curve((u, err), ud, ed, label="u-error").opts(color=DRAWS, line_width=1.5, tools=["hover"])
     line = hv.HLine(tol, label="tolerance").opts(color=MODEL, line_dash="dashed", line_width=1.5)
     top = max(float(err.max()), tol) * 10
-    uerr = (curve * line).opts(**_common(f"u-error against the tolerance {tol:g} (floor 1e-17)", width,
-                                         height, logy=True, ylim=(1e-17, top)))
+    uerr = _finish(curve * line, **_common(f"u-error against the tolerance {tol:g} (floor 1e-17)", width,
+                                           height, logy=True, ylim=(1e-17, top)))
     return [inv, uerr]
 
 
@@ -214,9 +230,8 @@ def _table_plots(g, unit, width, height):
         pa = p[:-1] if tail else p
         first = hv.Spikes((atoms, pa), kdims=[xd], vdims=[pd_]).opts(
             color=DRAWS, line_width=3, tools=["hover"])
-        title = f"probability at each failure time ({atoms.size} atoms)"
-        if tail:
-            title += f"; {p[-1]:.1%} in the fitted tail beyond {left[-1]:g}"
+        title = f"failure-time probabilities ({atoms.size} atoms"
+        title += f", {p[-1]:.1%} in the fitted tail)" if tail else ")"
         first = first.opts(**_common(title, width, height))
     keep = np.asarray(g.get("keep", np.ones_like(p)), dtype=float)
     cols = [str(i + 1) for i in range(keep.size)]
@@ -224,7 +239,7 @@ def _table_plots(g, unit, width, height):
                       + [(c, "alias", 1 - k) for c, k in zip(cols, keep)],
                       kdims=[hv.Dimension("column", label="alias-table column"), "part"],
                       vdims=[hv.Dimension("share", label="share of the column")]).opts(
-        stacked=True, cmap=[DRAWS, HAT], tools=["hover"], legend_position="top_right",
+        stacked=True, cmap=[DRAWS, HAT], tools=["hover"], legend_position="right",
         **_common("alias table: each column keeps its own bin or passes to its alias", width, height))
     return [first, stacked]
 
@@ -245,9 +260,9 @@ def _composition_plots(g, unit, width, height):
                                    hv.Dimension("err", label="u-error"), label=f"component {i + 1}"))
     if curves:
         tol = float(g["parts"][0].get("tolerance", 1e-10))
-        out.append(hv.Overlay(curves + [hv.HLine(tol).opts(color=MODEL, line_dash="dashed")]).opts(
+        out.append(_finish(hv.Overlay(curves + [hv.HLine(tol).opts(color=MODEL, line_dash="dashed")]),
             **_common("each component's inversion: u-error", width, height, logy=True,
-                      ylim=(1e-17, 1e-6 if tol < 1e-7 else tol * 100), legend_position="bottom_right")))
+                      ylim=(1e-17, 1e-6 if tol < 1e-7 else tol * 100), legend_position="top_right")))
     return out
 
 
@@ -262,13 +277,13 @@ def _candidates_overlay(xs, ys, labels, xd, yd):
     return layers
 
 
-def _rejection_plots(g, unit, width, height):
+def _rejection_plots(g, unit, width, height, view=None):
     x = np.asarray(g["x"], dtype=float)
     xd = hv.Dimension("x", label=age_label(unit))
     yd = hv.Dimension("y", label="density")
     cand = g["candidates"]
     acc = g.get("expected_acceptance")
-    sub = f" (expected acceptance {acc:.1%})" if acc is not None else ""
+    sub = f" (acceptance {acc:.1%})" if acc is not None else ""
 
     def layer(log):
         def v(a):
@@ -286,12 +301,22 @@ def _rejection_plots(g, unit, width, height):
                 color="#222222", marker="triangle", size=7))
         return hv.Overlay(parts)
 
-    lin = layer(False).opts(**_common("density, hat and squeeze, with candidate points" + sub, width,
-                                      height + 40, legend_position="top_right"))
+    hat = np.asarray(g["hat"], dtype=float)
+    ok = np.isfinite(hat)
+    lo, hi = view if view else (float(x[ok].min()), float(x[ok].max())) if ok.any() else (0.0, 1.0)
+    # A pole at the lower end would squash the picture: the axis stops at the 99th percentile
+    # of the hat over ages spread evenly across the view, which leaves out a narrow spike.
+    even = np.interp(np.linspace(lo, hi, 2000), x[ok], hat[ok]) if ok.sum() > 1 else hat[ok]
+    top = 1.15 * float(np.percentile(even, 99)) if even.size else None
+    limits = {"ylim": (0, top)} if top else {}
+    if view:
+        limits["xlim"] = (float(view[0]), float(view[1]))
+    lin = _finish(layer(False), **_common("hat, squeeze and candidates" + sub, width, height + 40,
+                                          legend_position="top_right", yformatter="%.3g", **limits))
     f = np.asarray(g["f"], dtype=float)
     pos = f[f > 0]
     ylim = (float(pos.min()) / 2, float(np.nanmax(np.asarray(g["hat"], dtype=float))) * 2) if pos.size else None
-    log = layer(True).opts(**_common("the same on a log scale: the hat is piecewise exponential", width,
+    log = _finish(layer(True), **_common("the same on a log scale: the hat is piecewise exponential", width,
                                      height, logy=True, show_legend=False,
                                      **({"ylim": ylim} if ylim else {})))
     return [lin, log]
@@ -315,7 +340,8 @@ def _ratio_of_uniforms_plot(g, width, height):
     title = "region A, its bounding rectangle, envelope and squeeze, with candidate points"
     if note:
         title = f"region A in {note.split(':')[0]} coordinates, with candidate points"
-    return hv.Overlay(parts).opts(**_common(title, width, height + 80, legend_position="right"))
+    return _finish(hv.Overlay(parts), **_common(title, width, height + 80, legend_position="right",
+                                                xformatter="%.3g", yformatter="%.3g"))
 
 
 def _fallback_plot(fb, method, unit, width, height):
@@ -332,8 +358,8 @@ def _fallback_plot(fb, method, unit, width, height):
         layers.append(hv.Histogram((edges, dens), kdims=[xd], vdims=[yd], label="draws").opts(
             fill_color=DRAWS, fill_alpha=0.5, line_color=DRAWS))
     layers.append(hv.Curve((fb["x"], fb["pdf"]), xd, yd, label="model density").opts(color=MODEL, line_width=2))
-    return hv.Overlay(layers).opts(**_common(f"{method}: the density and the draws (no method picture)",
-                                             width, height))
+    return _finish(hv.Overlay(layers), **_common(f"{method}: the density and the draws (no method picture)",
+                                                 width, height))
 
 
 # ---- the method comparison --------------------------------------------------------------------
@@ -359,8 +385,9 @@ def comparison_bars(rows: list[dict], width=None, height=220) -> list:
             continue
         if log:
             values = [(m, max(v, 1e-17)) for m, v in values]
+        extra = {"yformatter": NumeralTickFormatter(format="0.[0]a")} if key == "draws_per_second" else {}
         bars = hv.Bars(values, hv.Dimension("method", label="method"), hv.Dimension(key, label=label)).opts(
-            color=DRAWS, tools=["hover"], **_common(label, width, height, logy=log))
+            color=DRAWS, tools=["hover"], **_common(label, width, height, logy=log, **extra))
         if log:
             top = max(v for _, v in values)
             bars = bars.opts(ylim=(1e-17, max(top * 10, 1e-14)))
@@ -385,7 +412,7 @@ def fmt(value, digits: int = 4) -> str:
         if math.isinf(v):
             return "∞" if v > 0 else "−∞"
         if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e9):
-            return f"{v:.{digits - 1}e}"
+            return f"{v:.{digits}g}"
         if abs(v) >= 1000:
             return f"{v:,.0f}"
         return f"{v:.{digits}g}"
@@ -406,8 +433,9 @@ _COUNTER_LABELS = {
 }
 
 
-def counters_table(stats: dict) -> str:
-    """The sampler's counters (sampler.stats), known ones first and in plain words."""
+def counters_table(stats: dict, columns: int = 1) -> str:
+    """The sampler's counters (sampler.stats), known ones first and in plain words,
+    split into ``columns`` side-by-side tables."""
     rows = []
     for key, label in _COUNTER_LABELS.items():
         if key in stats:
@@ -416,7 +444,13 @@ def counters_table(stats: dict) -> str:
         if key in _COUNTER_LABELS or isinstance(value, (dict, list, tuple)):
             continue
         rows.append([html.escape(key.replace("_", " ")), fmt(value)])
-    return html_table(["counter", "value"], rows, "ld-table ld-compact")
+    per = max(1, -(-len(rows) // max(1, columns)))
+    tables = [html_table(["counter", "value"], rows[i:i + per], "ld-table ld-compact")
+              for i in range(0, len(rows), per)]
+    if len(tables) == 1:
+        return tables[0]
+    cells = "".join(f'<div style="flex:1 1 0;min-width:240px">{t}</div>' for t in tables)
+    return f'<div style="display:flex;gap:28px;align-items:flex-start">{cells}</div>'
 
 
 def comparison_table(rows: list[dict]) -> str:

@@ -27,8 +27,8 @@ from engine.compare import MethodResult, compare_methods
 from engine.scenarios import Scenario
 
 from . import plots
-from .state import CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, \
-    pp_payload, qq_payload
+from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,
+                    qq_payload)
 
 PLOT_WIDTH = 880
 COMPARE_N = 100_000
@@ -122,7 +122,8 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
     if not target.atoms.size:
         x = np.linspace(edges[0], view_right, 400)
         fallback = {"x": x, "pdf": target.pdf(x), "draws": draws[:50_000]}
-    geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300)
+    geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300,
+                                    view=(float(edges[0]), float(view_right)))
     bars = plots.comparison_bars(rows, width=PLOT_WIDTH // 2 - 10, height=220)
 
     figures = [hist, qq, pp, *geometry, *bars]
@@ -177,7 +178,7 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 <section id="geometry"><h2>Method geometry: {e(sampler.method)}</h2>
 {''.join(f'<div class="plot">{d}</div>' for d in d_geom)}
 <h3>Sampler counters</h3>
-{plots.counters_table(stats)}
+{plots.counters_table(stats, columns=2)}
 </section>
 
 <section id="comparison"><h2>Method comparison</h2>

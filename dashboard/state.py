@@ -8,6 +8,7 @@ files a short message under the field that caused it.
 """
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import logging
 import math
@@ -28,6 +29,7 @@ log = logging.getLogger("lifedraw.dashboard")
 RESERVOIR_SIZE = 200_000
 HIST_BINS = 160
 CDF_NODES = 1025
+TAIL_NODES = 64
 PLOT_POINTS = 200
 TRACE_LIMIT = 5_000
 # The histogram spans the model's (LOW_Q, FAR_Q) quantiles; the linear view crops at VIEW_Q.
@@ -35,19 +37,22 @@ LOW_Q, VIEW_Q, FAR_Q = 5e-4, 0.9995, 1 - 1e-5
 TOLERANCES = (1e-6, 1e-8, 1e-10, 1e-12)
 FORMULA_KINDS = ("density", "hazard", "cdf")
 
-# Error groups: each is shown next to the controls it belongs to.
-FIELDS = ("scenario", "model", "upload", "parameters", "method", "run", "comparison", "report")
+# Errors are filed by group ("scenario", "model", "upload", "parameters", "method", "run",
+# "comparison", "report"); the page shows each group next to its controls.
 
 
 # ---- the model's cdf, fast enough to test every batch ---------------------------------------
 
 class CdfTable:
-    """F at ~1000 nodes placed at empirical quantiles of a probe sample, interpolated linearly.
+    """F at ~1000 nodes placed at quantiles of a probe sample, interpolated linearly in the bulk.
 
     The values at the nodes are the model's exact cdf (the probe only decides
     where the nodes go, so a faulty sampler cannot bias them). Between nodes the
-    error is at most the change of F's slope across one node gap times the gap,
-    about 1e-6 here: far below the KS resolution 1/sqrt(n) of any live sample.
+    error is about the change of F's slope across one node gap times the gap,
+    below 1e-5 here: far below the KS resolution 1/sqrt(n) of any live sample. Beyond
+    the probe's TAIL_NODES-th smallest and largest values, where nodes would be
+    sparse and F may bend sharply (a density pole, a hazard growing exponentially),
+    the exact cdf is used: a fraction 2 * TAIL_NODES / probe size of the draws.
     Targets with atoms (product-limit) use their exact cdf, which is cheap, and
     the left limit F(x-) needed at an atom.
     """
@@ -55,11 +60,16 @@ class CdfTable:
     def __init__(self, target, probe: np.ndarray):
         self.target = target
         self.atoms = np.asarray(target.atoms, dtype=float)
-        lo, hi = target.support
         probe = np.sort(probe[np.isfinite(probe)])
-        nodes = np.quantile(probe, np.linspace(0.0, 1.0, CDF_NODES)) if probe.size else np.array([])
-        ends = [v for v in (lo, hi) if math.isfinite(v)]
-        self.nodes = np.unique(np.concatenate([nodes, ends]))
+        if probe.size > 4 * TAIL_NODES:
+            inner = probe[TAIL_NODES:-TAIL_NODES]
+            # Geometric steps in probability towards both ends keep |error| ~ step^2 / F
+            # small where F (or 1 - F) is small and curved, as near a density pole.
+            ends = np.geomspace(1e-4, 0.05, 250)
+            p = np.unique(np.concatenate([np.linspace(0.0, 1.0, CDF_NODES), ends, 1.0 - ends]))
+            self.nodes = np.unique(np.quantile(inner, p))
+        else:
+            self.nodes = np.empty(0)
         self.values = np.maximum.accumulate(np.asarray(target.cdf(self.nodes), dtype=float))
 
     @property
@@ -98,7 +108,8 @@ def histogram_edges(target, table: CdfTable) -> tuple[np.ndarray, float]:
     """Equal-width bins from the model's LOW_Q quantile (or the start of its support) to FAR_Q;
     returns the edges and the right end of the linear view (the VIEW_Q quantile)."""
     lo, hi = target.support
-    q_low, q_view, q_far = (float(v) for v in table.quantile([LOW_Q, VIEW_Q, FAR_Q]))
+    # Exact quantiles: the far tail lies beyond the probe that placed the table's nodes.
+    q_low, q_view, q_far = (float(v) for v in target.quantile(np.array([LOW_Q, VIEW_Q, FAR_Q])))
     left = lo if math.isfinite(lo) else q_low
     right = min(hi, q_far) if math.isfinite(hi) else q_far
     if not right > left:
@@ -237,10 +248,6 @@ def pp_payload(acc: DrawAccumulator, table: CdfTable) -> dict:
 
 # ---- the workbench -----------------------------------------------------------------------
 
-def _scenario_objects() -> list[str]:
-    return scenario_names()
-
-
 class Workbench(param.Parameterized):
     """One user's workbench: the chosen scenario, model, generator settings and the live stream.
 
@@ -270,7 +277,7 @@ class Workbench(param.Parameterized):
     def __init__(self, scenario: str | Scenario | None = None, **params):
         super().__init__(**params)
         self._busy = False
-        names = _scenario_objects()
+        names = scenario_names()
         self.param.scenario_name.objects = names
         self.param.method.objects = method_names()
         self.scenario: Scenario | None = None
@@ -285,6 +292,7 @@ class Workbench(param.Parameterized):
         self._model_curve = None
         self.trace = {"n": [], "ks_p": [], "acceptance": []}
         self.last_refit_ms = 0.0
+        self.custom: dict[str, Scenario] = {}      # edited models and uploads of this session, by name
         if isinstance(scenario, Scenario):
             sc = scenario
         else:
@@ -311,38 +319,42 @@ class Workbench(param.Parameterized):
         if errors != self.errors:
             self.errors = errors
 
-    def _guard(self, field: str, fn, *args, **kwargs):
-        """Run ``fn``; on failure file the message under ``field`` and return None.
+    def clear_error(self, field: str) -> None:
+        self._set_error(field, None)
 
-        A method that cannot serve the model is filed under "method" whatever
-        triggered the refit, since that is where the user can fix it.
-        """
+    def _guard(self, field: str, fn, *args, **kwargs):
+        """Run ``fn``; on failure file the message under ``field`` and return None."""
         try:
             return fn(*args, **kwargs)
-        except MethodNotApplicable as err:
+        except Exception as err:
+            self.file_error(field, err)
+            return None
+
+    def file_error(self, field: str, err: Exception) -> None:
+        """Show ``err`` next to ``field``: the engine's own message, or a short note.
+
+        A method that cannot serve the model is filed under "method" whatever
+        triggered the refit, since that is where the user can fix it. Anything
+        that is not a ModelError is a fault of ours: its traceback goes to the
+        server log, never to the page.
+        """
+        if isinstance(err, MethodNotApplicable):
             self._set_error("method", f"{self.method}: {err.reason}")
-        except ModelError as err:
+        elif isinstance(err, ModelError):
             self._set_error(field, str(err))
-        except Exception as err:  # the server must never show a traceback or die
-            log.exception("unexpected error while handling %s", field)
+        else:
+            log.error("unexpected error while handling %s", field, exc_info=err)
             self._set_error(field, f"could not use this input ({type(err).__name__}); "
                                    "details are in the server log")
-        return None
 
-    class _Quiet:
-        def __init__(self, owner):
-            self.owner = owner
-
-        def __enter__(self):
-            self.saved = self.owner._busy
-            self.owner._busy = True
-
-        def __exit__(self, *exc):
-            self.owner._busy = self.saved
-
+    @contextlib.contextmanager
     def _quiet(self):
         """Change user parameters without triggering the refit they normally cause."""
-        return self._Quiet(self)
+        saved, self._busy = self._busy, True
+        try:
+            yield
+        finally:
+            self._busy = saved
 
     # ---- building the model and the sampler ---------------------------------------------
     def _adopt_scenario_settings(self, sc: Scenario) -> None:
@@ -368,6 +380,8 @@ class Workbench(param.Parameterized):
             return False
         self.target, self.sampler, self.table, seconds = built
         self.scenario = sc
+        if sc.name in self.custom:
+            self.custom[sc.name] = sc          # reselecting it later brings back its latest values
         self.last_refit_ms = 1e3 * seconds
         self._exact_life = None
         self._geometry = None
@@ -412,6 +426,8 @@ class Workbench(param.Parameterized):
             return
 
         def load():
+            if self.scenario_name in self.custom:
+                return self.custom[self.scenario_name]
             return load_scenario(self.scenario_name)
 
         sc = self._guard("scenario", load)
@@ -459,7 +475,7 @@ class Workbench(param.Parameterized):
             return self._custom_scenario(model, values, f"{k} formula")
 
         sc = self._guard("model", build)
-        return sc is not None and self._rebuild(sc, "model")
+        return sc is not None and self._adopt_custom(sc, "model")
 
     def apply_family(self, family: str, params: str) -> bool:
         """Replace the model by a textbook family; each of its parameters gets a slider."""
@@ -478,7 +494,7 @@ class Workbench(param.Parameterized):
             return self._custom_scenario(model, values, f"{FAMILIES[key].title} family")
 
         sc = self._guard("model", build)
-        return sc is not None and self._rebuild(sc, "model")
+        return sc is not None and self._adopt_custom(sc, "model")
 
     def load_field_data(self, data, filename: str = "field data.csv") -> bool:
         """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model."""
@@ -505,9 +521,32 @@ class Workbench(param.Parameterized):
         sc = self._guard("upload", build)
         if sc is None:
             return False
+        saved = self.method
         with self._quiet():
             self.method = "auto"
-        return self._rebuild(sc, "upload")
+        if self._adopt_custom(sc, "upload"):
+            return True
+        with self._quiet():
+            self.method = saved
+        return False
+
+    def _adopt_custom(self, sc: Scenario, field: str) -> bool:
+        """Use a scenario made in this session, and offer it in the scenario picker."""
+        previous, known = self.scenario_name, self.custom.get(sc.name)
+        self.custom[sc.name] = sc
+        if sc.name not in self.param.scenario_name.objects:
+            self.param.scenario_name.objects = [*self.param.scenario_name.objects, sc.name]
+        with self._quiet():
+            self.scenario_name = sc.name
+        if self._rebuild(sc, field):
+            return True
+        with self._quiet():
+            self.scenario_name = previous
+        if known is None:
+            del self.custom[sc.name]
+        else:
+            self.custom[sc.name] = known
+        return False
 
     def _custom_scenario(self, model: dict, values: dict[str, float], what: str) -> Scenario:
         base = self.scenario
@@ -622,20 +661,13 @@ class Workbench(param.Parameterized):
     def set_comparison(self, result, n: int) -> list:
         """Adopt measured rows, or file the exception ``result`` under "comparison"."""
         if isinstance(result, Exception):
-            def reraise():
-                raise result
-            self._guard("comparison", reraise)
+            self.file_error("comparison", result)
             return []
         self._set_error("comparison", None)
         self.comparison_note = (f"{n:,} draws per method, measured at {time.strftime('%H:%M:%S')} on this "
                                 "machine in one process; draws/s is the median of 3 timed batches")
         self.comparison = list(result)
         return self.comparison
-
-    def report_failed(self, err: Exception) -> None:
-        def reraise():
-            raise err
-        self._guard("report", reraise)
 
     def current_scenario(self) -> Scenario:
         """The scenario as it stands now: current values, method, seed, tolerance and sample size."""

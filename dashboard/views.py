@@ -20,6 +20,7 @@ import numpy as np
 import panel as pn
 from bokeh.models import PrintfTickFormatter
 
+from engine import ModelError
 from engine.cli import CAUTION
 from engine.families import FAMILIES
 from engine.scenarios import SCENARIO_DIR
@@ -70,11 +71,16 @@ def _alert() -> pn.pane.Alert:
 
 
 def _show(alert: pn.pane.Alert, message: str | None) -> None:
-    """Put a field's message in its alert, one line per row problem."""
+    """Put a field's message in its alert: one line per bad row of a file, and a formula's
+    caret line in a fixed-width font so it points at the right column."""
     if message:
-        parts = [html.escape(p) for p in str(message).split("; row ")]
-        text = parts[0] if len(parts) == 1 else "<br>".join([parts[0], *(f"row {p}" for p in parts[1:])])
-        alert.object = text.replace("\n", "<br>")
+        first, _, rest = str(message).partition("\n")
+        rows = first.split("; row ")
+        text = "<br>".join([html.escape(rows[0]), *(f"row {html.escape(r)}" for r in rows[1:])])
+        if rest:
+            text += (f'<pre style="margin:6px 0 0 0;font-size:12.5px;background:none;border:none;'
+                     f'padding:0">{html.escape(rest)}</pre>')
+        alert.object = text
     alert.visible = bool(message)
 
 
@@ -135,16 +141,17 @@ class ModelCell(Cell):
     blurb = ("Pick a scenario, move its parameters, write your own formula or family, "
              "or upload field data; the sampler refits on every change.")
 
-    def __init__(self, state):
+    def __init__(self, state, on_drag=None):
         super().__init__(state)
         s = state
+        self.on_drag = on_drag or (lambda: None)
         titles = scenario_titles()
-        if s.scenario_name not in titles.values():
-            titles[s.scenario.title] = s.scenario_name
-        self.picker = pn.widgets.Select(name="Scenario", options=titles, value=s.scenario_name, width=460)
+        if s.scenario.name not in titles.values():
+            titles[f"{s.scenario.title}  [{s.scenario.name}]"] = s.scenario.name
+        self.picker = pn.widgets.Select(name="Scenario", options=titles, value=s.scenario.name, width=640)
         self.picker.param.watch(lambda e: self.act(setattr, s, "scenario_name", e.new), "value")
         self.scenario_error = _alert()
-        self.description = _html()
+        self.description = _html(css_classes=["ld-description"])
         self.sliders = pn.Column(sizing_mode="stretch_width", margin=0)
         self.slider_widgets: dict[str, pn.widgets.FloatSlider] = {}
         self.parameters_error = _alert()
@@ -212,18 +219,15 @@ class ModelCell(Cell):
             f"<pre>{html.escape(s.target.describe())}</pre>"
             f'<p class="ld-small ld-muted">Ages in {html.escape(sc.time_unit)}. Mission times: '
             f'{", ".join(plots.fmt(t) for t in sc.mission_times) or "none"}.</p>')
-        source = (sc.name, tuple(sc.parameters))
+        self._prefill_editor()          # the editor always shows the model that runs now
+        source = (sc.name, tuple(sc.parameters), sc.model.get("kind"))
         if source != self._source:
             self._source = source
             self._build_sliders()
-            self._prefill_editor()
-            if self.picker.value != s.scenario_name and s.scenario_name in self.picker.options.values():
-                self.picker.value = s.scenario_name
-            elif s.scenario_name not in self.picker.options.values():
-                options = dict(self.picker.options)
-                options[sc.title] = s.scenario_name
-                self.picker.options = options
-                self.picker.value = s.scenario_name
+            if sc.name not in self.picker.options.values():
+                self.picker.options = {**self.picker.options, f"{sc.title}  [{sc.name}]": sc.name}
+            if self.picker.value != sc.name:
+                self.picker.value = sc.name
 
     def _build_sliders(self):
         sc = self.state.scenario
@@ -234,6 +238,7 @@ class ModelCell(Cell):
                                        format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
                                        css_classes=[f"ld-slider-{name}"])
             w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new), "value_throttled")
+            w.param.watch(lambda e: self.on_drag(), "value")     # arrives while the handle moves
             widgets[name] = w
         self.slider_widgets = widgets
         if widgets:
@@ -349,15 +354,15 @@ class GeneratorCell(Cell):
         try:
             self.state.seed = int(value)
         except (TypeError, ValueError):
-            self.state._set_error("run", f"seed: must be a whole number >= 0, got {value!r}")
+            self.state.file_error("run", ModelError("seed", f"must be a whole number >= 0, got {value!r}"))
 
     def _set_stop(self, value):
         try:
             self.state.stop_at = int(value)
-            self.state._set_error("run", None)
+            self.state.clear_error("run")
         except (TypeError, ValueError):
-            self.state._set_error("run", f"stop after: must be a whole number from 1,000 to 50,000,000, "
-                                         f"got {value!r}")
+            self.state.file_error("run", ModelError(
+                "stop after", f"must be a whole number from 1,000 to 50,000,000, got {value!r}"))
 
     def sync(self):
         s = self.state
@@ -401,38 +406,45 @@ class LiveCheckCell(Cell):
         self.log.param.watch(lambda e: self.act(self._set_log, e.new), "value")
         self.pipes = {k: hv.streams.Pipe(data=None) for k in ("hist", "qq", "pp", "trace")}
         self._push_all()
-        self.hist = hv.DynamicMap(lambda data: plots.density_histogram(data), streams=[self.pipes["hist"]])
+        self.hist = self._histogram_map()
         self.qq = hv.DynamicMap(lambda data: plots.qq_plot(data), streams=[self.pipes["qq"]])
         self.pp = hv.DynamicMap(lambda data: plots.pp_plot(data), streams=[self.pipes["pp"]])
         self.ks_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "ks_p"), streams=[self.pipes["trace"]])
         self.acc_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "acceptance"),
                                        streams=[self.pipes["trace"]])
-        for dm in (self.hist, self.qq, self.pp, self.ks_trace, self.acc_trace):
+        for dm in (self.qq, self.pp, self.ks_trace, self.acc_trace):
             dm.opts(framewise=True, axiswise=True)
-        self.counters = _html(margin=(0, 10), sizing_mode=None, width=330)
+        pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
+        self.hist_pane = pane(self.hist, 330)
+        self.panes = [pane(self.qq, 290), pane(self.pp, 290), pane(self.ks_trace, 250), pane(self.acc_trace, 250)]
+        self.counters = _html()
         self.summary = _html()
         self.marker = _html(css_classes=["ld-marker"])
-        self._version_seen = s.version
         self._stale = False
         s.param.watch(lambda e: self.refresh(), "batch")
         self.refresh(push=False)
 
+    def _histogram_map(self) -> hv.DynamicMap:
+        return hv.DynamicMap(lambda data: plots.density_histogram(data), streams=[self.pipes["hist"]]).opts(
+            framewise=True, axiswise=True)
+
     def body(self):
-        pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
+        qq, pp, ks, acc = self.panes
         return [pn.Row(self.log, self.marker, margin=0),
-                pane(self.hist, 330),
-                pn.Row(pane(self.qq, 290), pane(self.pp, 290), sizing_mode="stretch_width", margin=0),
-                pn.Row(pane(self.ks_trace, 250), pane(self.acc_trace, 250), sizing_mode="stretch_width",
-                       margin=0),
-                pn.Row(pn.Column(pn.pane.HTML("<h3>Sampler counters</h3>", stylesheets=[TEXT_CSS],
-                                              margin=(0, 10)), self.counters),
-                       pn.Column(pn.pane.HTML("<h3>What the check says</h3>", stylesheets=[TEXT_CSS],
-                                              margin=(0, 10)), self.summary, sizing_mode="stretch_width"),
-                       sizing_mode="stretch_width", margin=0)]
+                self.hist_pane,
+                pn.Row(qq, pp, sizing_mode="stretch_width", margin=0),
+                pn.Row(ks, acc, sizing_mode="stretch_width", margin=0),
+                pn.pane.HTML("<h3>What the check says</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+                self.summary,
+                pn.pane.HTML("<h3>Sampler counters</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+                self.counters]
 
     def _set_log(self, value):
+        # A Bokeh axis cannot change between linear and log in place: draw the histogram anew.
         self.state.log_scale = bool(value)
-        self.pipes["hist"].send(self.state.histogram_data())
+        self.pipes["hist"].update(data=self.state.histogram_data())
+        self.hist = self._histogram_map()
+        self.hist_pane.object = self.hist
 
     def _push_all(self):
         s = self.state
@@ -446,20 +458,16 @@ class LiveCheckCell(Cell):
         self.pipes["trace"].send({k: list(v) for k, v in s.trace.items()})
 
     def refresh(self, push=True):
-        """After a batch: the histogram and the marker now; after a refit the other plots
-        follow on the next tick (``refresh_secondary``), so a slider release redraws first."""
+        """After a batch: the histogram and the marker now, the other plots and the texts on
+        the next tick (``refresh_secondary``), so no single update holds the server long and
+        a slider release redraws first."""
         s = self.state
         if push:
             self.pipes["hist"].send(s.histogram_data())
-            if s.version != self._version_seen:
-                self._stale = True
-            else:
-                self._push_secondary()
-                self._stale = False
-        self._version_seen = s.version
+            self._stale = True
         self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}">'
                               f"model v{s.version} · batch {s.batch} · {s.n:,} draws</span>")
-        if not self._stale:
+        if not push:
             self._texts()
 
     @property
@@ -474,7 +482,7 @@ class LiveCheckCell(Cell):
 
     def _texts(self):
         s = self.state
-        self.counters.object = plots.counters_table(s.counters())
+        self.counters.object = plots.counters_table(s.counters(), columns=3)
         d, p = s.ks()
         n_res = int(s.acc.x.size)
         if s.n:
@@ -484,8 +492,8 @@ class LiveCheckCell(Cell):
             self.summary.object = (
                 f"<p>Kolmogorov-Smirnov on {sub}: D = {d:.3g}, p = {p:.3g}: {verdict}.</p>"
                 '<p class="ld-small ld-muted">Under the model the p-value wanders uniformly between 0 and 1 as '
-                "draws accumulate; a sampler error drives it to 0. The model cdf is read from a 1,025-node "
-                "table of exact values (interpolation error far below the test's resolution).</p>")
+                "draws accumulate; a sampler error drives it to 0. The model cdf is read from a table of exact "
+                "values at about 1,500 ages (interpolation error below 1e-5, far under the test's resolution).</p>")
         else:
             self.summary.object = '<p class="ld-muted">No draws yet.</p>'
 
@@ -525,7 +533,8 @@ class GeometryCell(Cell):
         if s.acc is not None and s.acc.x.size and not s.target.atoms.size:
             x = np.linspace(s.acc.edges[0], s.view_right, 400)
             fallback = {"x": x, "pdf": s.target.pdf(x), "draws": s.acc.x[:50_000]}
-        elements = plots.geometry_plots(geom, s.scenario.time_unit, fallback=fallback)
+        view = (float(s.acc.edges[0]), float(s.view_right)) if s.acc is not None else None
+        elements = plots.geometry_plots(geom, s.scenario.time_unit, fallback=fallback, view=view)
         self.caption.object = (f'<p><b class="ld-geometry-method">{html.escape(s.sampler.method)}</b> — '
                                f"{html.escape(type(s.sampler).reference)}</p>")
         layout = (s.sampler.method, tuple(_signature(e) for e in elements))
@@ -584,12 +593,18 @@ class ComparisonCell(Cell):
         self.note.object = '<p class="ld-muted">Measuring…</p>'
         s.pause()   # timings of one process alone, not sharing the core with the live stream
         try:
-            n = int(self.size.value)
+            n, version = int(self.size.value), s.version
             target, seed, tol = s.target, int(s.seed), float(s.tolerance)
             loop = asyncio.get_running_loop()
             result = await loop.run_in_executor(None, _measure, target, n, seed, tol)
             with pn.io.hold(freeze=True):
-                s.set_comparison(result, n)
+                if s.version == version:
+                    s.set_comparison(result, n)
+                else:
+                    self.note.object = ('<p class="ld-muted">The model changed while the methods were being '
+                                        "measured; press <b>Measure all methods</b> again.</p>")
+        except Exception:
+            log.exception("unexpected error in the method comparison")
         finally:
             self.run.loading = False
             if was_running and not s.done:
@@ -602,7 +617,8 @@ class ComparisonCell(Cell):
             self.note.object = ('<p class="ld-muted">Not measured yet for this model: press '
                                 "<b>Measure all methods</b>.</p>")
             self.table.object = ""
-            self.bars[:] = []
+            if self.bars.objects:
+                self.bars[:] = []
             return
         self.note.object = f'<p class="ld-small ld-muted">{html.escape(s.comparison_note)}.</p>'
         self.table.object = plots.comparison_table(rows)
@@ -635,6 +651,10 @@ class LifeCell(Cell):
 
     def body(self):
         return [self.table, self.note]
+
+    @property
+    def stale(self) -> bool:
+        return (self.state.version, self.state.batch) != self._shown
 
     def refresh(self):
         s = self.state
@@ -695,8 +715,8 @@ class ReportCell(Cell):
         was_running = s.running
         s.pause()
         self.write.loading = True
-        self.path.object = '<p class="ld-muted">Writing the report (fit, draws, checks and a method '
-        self.path.object += "comparison take a few seconds)…</p>"
+        self.path.object = ('<p class="ld-muted">Writing the report (fit, draws, checks and a method '
+                            "comparison take a few seconds)…</p>")
         try:
             scenario = s.current_scenario()
             path = default_report_path(self.report_dir, scenario)
@@ -705,15 +725,18 @@ class ReportCell(Cell):
             result = await loop.run_in_executor(None, _write_report, write_report, scenario, path, rows)
             with pn.io.hold(freeze=True):
                 if isinstance(result, Exception):
-                    s.report_failed(result)
+                    s.file_error("report", result)
                     self.path.object = ""
                 else:
-                    s._set_error("report", None)
+                    s.clear_error("report")
                     self.path.object = (f'<p>Written: <code class="ld-path">{html.escape(str(result))}</code> '
                                         f"({result.stat().st_size / 1e6:.1f} MB)</p>")
                     self.download.file = str(result)
                     self.download.filename = result.name
                     self.download.visible = True
+        except Exception:
+            log.exception("unexpected error while writing the report")
+            self.path.object = ""
         finally:
             self.write.loading = False
             if was_running and not s.done:

@@ -1,0 +1,93 @@
+"""The standalone HTML report (dashboard.report): one self-contained file with the model,
+the plots embedded as Bokeh documents, the life figures and the cautions.
+
+"Self-contained" is checked against the HTML standard's meaning of an external
+resource: a <script src> or <link href> pointing at http(s).
+"""
+import argparse
+import html
+import re
+
+import pytest
+
+from dashboard.commands import add_report_parser
+from dashboard.report import write_report
+from engine import ModelError
+from engine.cli import CAUTION
+from engine.scenarios import load_scenario
+
+N = 20_000
+
+
+@pytest.fixture(scope="module")
+def report(tmp_path_factory):
+    scenario = load_scenario("gearbox-wearout")
+    path = write_report(scenario, tmp_path_factory.mktemp("report") / "gearbox.html", n=N, seed=11,
+                        compare_n=20_000)
+    return scenario, path, path.read_text(encoding="utf-8")
+
+
+def test_the_report_file_is_written(report):
+    _, path, text = report
+    assert path.exists()
+    assert text.startswith("<!DOCTYPE html>")
+
+
+def test_the_report_carries_the_caution(report):
+    assert html.escape(CAUTION) in report[2]
+
+
+def test_the_report_names_the_scenario(report):
+    scenario, _, text = report
+    assert f"<title>lifedraw report — {html.escape(scenario.title)}</title>" in text
+
+
+def test_no_script_or_stylesheet_is_fetched_over_the_network(report):
+    text = report[2]
+    tags = re.findall(r"<(?:script|link)\b[^>]*>", text, flags=re.IGNORECASE)
+    assert tags, "the report has script tags"
+    for tag in tags:
+        assert not re.search(r"""(?:src|href)\s*=\s*["']?\s*(?:https?:)?//""", tag, flags=re.IGNORECASE), tag
+
+
+def test_no_script_is_loaded_from_a_file_either(report):
+    # A relative src would break the file when it is opened from another folder.
+    assert not re.search(r"<script\b[^>]*\bsrc\s*=", report[2], flags=re.IGNORECASE)
+
+
+def test_bokeh_is_inline_and_the_plots_are_embedded(report):
+    text = report[2]
+    assert "Bokeh.embed.embed_items" in text
+    roots = re.findall(r'data-root-id="([^"]+)"', text)
+    # histogram, QQ, PP, two geometry plots of inversion and at least one comparison chart
+    assert len(roots) >= 6
+    assert "/* BEGIN bokeh.min.js */" in text          # BokehJS itself, in the file
+
+
+def test_the_run_settings_are_stated(report):
+    text = report[2]
+    assert "<td>seed</td><td>11</td>" in text
+    assert f"<td>sample size</td><td>{N:,}</td>" in text
+
+
+def test_the_life_figures_and_versions_are_included(report):
+    text = report[2]
+    assert "B10 life" in text and "MTTF" in text
+    assert "<td>numpy</td>" in text and "<td>bokeh</td>" in text
+
+
+def test_a_report_name_must_end_in_html(tmp_path):
+    with pytest.raises(ModelError) as info:
+        write_report(load_scenario("gearbox-wearout"), tmp_path / "report.pdf", n=N)
+    assert info.value.field == "output"
+
+
+def test_the_report_command_writes_the_same_kind_of_file(tmp_path, capsys):
+    parser = argparse.ArgumentParser()
+    add_report_parser(parser.add_subparsers(dest="command"))
+    out = tmp_path / "ebike.html"
+    args = parser.parse_args(["report", "ebike-battery-returns", "-o", str(out), "-n", "2e4", "--seed", "5"])
+    assert args.func(args) == 0
+    text = out.read_text(encoding="utf-8")
+    assert "Cargo e-bike battery packs" in text and html.escape(CAUTION) in text
+    assert str(out) in capsys.readouterr().out
