@@ -288,6 +288,7 @@ class Workbench(param.Parameterized):
         self.view_right = 0.0
         self._rng = None
         self._exact_life = None
+        self._system_life = None
         self._geometry = None
         self._model_curve = None
         self.trace = {"n": [], "ks_p": [], "acceptance": []}
@@ -384,6 +385,7 @@ class Workbench(param.Parameterized):
             self.custom[sc.name] = sc          # reselecting it later brings back its latest values
         self.last_refit_ms = 1e3 * seconds
         self._exact_life = None
+        self._system_life = None
         self._geometry = None
         self._model_curve = None
         # Success settles the input that caused the refit; a new model source
@@ -648,6 +650,24 @@ class Workbench(param.Parameterized):
             return {"sample": None, "exact": self._exact_life, "n": 0, "total": self.n}
         sample = self._guard("run", engine.life_summary, self.acc.x, self.scenario.mission_times)
         return {"sample": sample, "exact": self._exact_life, "n": int(self.acc.x.size), "total": self.n}
+
+    def system_figures(self, n: int = 100_000) -> dict | None:
+        """For a scenario with a [system] table: system life figures from n structure draws
+        beside the exact ones (cached until the model changes); None otherwise."""
+        if not self.scenario.system:
+            return None
+        if self._system_life is None:
+            self._system_life = self._guard("run", self._compute_system_figures, n) or {}
+        return self._system_life or None
+
+    def _compute_system_figures(self, n: int) -> dict:
+        import engine
+        from engine.systems import as_target, system_from_scenario
+        system = system_from_scenario(self.scenario)
+        missions = self.scenario.mission_times
+        return {"name": system.name or "system", "describe": system.describe(), "n": n, "total": n,
+                "sample": system.life_summary(n, int(self.seed), missions),
+                "exact": engine.exact_life_figures(as_target(system), missions)}
 
     def run_comparison(self, n: int = 100_000) -> list:
         """Measure every method on the current model now (engine.compare.compare_methods)."""

@@ -647,10 +647,11 @@ class LifeCell(Cell):
         super().__init__(state)
         self.table = _html()
         self.note = _html()
+        self.system = _html()
         self._shown = None
 
     def body(self):
-        return [self.table, self.note]
+        return [self.table, self.note, self.system]
 
     @property
     def stale(self) -> bool:
@@ -675,6 +676,22 @@ class LifeCell(Cell):
                                 "should about 95 times in 100.</p>")
         else:
             self.note.object = '<p class="ld-muted">No draws yet: the model\'s exact values are shown.</p>'
+        self.system.object = self._system_html(s)
+
+    @staticmethod
+    def _system_html(s) -> str:
+        """The scenario's system (if it has one): figures of the whole structure."""
+        figs = s.system_figures()
+        if not figs:
+            return ""
+        import html as _h
+        return (f'<h4 style="margin:14px 0 4px 0">The whole system: {_h.escape(figs["name"])}</h4>'
+                f'<pre class="ld-small" style="white-space:pre-wrap">{_h.escape(figs["describe"])}</pre>'
+                + plots.life_table(figs, s.scenario.time_unit)
+                + f'<p class="ld-small ld-muted">From {figs["n"]:,} system lifetimes drawn from the part samplers '
+                  "(series = first failure, parallel = last, standby = sum of lives) beside the exact figures of "
+                  "the structure. Parts are assumed independent and switching perfect: real redundancy is often "
+                  "weakened by common causes.</p>")
 
 
 # ---- 7. report -------------------------------------------------------------------------------

@@ -258,3 +258,19 @@ def test_support_ends_accept_inf():
     assert parse_support("0, inf") == [0.0, "inf"]
     with pytest.raises(ModelError):
         parse_support("0")
+
+
+def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values():
+    # The pumping station's [system] table: exact figures from the structure
+    # (NIST e-Handbook 8.1.8 rules) inside the Monte Carlo intervals.
+    from dashboard.state import Workbench
+    wb = Workbench("pumping-station-system")
+    figs = wb.system_figures(n=50_000)
+    assert figs is not None and figs["exact"]["mttf"]["value"] > 0
+    m = figs["sample"]["mttf"]
+    assert m["lower"] <= figs["exact"]["mttf"]["value"] <= m["upper"]
+
+
+def test_a_plain_scenario_has_no_system_figures():
+    from dashboard.state import Workbench
+    assert Workbench("gearbox-wearout").system_figures() is None
