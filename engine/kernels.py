@@ -27,47 +27,59 @@ def _jit(fn):
 
 
 # ---- piecewise polynomial inverse CDF (numerical inversion) -----------------------------
+#
+# One packed row per piece, [x0, w*c_0, ..., w*c_k, 1/du], so a draw touches one
+# short row: x = x0 + sum_j w c_j s^j with s = (u - u_start) / du.
 
-def _pinv_eval_py(u, guide, u_start, x0, width, du, coef, out):
+def pack_pinv_table(x0, width, coef, du):
+    """The packed rows used by ``pinv_eval`` (see above)."""
+    with np.errstate(over="ignore", divide="ignore"):
+        inv_du = np.where(du > 0, 1.0 / np.where(du > 0, du, 1.0), 0.0)
+    # A piece of (sub)normal-tiny mass has no room for a position: s = 0 there.
+    inv_du = np.where(np.isfinite(inv_du), inv_du, 0.0)
+    return np.ascontiguousarray(np.column_stack([x0, coef * width[:, None], inv_du]))
+
+
+def _pinv_eval_py(u, guide, u_start, table, out):
     n = u.shape[0]
     m = u_start.shape[0]
     g_size = guide.shape[0]
-    order = coef.shape[1]
+    top = table.shape[1] - 2          # column of the highest coefficient
     for i in range(n):
         ui = u[i]
         g = int(ui * g_size)
         if g >= g_size:
             g = g_size - 1
         k = guide[g]
-        # Guide-table search (Chen & Asau 1974): expected steps below one.
+        # Guide-table search (Chen & Asau 1974): rarely more than the first look.
         while k < m - 1 and u_start[k + 1] <= ui:
             k += 1
-        d = du[k]
-        s = (ui - u_start[k]) / d if d > 0 else 0.0
+        s = (ui - u_start[k]) * table[k, top + 1]
         s = min(max(s, 0.0), 1.0)
-        acc = coef[k, order - 1]
-        for j in range(order - 2, -1, -1):
-            acc = acc * s + coef[k, j]
-        out[i] = x0[k] + width[k] * acc
+        acc = table[k, top]
+        for j in range(top - 1, 0, -1):
+            acc = acc * s + table[k, j]
+        out[i] = table[k, 0] + acc
     return out
 
 
 _pinv_eval_jit = _jit(_pinv_eval_py)
 
 
-def pinv_eval(u, guide, u_start, x0, width, du, coef, out=None, *, use_jit=True):
-    """x = F^-1_approx(u) for the tables of engine.methods.inversion.NumericalInversion."""
+def pinv_eval(u, guide, u_start, table, out=None, *, use_jit=True):
+    """x = F^-1_approx(u) for the packed tables of engine.methods.inversion.NumericalInversion."""
     u = np.ascontiguousarray(u, dtype=np.float64)
     if out is None:
         out = np.empty_like(u)
     if use_jit and _pinv_eval_jit is not None:
-        return _pinv_eval_jit(u, guide, u_start, x0, width, du, coef, out)
-    return _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out)
+        return _pinv_eval_jit(u, guide, u_start, table, out)
+    return _pinv_eval_numpy(u, guide, u_start, table, out)
 
 
-def _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out):
+def _pinv_eval_numpy(u, guide, u_start, table, out):
     g_size = guide.shape[0]
     m = u_start.shape[0]
+    top = table.shape[1] - 2
     g = np.clip((u * g_size).astype(np.int64), 0, g_size - 1)
     k = guide[g].astype(np.int64)
     last = m - 1
@@ -76,15 +88,13 @@ def _pinv_eval_numpy(u, guide, u_start, x0, width, du, coef, out):
         if not step.any():
             break
         k += step
-    d = du[k]
-    s = np.clip((u - u_start[k]) / np.where(d > 0, d, 1.0), 0.0, 1.0)
-    c = coef[k]
-    acc = c[:, -1].copy()
-    for j in range(coef.shape[1] - 2, -1, -1):
+    row = table[k]
+    s = np.clip((u - u_start[k]) * row[:, top + 1], 0.0, 1.0)
+    acc = row[:, top].copy()
+    for j in range(top - 1, 0, -1):
         acc *= s
-        acc += c[:, j]
-    np.multiply(width[k], acc, out=out)
-    out += x0[k]
+        acc += row[:, j]
+    np.add(row[:, 0], acc, out=out)
     return out
 
 

@@ -20,7 +20,7 @@ def test_inverse_cdf_kernel_matches_numpy_twin():
     s = engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=2.5, p=1.6, s=1.0)))
     u = np.random.default_rng(1).random(200_000)
     u[:3] = [0.0, 1.0 - 2**-53, s.u_start[5]]          # ends and an exact piece boundary
-    tables = (s.guide, s.u_start, s.x0, s.width, s.du, s.coef)
+    tables = (s.guide, s.u_start, kernels.pack_pinv_table(s.x0, s.width, s.coef, s.du))
     jit = kernels.pinv_eval(u, *tables)
     twin = kernels.pinv_eval(u, *tables, use_jit=False)
     np.testing.assert_allclose(jit, twin, rtol=1e-15, atol=0)

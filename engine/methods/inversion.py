@@ -240,13 +240,17 @@ class NumericalInversion(Inversion):
             bad = ~(dense <= 0.9 * self.tolerance)
             if not bad.any():
                 break
+            dense = None
             keep = ~bad
             parts = np.full(int(bad.sum()), 4, dtype=np.int64)
             nx0, nx1 = _split(x0[bad], x1[bad], parts)
             fresh = self._construct(nx0, nx1)
             x0, x1, coef, total = (np.concatenate([old[keep], new]) for old, new in
                                    zip((x0, x1, coef, total), fresh))
+        if dense is None:    # the last refit was not verified yet
+            dense = self._piece_errors(x0, x1 - x0, total, coef, DENSE_TESTS)
         order = np.argsort(x0)
+        dense = dense[order]
         self.x0, self.width, self.coef = x0[order], (x1 - x0)[order], coef[order]
         self.du = total[order]
         F_start = self.target.cdf(self.x0[0])
@@ -256,7 +260,6 @@ class NumericalInversion(Inversion):
         self.tail_cut = cut
         # Reported u-error: within-piece error (dense points), plus how far each
         # piece's cumulative start drifted from the model's F there, plus the tails cut.
-        dense = self._piece_errors(self.x0, self.width, self.du, self.coef, DENSE_TESTS)
         F_at = np.where(self.u_start > 0.5, 1.0 - self.target.sf(self.x0), self.target.cdf(self.x0))
         drift = np.abs(F_at - self.u_start)
         self.extra_stats.update({"variant": "piecewise polynomial", "pieces": int(self.x0.size),
@@ -264,17 +267,25 @@ class NumericalInversion(Inversion):
 
     def _build_guide(self):
         m = self.x0.size
-        size = 2 * m
+        # Eight cells per piece: a draw then needs a step past its cell's first
+        # piece only about one time in eight, which keeps the search branch predictable.
+        size = 8 * m
         self.guide_size = size
         levels = np.arange(size) / size
         # guide[i] = first piece whose start is <= i/size < its end.
         self.guide = np.clip(np.searchsorted(self.u_start, levels, side="right") - 1, 0, m - 1).astype(np.int64)
+        self._derive()
+
+    def _derive(self):
+        """Drawing-time forms of the tables (not saved: rebuilt from them)."""
+        self._guide32 = self.guide.astype(np.int32)
+        self._packed = kernels.pack_pinv_table(self.x0, self.width, self.coef, self.du)
 
     # ---- evaluation ----------------------------------------------------------------
     def quantile(self, u):
         """The approximate F^-1 used for drawing (vectorised)."""
         u = np.asarray(u, dtype=float)
-        x = kernels.pinv_eval(u.ravel(), self.guide, self.u_start, self.x0, self.width, self.du, self.coef)
+        x = kernels.pinv_eval(u.ravel(), self._guide32, self.u_start, self._packed)
         return x.reshape(u.shape) if u.ndim else float(x[0])
 
     def _draw(self, m, rng):
@@ -286,7 +297,7 @@ class NumericalInversion(Inversion):
         # Uniforms are drawn straight into the output and transformed in place.
         rng.random(out=out)
         self.counts["uniforms"] += out.size
-        kernels.pinv_eval(out, self.guide, self.u_start, self.x0, self.width, self.du, self.coef, out=out)
+        kernels.pinv_eval(out, self._guide32, self.u_start, self._packed, out=out)
 
     def geometry(self, n_points: int = 400, rng=0) -> dict[str, Any]:
         out = super().geometry(n_points, rng)
@@ -307,6 +318,7 @@ class NumericalInversion(Inversion):
             setattr(self, key, np.asarray(tables[key]))
         self.guide = self.guide.astype(np.int64)
         self.guide_size = self.guide.size
+        self._derive()
         self.u_end = meta["u_end"]
         self.tail_cut = meta["tail_cut"]
         self.extra_stats.update({"variant": "piecewise polynomial", **meta["stats"]})
