@@ -135,6 +135,7 @@ def main(argv=None) -> int:
     ap.add_argument("--batch", type=int, default=50_000, choices=[10_000, 20_000, 50_000, 100_000, 200_000])
     ap.add_argument("--streaming", action="store_true", help="drag while the stream is drawing batches")
     ap.add_argument("--server-log", default=None, help="write the server's log (with timings) to this file")
+    ap.add_argument("--json", action="store_true", help="end with one JSON line (for bench/run.py)")
     args = ap.parse_args(argv)
     port = free_port()
     server = start_server(port, args.scenario, args.server_log)
@@ -149,6 +150,10 @@ def main(argv=None) -> int:
           f"{len(ms)} slider releases after {args.warmup} warm-up; {os.cpu_count()} CPUs, load average {load}")
     print(f"release -> redraw: median {statistics.median(ms):.0f} ms, p95 {percentile(ms, 0.95):.0f} ms, "
           f"min {min(ms):.0f} ms, max {max(ms):.0f} ms")
+    if args.json:
+        import json
+        print(json.dumps({"median_ms": statistics.median(ms), "p95_ms": percentile(ms, 0.95),
+                          "batch": args.batch, "streaming": args.streaming, "trials": len(ms)}))
     return 0
 
 

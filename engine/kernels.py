@@ -145,7 +145,7 @@ def leva_take(u, v, out, start, constants):
 
 # ---- rejection from a piecewise-exponential hat (engine.methods.rejection) ---------------
 
-def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status):
+def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, counts):
     """Candidates from the hat and their squeeze test, one pass.
 
     status[i]: 0 accepted by the squeeze, 1 needs the density, 2 / 3 drawn by
@@ -155,6 +155,7 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status):
     n = u.shape[0]
     top = cum.shape[0] - 1
     g_size = guide.shape[0]
+    counts[:] = 0
     for i in range(n):
         uA = u[i] * total
         # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
@@ -168,9 +169,11 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status):
             k = last
         if k == 0:
             status[i] = 2
+            counts[2] += 1
             continue
         if k == top:
             status[i] = 3
+            counts[3] += 1
             continue
         w = (uA - table[k, 0]) * table[k, 1]
         w = min(max(w, 0.0), 1.0)
@@ -182,22 +185,49 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status):
         d = min(max(d, 0.0), width)
         xi = table[k, 6] + table[k, 7] * d
         lh = table[k, 8] + table[k, 9] * d
-        ls = table[k, 10] + table[k, 11] * (xi - table[k, 6])
         x[i] = xi
         loghat[i] = lh
-        status[i] = 0 if v[i] <= np.exp(min(ls - lh, 0.0)) else 1
+        if v[i] <= table[k, 12]:
+            # Below the segment's least squeeze/hat ratio: accepted with no exp.
+            status[i] = 0
+            counts[0] += 1
+            continue
+        ls = table[k, 10] + table[k, 11] * (xi - table[k, 6])
+        if v[i] <= np.exp(min(ls - lh, 0.0)):
+            status[i] = 0
+            counts[0] += 1
+        else:
+            status[i] = 1
+            counts[1] += 1
 
 
 _hat_propose_jit = _jit(_hat_propose_py)
 
 
-def hat_propose(u, v, cum, guide, total, last, table):
-    """Compiled candidate pass for rejection (None when no JIT is available)."""
-    if _hat_propose_jit is None:
-        return None
-    n = u.shape[0]
-    x = np.empty(n)
-    loghat = np.empty(n)
-    status = np.empty(n, dtype=np.int8)
-    _hat_propose_jit(u, v, cum, guide, float(total), int(last), table, x, loghat, status)
-    return x, loghat, status
+def hat_propose(u, v, cum, guide, total, last, table, x, loghat, status):
+    """Compiled candidate pass for rejection, into the given output arrays; returns
+    the number of candidates with each status 0..3."""
+    counts = np.zeros(4, dtype=np.int64)
+    _hat_propose_jit(u, v, cum, guide, float(total), int(last), table, x, loghat, status, counts)
+    return counts
+
+
+def _take_accepted_py(x, status, out, start):
+    """Copy, in candidate order, every x whose status is not 1 (needs-density and
+    rejected) into out[start:] until out is full; returns how many were written."""
+    k = start
+    m = out.shape[0]
+    for i in range(x.shape[0]):
+        if k >= m:
+            break
+        if status[i] != 1:
+            out[k] = x[i]
+            k += 1
+    return k - start
+
+
+_take_accepted_jit = _jit(_take_accepted_py)
+
+
+def take_accepted(x, status, out, start):
+    return _take_accepted_jit(x, status, out, start)

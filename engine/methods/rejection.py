@@ -22,6 +22,7 @@ can leave; the stats report that excess ("check_excess") and any repairs.
 from __future__ import annotations
 
 import math
+import threading
 import time
 from typing import Any
 
@@ -717,6 +718,16 @@ class Rejection(Sampler):
             pad(self.seg_qa, -np.inf),                              # 10
             pad(self.seg_qslope),                                   # 11
         ])
+        # 12: the least squeeze/hat ratio on each segment. log(squeeze/hat) is linear
+        # in x there, so the least value sits at an end; v below it is accepted by the
+        # squeeze without evaluating exp (a squeeze of the squeeze, exact by linearity).
+        D = np.stack([np.zeros_like(width), width])
+        xs = self.seg_xa + np.where(self.seg_slope <= 0, 1.0, -1.0) * D
+        with np.errstate(invalid="ignore", over="ignore"):
+            gap = (self.seg_qa + self.seg_qslope * (xs - self.seg_xa)) - (self.seg_ya + g * D)
+            floor_ratio = np.exp(np.minimum(np.min(gap, axis=0), 0.0))
+        floor_ratio = np.where(np.isfinite(floor_ratio), floor_ratio, 0.0) * (1.0 - 1e-12)
+        table = np.column_stack([table, pad(floor_ratio)])
         self._table = np.ascontiguousarray(table)
 
     # ---- drawing ----------------------------------------------------------------------------------
@@ -788,41 +799,69 @@ class Rejection(Sampler):
             accepted[test] = v[test] * np.exp(loghat[test]) <= f
         return accepted, squeezed, test
 
-    def _propose_and_decide(self, n, rng):
-        """Candidates and their verdicts: the compiled pass (engine.kernels) where
-        available, else the vectorised numpy pass; both consume the same uniforms."""
-        if not kernels.HAVE_JIT:
-            x, v, loghat, logsq, exact, used = self._propose(n, rng)
-            return (x, *self._decide(x, v, loghat, logsq, exact), used)
-        u = rng.random(n)
-        v = rng.random(n)
+    def _compiled_round(self, n, rng, out, got):
+        """One round of n candidates through the compiled pass (engine.kernels): the
+        verdicts are the numpy pass's, written straight into ``out``; returns the count."""
+        u, v, x, loghat, status = self._scratch(n)
+        rng.random(out=u)
+        rng.random(out=v)
         used = 2 * n
-        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
         guide = getattr(self, "_guide", None)
         if guide is None or guide.size != 2 * self.cum.size:
             # guide[j] = first piece whose cumulative end exceeds j/G of the total (derived, not saved).
             levels = np.arange(2 * self.cum.size) / (2 * self.cum.size) * self.total
             self._guide = guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
-        x, loghat, status = kernels.hat_propose(u, v, self.cum, guide, self.total, last, self._table)
+        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
+        counts = kernels.hat_propose(u, v, self.cum, guide, self.total, last, self._table, x, loghat, status)
         for side, code in ((0, 2), (1, 3)):
-            mask = status == code
-            if np.any(mask):
-                x[mask], extra = self._end_draws(side, int(mask.sum()), rng)
+            if counts[code]:
+                mask = status == code
+                x[mask], extra = self._end_draws(side, int(counts[code]), rng)
                 used += extra
-        squeezed = status == 0
-        test = status == 1
-        accepted = status != 1
-        if np.any(test):
-            accepted[test] = v[test] * np.exp(loghat[test]) <= self.target.pdf(x[test])
-        return x, accepted, squeezed, test, used
+        tested = int(counts[1])
+        passed = 0
+        if tested:
+            idx = np.flatnonzero(status == 1)
+            ok = v[idx] * np.exp(loghat[idx]) <= self.target.pdf(x[idx])
+            status[idx[ok]] = 4                      # accepted after the density test
+            passed = int(ok.sum())
+        c = self.counts
+        c["uniforms"] += used
+        c["candidates"] += n
+        c["accepted"] += n - tested + passed
+        c["squeezed"] += int(counts[0])
+        c["density_evals"] += tested
+        return kernels.take_accepted(x, status, out, got)
+
+    def _scratch(self, n):
+        """Work arrays reused across rounds (fresh large arrays cost page faults on
+        every round); one set per thread, so a sampler shared by threads stays safe."""
+        local = self.__dict__.setdefault("_local", threading.local())
+        buf = getattr(local, "buf", None)
+        if buf is None or buf[0].size < n:
+            size = max(n, 1 << 16)
+            local.buf = buf = (np.empty(size), np.empty(size), np.empty(size), np.empty(size),
+                               np.empty(size, dtype=np.int8))
+        return tuple(b[:n] for b in buf)
+
+    def _fill(self, out, rng):
+        self._draw_into(out, rng)
 
     def _draw(self, m, rng):
         out = np.empty(m)
+        return self._draw_into(out, rng)
+
+    def _draw_into(self, out, rng):
+        m = out.size
         got = 0
         while got < m:
             need = m - got
             n = int(need * self.total * 1.02) + 16
-            x, accepted, squeezed, tested, used = self._propose_and_decide(n, rng)
+            if kernels.HAVE_JIT:
+                got += self._compiled_round(n, rng, out, got)
+                continue
+            x, v, loghat, logsq, exact, used = self._propose(n, rng)
+            accepted, squeezed, tested = self._decide(x, v, loghat, logsq, exact)
             c = self.counts
             c["uniforms"] += used
             c["candidates"] += n
