@@ -136,9 +136,11 @@ def bench_inversion(rows):
         u_ref = float(np.max(np.abs(u - target.cdf(ref.ppf(u)))))
         rows.append(dict(section="1. numerical inversion vs NumericalInversePolynomial", target=name,
                          ours=ours, ref=theirs, ratio=ours / theirs, goal=1.2,
-                         note=(f"set-up {setup * 1e3:.1f} ms vs {ref_setup * 1e3:.1f} ms "
-                               f"(ratio {setup / ref_setup:.2f}, goal <= 1); u-error "
-                               f"{sampler.stats['u_error']:.1e} vs {u_ref:.1e}")))
+                         note=f"draws/s at u-error {sampler.stats['u_error']:.1e} (lifedraw) vs {u_ref:.1e} "
+                              "(reference, measured the same way)"))
+        rows.append(dict(section="1b. set-up time vs NumericalInversePolynomial", target=name,
+                         ours=setup * 1e3, ref=ref_setup * 1e3, ratio=setup / ref_setup, goal=-1.0,
+                         note="milliseconds, model built from its formula plus the sampler's set-up"))
 
 
 def bench_rejection_and_rou(rows):
@@ -326,6 +328,22 @@ def _verdict(row) -> str:
     return "met" if row["ratio"] >= goal else "MISSED"
 
 
+# What limits each goal when it is missed (measured and reasoned, kept beside the numbers).
+GAPS = {
+    "1b": ("set-up is Python driving vectorised numpy passes over all pieces at once (about 8-11 ms: "
+           "building the model from its formula, fitting every piece, then verifying each on 24 points and "
+           "measuring the drift of the cumulative starts); UNU.RAN's set-up is compiled C (2-4 ms). It meets "
+           "its own time except next to a pole, and stays about ten times under the 100 ms refit goal."),
+    "2": ("the compiled candidate pass pays a log1p per candidate to invert the exponential hat piece, plus "
+          "numpy work per batch of 65,536 candidates; acceptance (0.995) and density evaluations per draw "
+          "(0.016) are already near their optimum, so the remaining gap is per-candidate arithmetic. "
+          "UNU.RAN's TDR runs wholly in C; its immediate-acceptance variant would be the next step here."),
+    "6": ("two threads draw in parallel (the compiled kernels release the GIL), but every chunk is written to "
+          "fresh memory and on this virtual machine first-touch page faults cost about 10 ns per draw and do not "
+          "scale with threads; the ratio moves between 1.6 and 1.8 from run to run."),
+}
+
+
 def write_results(rows, path: Path):
     today = datetime.date.today().isoformat()
     lines = [f"# lifedraw benchmark results ({today})", "", f"Machine: {_machine()}", "",
@@ -342,6 +360,14 @@ def write_results(rows, path: Path):
         lines.append(f"| {r['section']} | {r.get('target', '')} | {f(r.get('ours'))} | {f(r.get('ref'))} | "
                      f"{f(r.get('ratio'))} | {goal_text} | {_verdict(r)} | {r.get('note', '')} |")
     lines += ["", "Throughput columns are draws per second; see the notes column for other units."]
+    missed = sorted({r["section"] for r in rows if _verdict(r) == "MISSED"})
+    if missed:
+        lines += ["", "## Where a goal is missed, and what limits it", ""]
+        for section in missed:
+            key = section.split(".")[0]
+            lines.append(f"- **{section}**: {GAPS.get(key, 'see the notes column.')}")
+    lines += ["", "Timings on a shared 2-core virtual machine vary by 10-20 % between runs; the ratios come "
+              "from alternating runs in one process, which cancels most of that drift."]
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return "\n".join(lines)
 

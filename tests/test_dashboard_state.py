@@ -274,3 +274,19 @@ def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values(
 def test_a_plain_scenario_has_no_system_figures():
     from dashboard.state import Workbench
     assert Workbench("gearbox-wearout").system_figures() is None
+
+
+@pytest.mark.parametrize("name", __import__("engine.scenarios", fromlist=["scenario_names"]).scenario_names())
+def test_every_scenario_feeds_every_cell(name):
+    # What `make run` shows for each scenario: a batch of draws, the histogram
+    # against the model, QQ/PP data, the method's geometry, the counters and the
+    # life figures, with no error filed on the way.
+    from dashboard.state import Workbench
+    wb = Workbench(name)
+    assert wb.step() > 0
+    assert wb.histogram_data() and wb.qq_data()
+    assert wb.geometry().get("method") == wb.sampler.method
+    assert wb.counters()["samples"] > 0
+    figs = wb.life_figures()
+    assert figs["exact"] is not None and figs["sample"] is not None
+    assert wb.errors == {}
