@@ -332,8 +332,9 @@ def _verdict(row) -> str:
 GAPS = {
     "1b": ("set-up is Python driving vectorised numpy passes over all pieces at once (about 8-11 ms: "
            "building the model from its formula, fitting every piece, then verifying each on 24 points and "
-           "measuring the drift of the cumulative starts); UNU.RAN's set-up is compiled C (2-4 ms). It meets "
-           "its own time except next to a pole, and stays about ten times under the 100 ms refit goal."),
+           "measuring the drift of the cumulative starts); UNU.RAN's set-up is compiled C (2-4 ms). lifedraw "
+           "sets up faster only next to a pole, where UNU.RAN needs many more intervals; everywhere it stays "
+           "about ten times under the 100 ms refit goal."),
     "2": ("the compiled candidate pass pays a log1p per candidate to invert the exponential hat piece, plus "
           "numpy work per batch of 65,536 candidates; acceptance (0.995) and density evaluations per draw "
           "(0.016) are already near their optimum, so the remaining gap is per-candidate arithmetic. "
