@@ -12,43 +12,9 @@ from engine.check import (CheckReport, anderson_darling_pvalue, anderson_darling
                           check, measure_u_error)
 from engine.errors import ModelError
 
+from scipy_target import ScipyTarget
+
 SEED = 20261201
-
-
-class ScipyTarget:
-    """The engine's target interface over a frozen scipy.stats distribution (the reference)."""
-
-    def __init__(self, frozen):
-        self.frozen = frozen
-        self.atoms = np.empty(0)
-
-    def cdf(self, t):
-        return self.frozen.cdf(t)
-
-    def sf(self, t):
-        return self.frozen.sf(t)
-
-    def pdf(self, t):
-        return self.frozen.pdf(t)
-
-    def quantile(self, u):
-        return self.frozen.ppf(u)
-
-    @property
-    def support(self):
-        return tuple(float(v) for v in self.frozen.support())
-
-    def mean(self):
-        return float(self.frozen.mean())
-
-    def var(self):
-        return float(self.frozen.var())
-
-    def moment(self, k):
-        return float(self.frozen.moment(k))
-
-    def describe(self):
-        return f"scipy {self.frozen.dist.name}{self.frozen.args}{self.frozen.kwds}"
 
 
 class AtomsTarget(ScipyTarget):

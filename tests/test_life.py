@@ -12,6 +12,8 @@ from scipy.special import gamma
 from engine.errors import ModelError
 from engine.life import exact_life_figures, life_summary
 
+from scipy_target import ScipyTarget
+
 SEED = 20261201
 BETA, ETA = 1.8, 1200.0
 MISSION = 500.0
@@ -31,29 +33,6 @@ def weibull_b_life(p, beta, eta):
 def weibull_reliability(t, beta, eta):
     # R(t) = exp(-(t/eta)^beta), same section.
     return math.exp(-((t / eta) ** beta))
-
-
-class ScipyTarget:
-    """The engine's target interface over a frozen scipy.stats distribution (the reference)."""
-
-    def __init__(self, frozen):
-        self.frozen = frozen
-        self.atoms = np.empty(0)
-
-    def cdf(self, t):
-        return self.frozen.cdf(t)
-
-    def sf(self, t):
-        return self.frozen.sf(t)
-
-    def quantile(self, u):
-        return self.frozen.ppf(u)
-
-    def mean(self):
-        return float(self.frozen.mean())
-
-    def describe(self):
-        return f"scipy {self.frozen.dist.name}"
 
 
 def weibull_draws(n, seed=SEED):

@@ -20,6 +20,7 @@ from scipy import optimize
 from ..errors import MethodNotApplicable, ModelError
 from ..target import Target
 from .base import Sampler
+from .table import alias_table
 from .leva import LevaNormal, leva_applies
 
 #: Relative margin added to every computed bound, so rounding in the optimiser
@@ -148,23 +149,6 @@ def _sector_triangles(poly: np.ndarray, pts: np.ndarray):
     area = np.concatenate([f[3] for f, _ in parts])
     sector = np.concatenate([np.full(f[3].size, s, dtype=np.int64) for f, s in parts])
     return apex, e1, e2, area, sector
-
-
-def _alias_table(p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Walker's alias table for probabilities p (Vose 1991, IEEE TSE 17(9), the stable set-up)."""
-    n = p.size
-    scaled = p * n
-    prob = np.ones(n)
-    alias = np.arange(n)
-    small = [i for i in range(n) if scaled[i] < 1.0]
-    large = [i for i in range(n) if scaled[i] >= 1.0]
-    while small and large:
-        s, g = small.pop(), large.pop()
-        prob[s], alias[s] = scaled[s], g
-        scaled[g] -= 1.0 - scaled[s]
-        (small if scaled[g] < 1.0 else large).append(g)
-    # Whatever is left has scaled probability 1 up to rounding.
-    return prob, alias
 
 
 class RatioOfUniforms(Sampler):
@@ -491,7 +475,7 @@ class RatioOfUniforms(Sampler):
             apex, e1, e2, area, self._tri_sector = _sector_triangles(self.polygon, self.points)
             self._tri = (apex[:, 0], apex[:, 1], e1[:, 0], e1[:, 1], e2[:, 0], e2[:, 1])
             env_area = float(np.sum(area))
-            self._alias_prob, self._alias = _alias_table(area / env_area)
+            self._alias_prob, self._alias = alias_table(area / env_area)
         else:
             env_area = rect_area
         # area(A) = 1/2 for a normalised density (Kinderman & Monahan 1977).
