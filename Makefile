@@ -26,7 +26,7 @@ run: $(STAMP)
 test: $(TEST_STAMP)
 	$(PY) -m pytest
 
-bench: $(STAMP)
+bench: $(TEST_STAMP)
 	$(PY) -m bench.run
 
 clean:
