@@ -79,7 +79,8 @@ def _show(alert: pn.pane.Alert, message: str | None) -> None:
         text = "<br>".join([html.escape(rows[0]), *(f"row {html.escape(r)}" for r in rows[1:])])
         if rest:
             text += (f'<pre style="margin:6px 0 0 0;font-size:12.5px;background:none;border:none;'
-                     f'padding:0">{html.escape(rest)}</pre>')
+                     f'padding:0">{html.escape(rest).replace(" ", "&nbsp;")}</pre>')
+            # (non-breaking spaces: the alert's Markdown would strip the caret line's indent)
         alert.object = text
     alert.visible = bool(message)
 
