@@ -34,8 +34,8 @@ def check_tolerance(tolerance) -> float:
 class Sampler:
     """A method bound to a target, with its set-up done.
 
-    Subclasses implement ``_draw(m, rng)`` (m values, vectorised, updating the
-    counters), ``_tables()``/``_meta()`` for saving and ``_restore`` for loading,
+    Subclasses implement ``_fill(out, rng)`` or ``_draw(m, rng)`` (vectorised,
+    updating the counters), ``_tables()``/``_meta()`` for saving and ``_restore`` for loading,
     and ``geometry()`` for pictures of the method.
     """
 
@@ -79,12 +79,19 @@ class Sampler:
         self.counts["samples"] += n
         return out
 
+    # A method implements one of these two: ``_fill`` if it can draw in place,
+    # else ``_draw``; each default is written in terms of the other.
     def _fill(self, out: np.ndarray, rng: np.random.Generator) -> None:
-        """Write out.size draws into ``out`` (methods that can, draw in place)."""
+        """Write out.size draws into ``out``."""
         out[:] = self._draw(out.size, rng)
 
     def _draw(self, m: int, rng: np.random.Generator) -> np.ndarray:
-        raise NotImplementedError
+        """Return m new draws."""
+        if type(self)._fill is Sampler._fill:
+            raise NotImplementedError(f"{type(self).__name__} implements neither _fill nor _draw")
+        out = np.empty(m)
+        self._fill(out, rng)
+        return out
 
     # ---- counters ----------------------------------------------------------------
     def reset_counters(self) -> None:

@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 
 from .. import kernels
+from ..check import measure_u_error
 from ..errors import MethodNotApplicable
 from ..numeric import bracket_grid
 from ..target import Target
@@ -24,26 +25,6 @@ ORDER = 5                    # polynomial degree of each piece (DHL 2010 recomme
 MAX_PIECES = 50_000
 TESTS_PER_PIECE = 12         # u-error test points per piece during construction
 DENSE_TESTS = 24             # per piece for the final, reported u-error
-
-
-def measure_u_error(target: Target, quantile, u: np.ndarray) -> float:
-    """max over u of the distance from u to [F(x-), F(x)] at x = quantile(u).
-
-    For a continuous F this is |u - F(x)|; for a target with atoms, exact
-    inversion gives F(x-) <= u <= F(x), so only a violation of that counts.
-    Upper-tail u use the survival function, which keeps their digits.
-    """
-    u = np.asarray(u, dtype=float)
-    x = np.asarray(quantile(u), dtype=float)
-    upper = u > 0.5
-    err_up = np.abs((1.0 - u) - target.sf(x))
-    err_lo = np.abs(u - target.cdf(x))
-    if target.atoms.size:
-        below = target.cdf(np.nextafter(x, -np.inf))
-        Fx = target.cdf(x)
-        err = np.maximum(np.maximum(below - u, u - Fx), 0.0)
-        return float(np.max(err))
-    return float(np.max(np.where(upper, err_up, err_lo)))
 
 
 def u_test_points(n: int = 20_000) -> np.ndarray:
@@ -67,7 +48,7 @@ class Inversion(Sampler):
 
     def _setup(self) -> None:
         self.extra_stats["variant"] = "closed form"
-        self.extra_stats["u_error"] = measure_u_error(self.target, self.target.quantile, u_test_points())
+        self.extra_stats["u_error"] = measure_u_error(self.target.quantile, self.target, u_test_points())
 
     def quantile(self, u):
         """The sampler's own F^-1 (here the target's closed form)."""
@@ -270,7 +251,6 @@ class NumericalInversion(Inversion):
         # Eight cells per piece: a draw then needs a step past its cell's first
         # piece only about one time in eight, which keeps the search branch predictable.
         size = 8 * m
-        self.guide_size = size
         levels = np.arange(size) / size
         # guide[i] = first piece whose start is <= i/size < its end.
         self.guide = np.clip(np.searchsorted(self.u_start, levels, side="right") - 1, 0, m - 1).astype(np.int64)
@@ -287,11 +267,6 @@ class NumericalInversion(Inversion):
         u = np.asarray(u, dtype=float)
         x = kernels.pinv_eval(u.ravel(), self._guide32, self.u_start, self._packed)
         return x.reshape(u.shape) if u.ndim else float(x[0])
-
-    def _draw(self, m, rng):
-        out = np.empty(m)
-        self._fill(out, rng)
-        return out
 
     def _fill(self, out, rng):
         # Uniforms are drawn straight into the output and transformed in place.
@@ -317,7 +292,6 @@ class NumericalInversion(Inversion):
         for key in ("x0", "width", "coef", "du", "u_start", "guide"):
             setattr(self, key, np.asarray(tables[key]))
         self.guide = self.guide.astype(np.int64)
-        self.guide_size = self.guide.size
         self._derive()
         self.u_end = meta["u_end"]
         self.tail_cut = meta["tail_cut"]

@@ -101,9 +101,9 @@ class LevaNormal(Sampler):
     def standard_normal(self, m: int, rng: np.random.Generator, out: np.ndarray | None = None) -> np.ndarray:
         """m standard normal deviates Z = V/U (into ``out`` if given), counting the cost."""
         out = np.empty(m) if out is None else out
-        filled = 0
         if kernels.HAVE_JIT:
             return self._standard_normal_compiled(m, rng, out)
+        filled = 0
         while filled < m:
             need = m - filled
             # About one binomial sd more candidates than the shortfall needs: a second
@@ -150,11 +150,6 @@ class LevaNormal(Sampler):
             z += self._mu
             np.exp(z, out=z)
         z += self._loc
-
-    def _draw(self, m, rng):
-        out = np.empty(m)
-        self._fill(out, rng)
-        return out
 
     # ---- pictures and persistence --------------------------------------------------------
     @staticmethod

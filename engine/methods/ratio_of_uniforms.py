@@ -545,11 +545,6 @@ class RatioOfUniforms(Sampler):
                 accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
         return x, squeezed, accepted, int(rest.size)
 
-    def _draw(self, m, rng):
-        out = np.empty(m)
-        self._fill(out, rng)
-        return out
-
     def _fill(self, out, rng):
         m = out.size
         filled = 0

@@ -729,6 +729,12 @@ class Rejection(Sampler):
         floor_ratio = np.where(np.isfinite(floor_ratio), floor_ratio, 0.0) * (1.0 - 1e-12)
         table = np.column_stack([table, pad(floor_ratio)])
         self._table = np.ascontiguousarray(table)
+        # The last piece with mass (u * total can round up to total), and a guide
+        # table over the cumulative areas: guide[j] = first piece whose end exceeds
+        # j/G of the total (Chen & Asau 1974). Derived here, not saved.
+        self._last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
+        levels = np.arange(2 * self.cum.size) / (2 * self.cum.size) * self.total
+        self._guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
 
     # ---- drawing ----------------------------------------------------------------------------------
     def _propose(self, n, rng):
@@ -738,9 +744,7 @@ class Rejection(Sampler):
         v = rng.random(n)
         used = 2 * n
         uA = u * self.total
-        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
-        # u * total can round up to total: stay on the last piece that has mass.
-        k = np.minimum(np.searchsorted(self.cum, uA, side="right"), last)
+        k = np.minimum(np.searchsorted(self.cum, uA, side="right"), self._last)
         row = self._table[k]
         # The position's uniform is recycled from the one that chose the piece (Hörmann,
         # Leydold & Derflinger 2004, Automatic Nonuniform Random Variate Generation, sec. 2.3).
@@ -806,13 +810,8 @@ class Rejection(Sampler):
         rng.random(out=u)
         rng.random(out=v)
         used = 2 * n
-        guide = getattr(self, "_guide", None)
-        if guide is None or guide.size != 2 * self.cum.size:
-            # guide[j] = first piece whose cumulative end exceeds j/G of the total (derived, not saved).
-            levels = np.arange(2 * self.cum.size) / (2 * self.cum.size) * self.total
-            self._guide = guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
-        last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
-        counts = kernels.hat_propose(u, v, self.cum, guide, self.total, last, self._table, x, loghat, status)
+        counts = kernels.hat_propose(u, v, self.cum, self._guide, self.total, self._last, self._table,
+                                     x, loghat, status)
         for side, code in ((0, 2), (1, 3)):
             if counts[code]:
                 mask = status == code
@@ -845,13 +844,6 @@ class Rejection(Sampler):
         return tuple(b[:n] for b in buf)
 
     def _fill(self, out, rng):
-        self._draw_into(out, rng)
-
-    def _draw(self, m, rng):
-        out = np.empty(m)
-        return self._draw_into(out, rng)
-
-    def _draw_into(self, out, rng):
         m = out.size
         got = 0
         while got < m:
@@ -873,7 +865,6 @@ class Rejection(Sampler):
             got += keep.size
         if getattr(self, "_reserve", None) is not None:
             self._remaining -= m
-        return out
 
     # ---- the hat as a function, pictures, persistence ----------------------------------------------
     def _lookup(self, x):
