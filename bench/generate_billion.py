@@ -51,11 +51,11 @@ def main(argv=None) -> int:
     import dask.array as da
     import numpy as np
 
-    from engine.cli import _number
-    from engine.generate import dask_client, generate
-    from engine.sampling import fit
-    from engine.scenarios import load_scenario
-    from engine.systems import system_from_scenario
+    from lifedraw.engine.cli import _number
+    from lifedraw.engine.generate import dask_client, generate
+    from lifedraw.engine.sampling import fit
+    from lifedraw.engine.scenarios import load_scenario
+    from lifedraw.engine.systems import system_from_scenario
 
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     p.add_argument("--scenario", default="gearbox-wearout")

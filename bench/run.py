@@ -27,9 +27,10 @@ import numpy as np
 from scipy import stats
 from scipy.stats import sampling
 
-import engine
-from engine import Target
-from engine.methods import METHODS
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine import Target
+from lifedraw.engine.methods import METHODS
 
 HERE = Path(__file__).resolve().parent
 N_DRAWS = 10**7
@@ -43,14 +44,14 @@ def _targets():
     # 1. generalised gamma: f ~ t^(k-1) exp(-(t/s)^p)
     k, p, s = 2.5, 1.6, 1.0
     out.append(("generalised gamma",
-                lambda: Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=k, p=p, s=s)),
+                lambda: lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=k, p=p, s=s)),
                 lambda x: x ** (k - 1) * math.exp(-((x / s) ** p)),
                 lambda x: (x ** (k - 2) * math.exp(-((x / s) ** p))) * ((k - 1) - p * (x / s) ** p),
                 ((k - 1) / p) ** (1 / p) * s, (0, math.inf)))
     # 2. bathtub mixture written as one density formula, with a pole at 0 (shape 0.5)
     w1, w2, w3, b3, e3 = 0.1, 0.3, 0.6, 4.0, 3.0
     out.append(("bathtub mixture, pole at 0",
-                lambda: Target.density("w1*0.5*t**(-0.5)*exp(-t**0.5) + w2*exp(-t)"
+                lambda: lifedraw.density_formula("w1*0.5*t**(-0.5)*exp(-t**0.5) + w2*exp(-t)"
                                        " + w3*b3/e3*(t/e3)**(b3 - 1)*exp(-(t/e3)**b3)", (0, math.inf),
                                        dict(w1=w1, w2=w2, w3=w3, b3=b3, e3=e3)),
                 lambda x: (w1 * 0.5 * x ** -0.5 * math.exp(-(x ** 0.5)) + w2 * math.exp(-x)
@@ -60,7 +61,7 @@ def _targets():
     # 3. lognormal-like density as a formula
     mu, sg = 1.0, 0.5
     out.append(("lognormal-like formula",
-                lambda: Target.density("exp(-(log(t) - mu)**2/(2*sg**2))/t", (0, math.inf), dict(mu=mu, sg=sg)),
+                lambda: lifedraw.density_formula("exp(-(log(t) - mu)**2/(2*sg**2))/t", (0, math.inf), dict(mu=mu, sg=sg)),
                 lambda x: math.exp(-((math.log(x) - mu) ** 2) / (2 * sg * sg)) / x if x > 0 else 0.0,
                 lambda x: (math.exp(-((math.log(x) - mu) ** 2) / (2 * sg * sg)) / x**2
                            * (-(math.log(x) - mu) / (sg * sg) - 1)) if x > 0 else 0.0,
@@ -68,7 +69,7 @@ def _targets():
     # 4. a hazard-rate formula (Weibull-type wear-out plus a constant rate); H in closed form for the reference
     a, b, c = 1.0, 2.5, 0.05
     out.append(("hazard-rate formula",
-                lambda: Target.hazard("a*b*t**(b - 1) + c", (0, math.inf), dict(a=a, b=b, c=c)),
+                lambda: lifedraw.hazard_formula("a*b*t**(b - 1) + c", (0, math.inf), dict(a=a, b=b, c=c)),
                 lambda x: (a * b * x ** (b - 1) + c) * math.exp(-(a * x**b + c * x)),
                 None, None, (0, math.inf)))
     return out
@@ -185,7 +186,7 @@ def bench_rejection_and_rou(rows):
 def bench_normal(rows):
     if "ratio-of-uniforms" not in METHODS:
         return
-    s = engine.fit(Target.family("normal", mean=0, sd=1), "ratio-of-uniforms")
+    s = engine.fit(lifedraw.family("normal", mean=0, sd=1), "ratio-of-uniforms")
     g1, g2 = np.random.default_rng(21), np.random.default_rng(22)
     ours, theirs = _race(lambda n: s.sample(n, g1), lambda n: g2.standard_normal(n))
     rows.append(dict(section="3. Leva normal vs numpy standard_normal (ziggurat)", target="standard normal",
@@ -217,11 +218,11 @@ def bench_generic(rows):
 def bench_refit(rows):
     fam = []
     for shape in np.linspace(1.5, 3.5, 9):
-        _, t = _timed(lambda: engine.fit(Target.family("weibull", shape=shape, scale=1000)), repeats=3)
+        _, t = _timed(lambda: engine.fit(lifedraw.family("weibull", shape=shape, scale=1000)), repeats=3)
         fam.append(t)
     form = []
     for k in np.linspace(2.0, 3.0, 5):
-        _, t = _timed(lambda: engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf),
+        _, t = _timed(lambda: engine.fit(lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf),
                                                         dict(k=k, p=1.6, s=1.0))), repeats=3)
         form.append(t)
     rows.append(dict(section="5. refit after a slider change", target="Weibull family",
@@ -237,10 +238,10 @@ def bench_threads(rows):
     code = r'''
 import os, sys, time, json, resource
 import numpy as np, dask
-import engine
-from engine import Target
-from engine.generate import generate
-s = engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, float("inf")), dict(k=2.5, p=1.6, s=1.0)))
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine.generate import generate
+s = engine.fit(lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", (0, float("inf")), dict(k=2.5, p=1.6, s=1.0)))
 mode = sys.argv[1]
 if mode == "threads":
     out = {}

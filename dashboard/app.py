@@ -16,6 +16,7 @@ from pathlib import Path
 
 import panel as pn
 
+from .defaults import DEFAULT_ADDRESS, DEFAULT_PORT
 from .state import Workbench
 from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveCheckCell, ModelCell, ReportCell,
                     caution_banner)
@@ -127,10 +128,10 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
     return page
 
 
-def serve(port: int = 5006, address: str = "127.0.0.1", scenario: str | None = None, report_dir=None,
+def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: str | None = None, report_dir=None,
           show: bool = False) -> int:
     """Serve the workbench until Ctrl-C; returns 0 after a clean stop."""
-    from engine.scenarios import load_scenario
+    from lifedraw.engine.scenarios import load_scenario
     if scenario:
         load_scenario(scenario)    # a bad name fails here, with its message, before the server starts
     _configure()

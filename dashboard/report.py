@@ -20,11 +20,11 @@ import numpy as np
 from bokeh.embed import components
 from bokeh.resources import Resources
 
-import engine
-from engine import ModelError, fit
-from engine.cli import CAUTION
-from engine.compare import MethodResult, compare_methods
-from engine.scenarios import Scenario
+from lifedraw import engine
+from lifedraw.engine import ModelError, fit
+from lifedraw.engine.cautions import CAUTION
+from lifedraw.engine.compare import MethodResult, compare_methods
+from lifedraw.engine.scenarios import Scenario
 
 from . import plots
 from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,

@@ -19,10 +19,10 @@ import numpy as np
 import param
 from scipy import stats as _stats
 
-from engine import ModelError, fit
-from engine.errors import MethodNotApplicable
-from engine.methods import method_names
-from engine.scenarios import DEFAULT_SCENARIO, Scenario, load_scenario, scenario_from_dict, scenario_names
+from lifedraw.engine import ModelError, fit
+from lifedraw.engine.errors import MethodNotApplicable
+from lifedraw.engine.methods import method_names
+from lifedraw.engine.scenarios import DEFAULT_SCENARIO, Scenario, load_scenario, scenario_from_dict, scenario_names
 
 log = logging.getLogger("lifedraw.dashboard")
 
@@ -482,7 +482,7 @@ class Workbench(param.Parameterized):
     def apply_family(self, family: str, params: str) -> bool:
         """Replace the model by a textbook family; each of its parameters gets a slider."""
         def build():
-            from engine.families import FAMILIES
+            from lifedraw.engine.families import FAMILIES
             key = str(family).strip().lower().replace("-", "_").replace(" ", "_")
             if key not in FAMILIES:
                 raise ModelError("family", f"unknown family {family!r}; known: {', '.join(sorted(FAMILIES))}")
@@ -501,7 +501,7 @@ class Workbench(param.Parameterized):
     def load_field_data(self, data, filename: str = "field data.csv") -> bool:
         """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model."""
         def build():
-            from engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
+            from lifedraw.engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
             if sniff_layout(data) == "binned":
                 edges, counts = read_binned_csv(data)
                 model = {"kind": "histogram", "edges": edges.tolist(), "counts": counts.tolist(),
@@ -642,7 +642,7 @@ class Workbench(param.Parameterized):
 
     def life_figures(self) -> dict | None:
         """Life figures of the draws so far (reservoir) beside the model's exact values."""
-        import engine
+        from lifedraw import engine
         if self._exact_life is None:
             self._exact_life = self._guard("run", engine.exact_life_figures, self.target,
                                            self.scenario.mission_times)
@@ -661,8 +661,8 @@ class Workbench(param.Parameterized):
         return self._system_life or None
 
     def _compute_system_figures(self, n: int) -> dict:
-        import engine
-        from engine.systems import as_target, system_from_scenario
+        from lifedraw import engine
+        from lifedraw.engine.systems import as_target, system_from_scenario
         system = system_from_scenario(self.scenario)
         missions = self.scenario.mission_times
         return {"name": system.name or "system", "describe": system.describe(), "n": n, "total": n,
@@ -671,7 +671,7 @@ class Workbench(param.Parameterized):
 
     def run_comparison(self, n: int = 100_000) -> list:
         """Measure every method on the current model now (engine.compare.compare_methods)."""
-        from engine.compare import compare_methods
+        from lifedraw.engine.compare import compare_methods
         try:
             result = compare_methods(self.target, n=n, rng=self.seed, tolerance=float(self.tolerance))
         except Exception as err:

@@ -20,10 +20,10 @@ import numpy as np
 import panel as pn
 from bokeh.models import PrintfTickFormatter
 
-from engine import ModelError
-from engine.cli import CAUTION
-from engine.families import FAMILIES
-from engine.scenarios import SCENARIO_DIR
+from lifedraw.engine import ModelError
+from lifedraw.engine.cautions import CAUTION
+from lifedraw.engine.families import FAMILIES
+from lifedraw.engine.scenarios import scenario_files
 
 from . import plots
 from .state import FORMULA_KINDS, TOLERANCES, Workbench
@@ -88,12 +88,12 @@ def _show(alert: pn.pane.Alert, message: str | None) -> None:
 def scenario_titles() -> dict[str, str]:
     """Title -> scenario name, read from the files' title lines only (cheap)."""
     out = {}
-    for path in sorted(Path(SCENARIO_DIR).glob("*.toml")):
+    for name, source in scenario_files().items():
         try:
-            title = tomllib.loads(path.read_text(encoding="utf-8")).get("title", path.stem)
-        except (OSError, tomllib.TOMLDecodeError):
-            title = f"{path.stem} (unreadable)"
-        out[f"{title}  [{path.stem}]"] = path.stem
+            title = tomllib.loads(source.read_text(encoding="utf-8")).get("title", name)
+        except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+            title = f"{name} (unreadable)"
+        out[f"{title}  [{name}]"] = name
     return out
 
 
@@ -629,7 +629,7 @@ class ComparisonCell(Cell):
 
 def _measure(target, n, seed, tol):
     """Run in a worker thread: measure, and hand back rows or the exception."""
-    from engine.compare import compare_methods
+    from lifedraw.engine.compare import compare_methods
     try:
         return compare_methods(target, n=n, rng=seed, tolerance=tol)
     except Exception as err:  # reported on the page by the state's guard

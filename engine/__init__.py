@@ -1,10 +1,13 @@
 """lifedraw's engine: exact, fast random lifetimes from reliability models.
 
-Plain Python, no user-interface imports: build a ``Target`` (the lifetime model),
-``fit`` a sampler to it, draw with ``sampler.sample(n, rng)``, prove it with ``check``.
+Plain Python, no user-interface imports: build a model (``family``, ``hazard_formula``, ...,
+each a ``Target``), ``fit`` a sampler to it, draw with ``sampler.sample(n, rng)``, prove it
+with ``check``.
 """
 from .errors import MethodNotApplicable, ModelError
 from .target import Target
+from .models import (binned_counts, cdf_formula, competing, density_formula, failure_times, family, from_spec,
+                     hazard_formula, mixture)
 from .sampling import applicable_methods, fit
 from .storage import load_sampler as load
 # Function names that shadow their modules (engine.check is the function).
@@ -14,6 +17,8 @@ from .fitting import fit_family
 from .generate import generate
 from .systems import k_out_of_n, parallel, series, standby
 
-__all__ = ["Target", "fit", "load", "check", "life_summary", "exact_life_figures", "fit_family",
+__all__ = ["Target", "family", "density_formula", "hazard_formula", "cdf_formula", "binned_counts",
+           "failure_times", "mixture", "competing", "from_spec",
+           "fit", "load", "check", "life_summary", "exact_life_figures", "fit_family",
            "applicable_methods", "generate", "series", "parallel", "k_out_of_n", "standby",
            "ModelError", "MethodNotApplicable"]

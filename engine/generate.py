@@ -182,7 +182,7 @@ def _as_drawable(sampler):
     raise ModelError("sampler", f"must be a sampler (engine.fit), a system or a Target, got {type(sampler).__name__}")
 
 
-def _workers_of(client) -> dict:
+def workers_of(client) -> dict:
     """Every worker's info (address -> nthreads, memory_limit, ...)."""
     try:
         return client.scheduler_info(n_workers=-1)["workers"]
@@ -196,7 +196,7 @@ def _check_client(client):
     if not (hasattr(client, "submit") and hasattr(client, "scatter") and hasattr(client, "scheduler_info")):
         raise ModelError("client", f"must be a dask.distributed.Client or None, got {type(client).__name__}")
     try:
-        workers = _workers_of(client)
+        workers = workers_of(client)
     except Exception as err:  # a closed or lost client: say so rather than hang
         raise ModelError("client", f"cannot reach its scheduler ({err})") from None
     if not workers:
@@ -360,14 +360,14 @@ def _versions() -> dict:
 
 
 def _manifest(drawable, shipped: _Shipped, n: int, chunk: int, seed: int, sizes) -> dict:
-    from .storage import _jsonable
+    from .storage import jsonable
     if isinstance(drawable, Sampler):
         model = {"method": drawable.method, "class": type(drawable).__name__,
                  "model": drawable.target.spec(), "description": drawable.target.describe()}
     else:
         model = {"method": "system", "class": type(drawable).__name__,
                  "model": drawable.spec(), "description": drawable.describe()}
-    return _jsonable({
+    return jsonable({
         "format": SHARD_FORMAT, "version": SHARD_VERSION,
         "n": n, "chunk": chunk, "chunks": len(sizes), "seed": seed,
         "stream": "chunk i: numpy.random.default_rng(numpy.random.SeedSequence(seed, spawn_key=(i,)))",
@@ -490,7 +490,7 @@ def _run_cluster(client, shipped, seed, todo, finished) -> None:
     from distributed import as_completed
 
     source = client.scatter(shipped, broadcast=True, hash=False)
-    threads = sum(int(w.get("nthreads") or 1) for w in _workers_of(client).values())
+    threads = sum(int(w.get("nthreads") or 1) for w in workers_of(client).values())
     window = max(2 * threads, 2)
     tasks = iter(todo)
 
@@ -572,105 +572,3 @@ def dask_client(scheduler: str | None = None, workers: int | None = None, timeou
     finally:
         client.close()
         cluster.close()
-
-
-# ---- command line -------------------------------------------------------------------------------
-
-class TextProgress:
-    """A plain-text progress bar on stderr: shards done, draws per second, time left."""
-
-    def __init__(self, stream=None, width: int = 30):
-        self.stream = stream or sys.stderr
-        self.width = width
-        self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
-        self.first = None            # shards already finished when this run started
-        self.start = self.last = 0.0
-
-    def __call__(self, done: int, total: int, drawn: int) -> None:
-        now = time.perf_counter()
-        if self.first is None:
-            self.first, self.start = done, now
-        # A terminal redraws often; a log file gets a line every 10 s.
-        if done < total and done != self.first and now - self.last < (0.2 if self.tty else 10.0):
-            return
-        self.last = now
-        elapsed = now - self.start
-        this_run = done - self.first
-        rate = drawn / elapsed if elapsed > 0 else 0.0
-        filled = int(self.width * done / max(total, 1))
-        text = f"[{'#' * filled}{'.' * (self.width - filled)}] {done}/{total} shards"
-        if this_run:
-            text += f", {rate / 1e6:.1f} M draws/s"
-        elif done == total:
-            text += " (all finished by an earlier run)"
-        elif done:
-            text += f" ({done} finished by an earlier run)"
-        if this_run and done < total:
-            text += f", about {(total - done) * elapsed / this_run:.0f} s left"
-        self.stream.write(("\r" + text) if self.tty else (text + "\n"))
-        self.stream.flush()
-
-    def close(self) -> None:
-        if self.tty:
-            self.stream.write("\n")
-            self.stream.flush()
-
-
-def cmd_generate(args) -> int:
-    from .sampling import fit
-    from .scenarios import load_scenario
-    from .systems import system_from_scenario
-
-    sc = load_scenario(args.scenario)
-    if sc.system and not args.model_only:
-        drawable, what = system_from_scenario(sc), "system lifetimes"
-    else:
-        tolerance = args.tolerance if args.tolerance is not None else sc.tolerance
-        drawable, what = fit(sc.target(), args.method or sc.method, tolerance), "lifetimes"
-    n = args.n if args.n is not None else sc.sample_size
-    seed = args.seed if args.seed is not None else sc.seed
-    bar = TextProgress()
-    start = time.perf_counter()
-    try:
-        with dask_client(args.scheduler, args.workers, args.timeout) as client:
-            where = "local threads" if client is None else f"{len(_workers_of(client))} Dask workers"
-            print(f"{sc.title}: {n:,} {what} ({sc.time_unit}) in chunks of {min(args.chunk, n):,} "
-                  f"on {where}, seed {seed}", file=sys.stderr)
-            generate(drawable, n, chunk=args.chunk, seed=seed, client=client, out=args.out, progress=bar)
-    except KeyboardInterrupt:
-        bar.close()
-        print(f"lifedraw: stopped; finished shards are kept in {args.out}, run the same command "
-              "again to resume", file=sys.stderr)
-        raise
-    bar.close()
-    seconds = time.perf_counter() - start
-    manifest = read_manifest(args.out)
-    print(f"{args.out}: {manifest['chunks']} shards, {n:,} {what}, {seconds:.1f} s "
-          f"(sampler {manifest['sampler']['fingerprint'][:12]}, manifest {MANIFEST})")
-    return 0
-
-
-def add_generate_parser(sub) -> None:
-    """Register ``lifedraw generate`` on an argparse subparsers object."""
-    from .cli import _number
-
-    p = sub.add_parser("generate", help="draw many lifetimes in chunks to resumable .npy shards",
-                       description="Draw n lifetimes of a scenario (its [system] if it has one) in "
-                                   "chunks, each from its own random stream, to .npy shards plus a "
-                                   "manifest. Rerunning the same command resumes.")
-    p.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
-    p.add_argument("-n", type=_number, default=None, help="number of lifetimes, e.g. 1e9 (default: the scenario's)")
-    p.add_argument("--chunk", type=_number, default=DEFAULT_CHUNK, help="draws per chunk and shard (default 1e7)")
-    p.add_argument("--out", required=True, help="output folder for the shards and manifest.json")
-    p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
-    where = p.add_mutually_exclusive_group()
-    where.add_argument("--scheduler", metavar="tcp://HOST:PORT", default=None,
-                       help="run on this Dask scheduler (--out must be visible to its workers)")
-    where.add_argument("--workers", metavar="K", type=int, default=None,
-                       help="start a local Dask cluster of K single-threaded processes on 127.0.0.1")
-    p.add_argument("--timeout", type=float, default=10.0, help="seconds to wait for the scheduler (default 10)")
-    p.add_argument("--method", default=None, help="sampling method for the [model] (systems: per part)")
-    p.add_argument("--tolerance", type=float, default=None, help="u-error tolerance for the [model]")
-    p.add_argument("--model-only", action="store_true",
-                   help="draw the scenario's [model] even if it describes a [system]")
-    p.set_defaults(func=cmd_generate)

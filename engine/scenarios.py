@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 import os
 import tomllib
+from importlib import resources
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Mapping
@@ -19,7 +20,10 @@ from .errors import ModelError, finite_number
 from .specs import target_from_spec
 from .target import Target
 
-SCENARIO_DIR = Path(os.environ.get("LIFEDRAW_SCENARIOS", Path(__file__).resolve().parent.parent / "scenarios"))
+#: The package that ships the scenario files (read with importlib.resources, so a wheel works anywhere).
+SHIPPED_SCENARIOS = "lifedraw.scenarios"
+#: Folders of the user's own scenarios (separated like PATH); their names shadow shipped ones.
+USER_SCENARIOS_ENV = "LIFEDRAW_SCENARIOS"
 
 # Keys under which a string in a model table names a parameter.
 _VALUE_KEYS = {"params", "weights", "age", "support", "location"}
@@ -69,7 +73,7 @@ class Scenario:
 
     def model_spec(self, **overrides) -> dict:
         """The model table with every parameter name replaced by its value."""
-        return _resolve(self.model, self.values(**overrides), "model")
+        return resolve_parameters(self.model, self.values(**overrides), "model")
 
     def target(self, **overrides) -> Target:
         return target_from_spec(self.model_spec(**overrides), "model")
@@ -117,16 +121,18 @@ def _toml_safe(value):
     return value
 
 
-def _resolve(node, values: Mapping[str, float], path: str, in_values: bool = False):
+def resolve_parameters(node, values: Mapping[str, float], path: str, in_values: bool = False):
+    """A copy of a scenario table with every parameter name (a string where a number belongs) replaced
+    by its value; ``path`` names the table in error messages."""
     if isinstance(node, Mapping):
         out = {}
         for k, v in node.items():
-            out[k] = _resolve(v, values, f"{path}.{k}", in_values or k in _VALUE_KEYS)
+            out[k] = resolve_parameters(v, values, f"{path}.{k}", in_values or k in _VALUE_KEYS)
         if out.get("kind") in _FORMULA_KINDS and "params" not in node:
             out["params"] = dict(values)
         return out
     if isinstance(node, list):
-        return [_resolve(v, values, f"{path}[{i}]", in_values) for i, v in enumerate(node)]
+        return [resolve_parameters(v, values, f"{path}[{i}]", in_values) for i, v in enumerate(node)]
     if in_values and isinstance(node, str):
         if node in ("inf", "-inf"):
             return float(node)
@@ -178,20 +184,41 @@ def scenario_from_dict(data: Mapping, name: str, path: Path | None = None) -> Sc
     return sc
 
 
+def scenario_folders() -> list:
+    """Where scenarios are found: the user's folders (``$LIFEDRAW_SCENARIOS``) first, then the shipped ones."""
+    user = [Path(p) for p in os.environ.get(USER_SCENARIOS_ENV, "").split(os.pathsep) if p.strip()]
+    return [*user, resources.files(SHIPPED_SCENARIOS)]
+
+
+def scenario_files() -> dict[str, Any]:
+    """Scenario name -> its file (a path or a package resource); a user's file shadows a shipped one."""
+    found: dict[str, Any] = {}
+    for folder in scenario_folders():
+        if not folder.is_dir():
+            continue
+        for entry in folder.iterdir():
+            stem, dot, suffix = entry.name.rpartition(".")
+            if dot and suffix == "toml" and entry.is_file():
+                found.setdefault(stem, entry)
+    return dict(sorted(found.items()))
+
+
 def load_scenario(name_or_path) -> Scenario:
-    """A scenario by its name in ``scenarios/`` or by a path to a .toml file."""
+    """A scenario by its name (shipped or in ``$LIFEDRAW_SCENARIOS``) or by a path to a .toml file."""
     candidate = Path(str(name_or_path))
     if candidate.suffix == ".toml" and candidate.exists():
-        path = candidate
+        source, name, path = candidate, candidate.stem, candidate
     else:
-        path = SCENARIO_DIR / f"{name_or_path}.toml"
-        if not path.exists():
-            raise ModelError("scenario", f"no scenario {str(name_or_path)!r}; known: {', '.join(scenario_names())}")
+        files = scenario_files()
+        if str(name_or_path) not in files:
+            raise ModelError("scenario", f"no scenario {str(name_or_path)!r}; known: {', '.join(files)}")
+        source, name = files[str(name_or_path)], str(name_or_path)
+        path = source if isinstance(source, Path) else None
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        data = tomllib.loads(source.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as err:
-        raise ModelError("scenario", f"{path.name} is not valid TOML: {err}") from None
-    return scenario_from_dict(data, path.stem, path)
+        raise ModelError("scenario", f"{source.name} is not valid TOML: {err}") from None
+    return scenario_from_dict(data, name, path)
 
 
 def scenario_from_toml(text: str, name: str = "uploaded") -> Scenario:
@@ -203,7 +230,7 @@ def scenario_from_toml(text: str, name: str = "uploaded") -> Scenario:
 
 
 def scenario_names() -> list[str]:
-    return sorted(p.stem for p in SCENARIO_DIR.glob("*.toml"))
+    return list(scenario_files())
 
 
 DEFAULT_SCENARIO = "gearbox-wearout"

@@ -8,6 +8,7 @@ from __future__ import annotations
 import math
 from typing import Any, Mapping
 
+from . import models
 from .errors import ModelError
 from .target import Target
 
@@ -37,26 +38,26 @@ def target_from_spec(spec: Mapping[str, Any], path: str = "model") -> Target:
     try:
         if kind == "family":
             params = dict(spec.get("params", {}))
-            return Target.family(_get(spec, "family", path), **params)
+            return models.family(_get(spec, "family", path), **params)
         if kind == "density":
-            return Target.density(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+            return models.density_formula(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
         if kind == "hazard":
-            return Target.hazard(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+            return models.hazard_formula(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
         if kind == "cdf":
-            return Target.cdf_formula(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
+            return models.cdf_formula(_get(spec, "expr", path), _support(spec, path), dict(spec.get("params", {})))
         if kind == "histogram":
-            return Target.histogram(_get(spec, "edges", path), _get(spec, "counts", path),
+            return models.binned_counts(_get(spec, "edges", path), _get(spec, "counts", path),
                                     smooth=bool(spec.get("smooth", False)))
         if kind == "failures":
-            return Target.failures(_get(spec, "times", path), spec.get("censored"))
+            return models.failure_times(_get(spec, "times", path), spec.get("censored"))
         if kind == "mixture":
             comps = [target_from_spec(c, f"{path}.components[{i}]")
                      for i, c in enumerate(_get(spec, "components", path))]
-            return Target.mixture(comps, _get(spec, "weights", path))
+            return models.mixture(comps, _get(spec, "weights", path))
         if kind == "competing":
             comps = [target_from_spec(c, f"{path}.components[{i}]")
                      for i, c in enumerate(_get(spec, "components", path))]
-            return Target.competing(comps)
+            return models.competing(comps)
         if kind == "system":
             from .systems import SystemTarget, system_from_spec
             return SystemTarget(system_from_spec(_get(spec, "system", path)))

@@ -20,15 +20,16 @@ VERSION = 1
 META_KEY = "lifedraw.json"
 
 
-def _jsonable(value):
+def jsonable(value):
+    """Plain JSON types, non-finite floats kept as ``{"float": "inf"}`` (read back by the loader)."""
     if isinstance(value, float) and not math.isfinite(value):
         return {"float": repr(value)}
     if isinstance(value, dict):
-        return {k: _jsonable(v) for k, v in value.items()}
+        return {k: jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
+        return [jsonable(v) for v in value]
     if isinstance(value, np.generic):
-        return _jsonable(value.item())
+        return jsonable(value.item())
     return value
 
 
@@ -68,7 +69,7 @@ def _write(sampler, fh) -> None:
             "class": type(sampler).__name__, "tolerance": sampler.tolerance,
             "setup_seconds": sampler.setup_seconds, "reason": sampler.reason,
             "target": sampler.target.spec(), "method_meta": sampler._meta()}
-    blob = json.dumps(_jsonable(meta), allow_nan=False).encode("utf-8")
+    blob = json.dumps(jsonable(meta), allow_nan=False).encode("utf-8")
     arrays = {f"table.{k}": np.ascontiguousarray(v) for k, v in sampler._tables().items()}
     arrays[META_KEY] = np.frombuffer(blob, dtype=np.uint8)
     np.savez(fh, **arrays)

@@ -525,10 +525,10 @@ def system_from_spec(spec: Mapping, path: str = "system", method: str = "auto",
 
 def system_from_scenario(scenario, **overrides) -> System:
     """The scenario's [system] table as a System (parameter names resolved like [model])."""
-    from .scenarios import _resolve
+    from .scenarios import resolve_parameters
     if not scenario.system:
         raise ModelError("system", f"scenario {scenario.name!r} has no [system] table")
-    resolved = _resolve(scenario.system, scenario.values(**overrides), "system")
+    resolved = resolve_parameters(scenario.system, scenario.values(**overrides), "system")
     return system_from_spec(resolved, "system", tolerance=scenario.tolerance)
 
 

@@ -261,72 +261,47 @@ class Target:
         from .composite import ResidualTarget
         return ResidualTarget(self, age)
 
-    @staticmethod
-    def family(name: str, **params) -> "Target":
-        """A textbook lifetime family in the reliability parameterisation."""
-        from .families import FamilyTarget
-        return FamilyTarget(name, **params)
-
-    @staticmethod
-    def density(expr: str, support=(0.0, math.inf), params: Mapping[str, float] | None = None) -> "Target":
-        """A density formula in t (unnormalised allowed: the area is computed and reported)."""
-        from .formula_targets import DensityTarget
-        return DensityTarget(expr, support, params or {})
-
-    @staticmethod
-    def hazard_rate(expr: str, support=(0.0, math.inf), params: Mapping[str, float] | None = None) -> "Target":
-        """A hazard-rate formula h(t); the density is h(t)·exp(-H(t))."""
-        from .formula_targets import HazardTarget
-        return HazardTarget(expr, support, params or {})
-
-    @staticmethod
-    def cdf_formula(expr: str, support=(0.0, math.inf), params: Mapping[str, float] | None = None) -> "Target":
-        """A cumulative distribution formula F(t), rising from 0 to 1 over the support."""
-        from .formula_targets import CdfTarget
-        return CdfTarget(expr, support, params or {})
-
-    @staticmethod
-    def histogram(edges: Sequence[float], counts: Sequence[float], smooth: bool = False) -> "Target":
-        """Binned failure counts: uniform within each bin, or a smooth mass-keeping density."""
-        from .field_data import HistogramTarget
-        return HistogramTarget(edges, counts, smooth=smooth)
-
-    @staticmethod
-    def failures(times: Sequence[float], censored: Sequence[bool] | None = None) -> "Target":
-        """Failure times with suspensions: product-limit inside the data, Weibull tail beyond."""
-        from .field_data import ProductLimitTarget
-        return ProductLimitTarget(times, censored)
-
-    @staticmethod
-    def mixture(components: Iterable["Target"], weights: Sequence[float]) -> "Target":
-        """A population mixing sub-populations (e.g. a bathtub curve)."""
-        from .composite import MixtureTarget
-        return MixtureTarget(list(components), weights)
-
-    @staticmethod
-    def competing(components: Iterable["Target"]) -> "Target":
-        """Independent failure modes; the first one to occur fails the unit."""
-        from .composite import CompetingTarget
-        return CompetingTarget(list(components))
-
-    @staticmethod
-    def from_spec(spec: Mapping) -> "Target":
-        """Rebuild a target from ``target.spec()`` (also the scenario files' model table)."""
-        from .specs import target_from_spec
-        return target_from_spec(spec)
-
     def __repr__(self) -> str:
         return f"<{type(self).__name__} {self.formula() or self.kind} on {self.support}>"
 
 
-# The hazard-formula constructor is exposed as ``Target.hazard`` on the class
-# (the name the API promises), while instances keep ``hazard(t)`` for h(t).
-class _HazardConstructor:
+# ---- deprecated constructors (one release) ----------------------------------------------
+# Model constructors are functions of the package now (``lifedraw.family``, ...). The old
+# class-level names still work and warn. ``Target.hazard`` served both as the hazard-formula
+# constructor (on the class) and as h(t) (on an instance); the small descriptor below exists only
+# to keep the old class-level call working during the deprecation and goes with it.
+
+_RENAMED = {"family": "family", "density": "density_formula", "hazard_rate": "hazard_formula",
+            "cdf_formula": "cdf_formula", "histogram": "binned_counts", "failures": "failure_times",
+            "mixture": "mixture", "competing": "competing", "from_spec": "from_spec"}
+
+
+def _deprecated_constructor(old: str, new: str):
+    def constructor(*args, **kwargs):
+        import warnings
+        from . import models
+        warnings.warn(f"Target.{old}(...) is deprecated and will be removed in the next release; "
+                      f"use lifedraw.{new}(...)", DeprecationWarning, stacklevel=2)
+        return getattr(models, new)(*args, **kwargs)
+    constructor.__name__ = old
+    constructor.__doc__ = f"Deprecated: use ``lifedraw.{new}``."
+    return staticmethod(constructor)
+
+
+for _old, _new in _RENAMED.items():
+    setattr(Target, _old, _deprecated_constructor(_old, _new))
+
+
+class _HazardOnClassOrInstance:
+    """``Target.hazard(expr)`` (deprecated constructor) versus ``target.hazard(t)`` (h(t))."""
+
+    def __init__(self, instance_method):
+        self.instance_method = instance_method
+
     def __get__(self, instance, owner):
         if instance is None:
-            return Target.hazard_rate
-        return instance._hazard_of_instance
+            return _deprecated_constructor("hazard", "hazard_formula").__func__
+        return self.instance_method.__get__(instance, owner)
 
 
-Target._hazard_of_instance = Target.hazard
-Target.hazard = _HazardConstructor()
+Target.hazard = _HazardOnClassOrInstance(Target.hazard)

@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from engine.check import (CheckReport, anderson_darling_pvalue, anderson_darling_statistic,
+from lifedraw.engine.check import (CheckReport, anderson_darling_pvalue, anderson_darling_statistic,
                           check, measure_u_error)
-from engine.errors import ModelError
+from lifedraw.engine.errors import ModelError
 
 from scipy_target import ScipyTarget
 

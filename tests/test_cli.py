@@ -5,11 +5,11 @@ import sys
 import numpy as np
 import pytest
 
-from engine.scenarios import scenario_names
+from lifedraw.engine.scenarios import scenario_names
 
 
 def run(*args, check=True):
-    return subprocess.run([sys.executable, "-m", "engine.cli", *args], capture_output=True, text=True,
+    return subprocess.run([sys.executable, "-m", "lifedraw", *args], capture_output=True, text=True,
                           check=check, timeout=240)
 
 

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from engine import ModelError, Target
+import lifedraw
+from lifedraw.engine import ModelError, Target
 
 # Sums and products of closed forms: a few ulps each (measured <= 1e-14 relative).
 RTOL = 1e-12
@@ -29,9 +30,9 @@ SCIPY_PARTS = [stats.weibull_min(0.6, scale=50.0), stats.lognorm(0.3, scale=math
 
 
 def mixture():
-    return Target.mixture([Target.family("weibull", shape=0.6, scale=50.0),
-                           Target.family("lognormal", mu=5.0, sigma=0.3),
-                           Target.family("gamma", shape=9.0, scale=40.0)], WEIGHTS_GIVEN)
+    return lifedraw.mixture([lifedraw.family("weibull", shape=0.6, scale=50.0),
+                           lifedraw.family("lognormal", mu=5.0, sigma=0.3),
+                           lifedraw.family("gamma", shape=9.0, scale=40.0)], WEIGHTS_GIVEN)
 
 
 def weighted(fn, t):
@@ -77,11 +78,11 @@ def test_mixture_quantile_inverts_the_weighted_cdf_in_both_tails():
 # ---- competing failure modes (NIST e-Handbook 8.1.6.6): R = prod R_i, h = sum h_i ----------
 
 def test_competing_reliability_is_the_product_and_hazard_the_sum():
-    modes = [Target.family("weibull", shape=0.8, scale=3000.0), Target.family("lognormal", mu=7.0, sigma=0.6),
-             Target.family("gamma", shape=4.0, scale=400.0)]
+    modes = [lifedraw.family("weibull", shape=0.8, scale=3000.0), lifedraw.family("lognormal", mu=7.0, sigma=0.6),
+             lifedraw.family("gamma", shape=4.0, scale=400.0)]
     refs = [stats.weibull_min(0.8, scale=3000.0), stats.lognorm(0.6, scale=math.exp(7.0)),
             stats.gamma(4.0, scale=400.0)]
-    target = Target.competing(modes)
+    target = lifedraw.competing(modes)
     t = np.logspace(-3, 3.8, 50)
     assert rel_err(target.sf(t), np.prod([d.sf(t) for d in refs], axis=0)) <= RTOL
     assert rel_err(target.hazard(t), sum(d.pdf(t) / d.sf(t) for d in refs)) <= RTOL
@@ -95,7 +96,7 @@ SUMMED = stats.expon(scale=1.0 / sum(1.0 / th for th in THETAS))   # rates add (
 
 
 def competing_exponentials():
-    return Target.competing([Target.family("exponential", scale=th) for th in THETAS])
+    return lifedraw.competing([lifedraw.family("exponential", scale=th) for th in THETAS])
 
 
 def test_competing_exponentials_are_one_exponential_with_the_summed_rate():
@@ -120,7 +121,7 @@ def test_competing_weibulls_of_equal_shape_are_one_weibull():
     b, etas = 2.2, [100.0, 150.0, 400.0]
     eta = sum(e**-b for e in etas) ** (-1.0 / b)
     ref = stats.weibull_min(b, scale=eta)
-    target = Target.competing([Target.family("weibull", shape=b, scale=e) for e in etas])
+    target = lifedraw.competing([lifedraw.family("weibull", shape=b, scale=e) for e in etas])
     t = ref.ppf(np.array([1e-3, 0.1, 0.5, 0.9, 1 - 1e-6]))
     assert rel_err(target.sf(t), ref.sf(t)) <= RTOL
     assert rel_err(target.pdf(t), ref.pdf(t)) <= RTOL
@@ -131,8 +132,8 @@ def test_competing_weibulls_of_equal_shape_are_one_weibull():
 
 
 def test_competing_support_ends_with_the_first_mode_to_end():
-    target = Target.competing([Target.histogram([0.0, 10.0, 20.0], [1, 1]),
-                               Target.family("exponential", scale=5.0)])
+    target = lifedraw.competing([lifedraw.binned_counts([0.0, 10.0, 20.0], [1, 1]),
+                               lifedraw.family("exponential", scale=5.0)])
     assert target.support == (0.0, 20.0)
 
 
@@ -140,7 +141,7 @@ def test_competing_support_ends_with_the_first_mode_to_end():
 
 def test_residual_reliability_is_the_conditional_reliability():
     base = stats.weibull_min(2.5, scale=100.0)
-    target = Target.family("weibull", shape=2.5, scale=100.0).given_survival(150.0)
+    target = lifedraw.family("weibull", shape=2.5, scale=100.0).given_survival(150.0)
     x = np.array([1e-3, 1.0, 10.0, 50.0, 100.0])
     assert rel_err(target.sf(x), base.sf(150.0 + x) / base.sf(150.0)) <= RTOL
     assert rel_err(target.pdf(x), base.pdf(150.0 + x) / base.sf(150.0)) <= RTOL
@@ -152,7 +153,7 @@ def test_residual_reliability_is_the_conditional_reliability():
 def test_residual_life_of_an_exponential_is_the_same_exponential(age):
     # Memorylessness (NIST e-Handbook 8.1.6.1): P(T > a + x | T > a) = exp(-x/theta).
     ref = stats.expon(scale=100.0)
-    target = Target.family("exponential", scale=100.0).given_survival(age)
+    target = lifedraw.family("exponential", scale=100.0).given_survival(age)
     x = ref.ppf(np.array([1e-3, 0.1, 0.5, 0.9])).tolist() + ref.isf(np.array([1e-6, 1e-12])).tolist()
     x = np.array(x)
     assert target.support == (0.0, math.inf)
@@ -175,7 +176,7 @@ def weibull_residual_quantile(u, a, b, eta):
 def test_weibull_residual_quantile_matches_a_direct_solve():
     a, b, eta = 150.0, 2.5, 100.0
     base = stats.weibull_min(b, scale=eta)
-    target = Target.family("weibull", shape=b, scale=eta).given_survival(a)
+    target = lifedraw.family("weibull", shape=b, scale=eta).given_survival(a)
     u = np.array([1e-3, 0.05, 0.3, 0.5, 0.7, 0.95])
     # Direct solve of the conditional reliability R(a + x)/R(a) = 1 - u with scipy's Weibull sf.
     direct = np.array([optimize.brentq(lambda x: base.sf(a + x) / base.sf(a) - (1 - ui), 0.0, 500.0,
@@ -186,7 +187,7 @@ def test_weibull_residual_quantile_matches_a_direct_solve():
 
 def test_weibull_residual_quantile_keeps_its_digits_in_the_upper_tail():
     a, b, eta = 150.0, 2.5, 100.0
-    target = Target.family("weibull", shape=b, scale=eta).given_survival(a)
+    target = lifedraw.family("weibull", shape=b, scale=eta).given_survival(a)
     u = 1.0 - np.array([1e-3, 1e-6, 1e-9, 1e-12])
     assert rel_err(target.quantile(u), weibull_residual_quantile(u, a, b, eta)) <= 1e-12
 
@@ -195,7 +196,7 @@ def test_residual_lower_tail_keeps_relative_digits():
     # The chance of failing soon after inspection (u down to 1e-9) with relative accuracy:
     # F_X(x) = (1/R(a))·integral of f(a + s) ds over (0, x) has no cancellation.
     a, b, eta = 150.0, 2.5, 100.0
-    target = Target.family("weibull", shape=b, scale=eta).given_survival(a)
+    target = lifedraw.family("weibull", shape=b, scale=eta).given_survival(a)
     u = np.array([1e-9, 1e-6, 1e-3])
     x = weibull_residual_quantile(u, a, b, eta)
     assert rel_err(target.quantile(u), x) <= 1e-10
@@ -205,7 +206,7 @@ def test_residual_lower_tail_keeps_relative_digits():
 def test_residual_at_an_old_age_keeps_relative_digits():
     # Memorylessness at age 2000 = 20 mean lives (R(a) = 2e-9): F_X(x) = 1 - exp(-x/theta) exactly,
     # to 1e-12 relative, as the base exponential itself gives.
-    old = Target.family("exponential", scale=100.0).given_survival(2000.0)
+    old = lifedraw.family("exponential", scale=100.0).given_survival(2000.0)
     u = np.array([1e-9, 1e-6, 1e-3, 0.01])
     x = stats.expon(scale=100.0).ppf(u)
     assert rel_err(old.cdf(x), u) <= 1e-12
@@ -215,7 +216,7 @@ def test_residual_at_an_old_age_keeps_relative_digits():
 def test_residual_of_a_normal_life_starts_at_zero_remaining_life():
     # Remaining life is >= 0 even when the base law's support reaches below the age.
     base = stats.norm(100.0, 10.0)
-    target = Target.family("normal", mean=100.0, sd=10.0).given_survival(50.0)
+    target = lifedraw.family("normal", mean=100.0, sd=10.0).given_survival(50.0)
     assert target.support == (0.0, math.inf)
     x = np.array([1.0, 50.0, 80.0])
     assert rel_err(target.sf(x), base.sf(50.0 + x) / base.sf(50.0)) <= RTOL
@@ -225,7 +226,7 @@ def test_residual_of_a_normal_life_starts_at_zero_remaining_life():
 
 def test_residual_age_where_reliability_underflows_is_rejected():
     with pytest.raises(ModelError) as err:
-        Target.family("weibull", shape=2.5, scale=100.0).given_survival(3000.0)   # R = exp(-3.1e3) = 0
+        lifedraw.family("weibull", shape=2.5, scale=100.0).given_survival(3000.0)   # R = exp(-3.1e3) = 0
     assert err.value.field == "age"
     assert "underflows" in err.value.reason
 
@@ -233,7 +234,7 @@ def test_residual_age_where_reliability_underflows_is_rejected():
 @pytest.mark.parametrize("age", [20.0, 25.0])
 def test_residual_age_at_or_beyond_the_end_of_the_support_is_rejected(age):
     with pytest.raises(ModelError) as err:
-        Target.histogram([0.0, 10.0, 20.0], [3, 4]).given_survival(age)
+        lifedraw.binned_counts([0.0, 10.0, 20.0], [3, 4]).given_survival(age)
     assert err.value.field == "age"
     assert "beyond the end of the support" in err.value.reason
 
@@ -241,7 +242,7 @@ def test_residual_age_at_or_beyond_the_end_of_the_support_is_rejected(age):
 @pytest.mark.parametrize("age", [-1.0, float("nan")])
 def test_negative_or_nan_age_is_rejected(age):
     with pytest.raises(ModelError) as err:
-        Target.family("exponential", scale=10.0).given_survival(age)
+        lifedraw.family("exponential", scale=10.0).given_survival(age)
     assert err.value.field == "age"
 
 
@@ -252,20 +253,20 @@ def test_negative_or_nan_age_is_rejected(age):
     ([0.0, 0.0, 0.0], "add up to 0"),
 ])
 def test_bad_mixture_weights_are_rejected(weights, words):
-    parts = [Target.family("exponential", scale=s) for s in (1.0, 2.0, 3.0)]
+    parts = [lifedraw.family("exponential", scale=s) for s in (1.0, 2.0, 3.0)]
     with pytest.raises(ModelError) as err:
-        Target.mixture(parts, weights)
+        lifedraw.mixture(parts, weights)
     assert err.value.field == "weights"
     assert words in err.value.reason
 
 
 def test_mixture_component_that_is_not_a_target_is_named_by_index():
     with pytest.raises(ModelError) as err:
-        Target.mixture([Target.family("exponential", scale=1.0), "weibull"], [1, 1])
+        lifedraw.mixture([lifedraw.family("exponential", scale=1.0), "weibull"], [1, 1])
     assert err.value.field == "components[1]"
 
 
 def test_competing_without_components_is_rejected():
     with pytest.raises(ModelError) as err:
-        Target.competing([])
+        lifedraw.competing([])
     assert err.value.field == "components"

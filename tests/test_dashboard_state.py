@@ -11,10 +11,11 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from dashboard.state import (CdfTable, DrawAccumulator, Workbench, histogram_edges, parse_assignments,
+import lifedraw
+from lifedraw.dashboard.state import (CdfTable, DrawAccumulator, Workbench, histogram_edges, parse_assignments,
                              parse_support)
-from engine import ModelError, Target
-from engine.scenarios import scenario_from_toml
+from lifedraw.engine import ModelError, Target
+from lifedraw.engine.scenarios import scenario_from_toml
 
 BAD_ROW_CSV = "time,suspended\n5200,0\n8100,maybe\n9400,1\n"
 
@@ -121,7 +122,7 @@ def test_a_good_change_clears_the_message_of_the_bad_one(bench):
 def test_a_good_upload_becomes_the_product_limit_model(bench):
     text = "time,suspended\n5200,0\n8100,0\n9400,1\n11800,0\n"
     assert bench.load_field_data(text, "bushings.csv")
-    reference = Target.failures([5200, 8100, 9400, 11800], [False, False, True, False])
+    reference = lifedraw.failure_times([5200, 8100, 9400, 11800], [False, False, True, False])
     np.testing.assert_allclose(bench.target.sf([6000, 10000, 12000]), reference.sf([6000, 10000, 12000]))
 
 
@@ -166,7 +167,7 @@ def test_two_workbenches_do_not_share_state():
 def test_the_reservoir_is_a_uniform_sample_of_all_draws():
     # Feed 0, 1, ..., N-1 in batches: a uniform reservoir holds values uniform on [0, N).
     # KS against U(0, 1) at alpha = 0.001 with a fixed seed (scipy.stats.kstest).
-    target = Target.family("exponential", scale=1.0)
+    target = lifedraw.family("exponential", scale=1.0)
     table = CdfTable(target, np.linspace(0.01, 5, 100))
     acc = DrawAccumulator(np.linspace(0, 5, 11), table, capacity=2_000, rng=7)
     n = 100_000
@@ -203,7 +204,7 @@ def test_the_binned_counts_follow_the_models_bin_masses():
 
 
 def test_histogram_edges_start_at_the_failure_free_period():
-    target = Target.family("weibull", shape=1.8, scale=4200, location=1200)
+    target = lifedraw.family("weibull", shape=1.8, scale=4200, location=1200)
     table = CdfTable(target, target.quantile(np.linspace(0.001, 0.999, 999)))
     edges, view_right = histogram_edges(target, table)
     assert edges[0] == 1200
@@ -263,7 +264,7 @@ def test_support_ends_accept_inf():
 def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values():
     # The pumping station's [system] table: exact figures from the structure
     # (NIST e-Handbook 8.1.8 rules) inside the Monte Carlo intervals.
-    from dashboard.state import Workbench
+    from lifedraw.dashboard.state import Workbench
     wb = Workbench("pumping-station-system")
     figs = wb.system_figures(n=50_000)
     assert figs is not None and figs["exact"]["mttf"]["value"] > 0
@@ -272,16 +273,16 @@ def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values(
 
 
 def test_a_plain_scenario_has_no_system_figures():
-    from dashboard.state import Workbench
+    from lifedraw.dashboard.state import Workbench
     assert Workbench("gearbox-wearout").system_figures() is None
 
 
-@pytest.mark.parametrize("name", __import__("engine.scenarios", fromlist=["scenario_names"]).scenario_names())
+@pytest.mark.parametrize("name", __import__("lifedraw.engine.scenarios", fromlist=["scenario_names"]).scenario_names())
 def test_every_scenario_feeds_every_cell(name):
     # What `make run` shows for each scenario: a batch of draws, the histogram
     # against the model, QQ/PP data, the method's geometry, the counters and the
     # life figures, with no error filed on the way.
-    from dashboard.state import Workbench
+    from lifedraw.dashboard.state import Workbench
     wb = Workbench(name)
     assert wb.step() > 0
     assert wb.histogram_data() and wb.qq_data()

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from engine import ModelError, Target, fit
+import lifedraw
+from lifedraw.engine import ModelError, Target, fit
 
 EDGES = np.array([0.0, 100.0, 250.0, 400.0, 700.0, 1000.0])
 COUNTS = np.array([12.0, 0.0, 30.0, 45.0, 13.0])         # bin 2 has no failures
@@ -18,7 +19,7 @@ CUMULATIVE = np.concatenate([[0.0], np.cumsum(SHARES)])
 
 
 def histogram(smooth=False, counts=COUNTS):
-    return Target.histogram(EDGES.tolist(), counts.tolist(), smooth=smooth)
+    return lifedraw.binned_counts(EDGES.tolist(), counts.tolist(), smooth=smooth)
 
 
 # ---- histogram, uniform within bins ----------------------------------------------------
@@ -143,7 +144,7 @@ def textbook_product_limit(times, censored):
 
 
 def nist_example():
-    return Target.failures(NIST_TIMES, NIST_CENSORED)
+    return lifedraw.failure_times(NIST_TIMES, NIST_CENSORED)
 
 
 def test_product_limit_reproduces_the_nist_worked_example():
@@ -168,7 +169,7 @@ def test_product_limit_counts_a_tied_suspension_as_still_at_risk():
     # By hand: 6/7 at t=3; (5/6)·... at t=5 with n=6 (the suspension at 5 still at risk); n=4 at 7; n=3 at 9.
     assert want_r.tolist() == pytest.approx([6 / 7, 6 / 7 * 5 / 6, 6 / 7 * 5 / 6 * 3 / 4,
                                              6 / 7 * 5 / 6 * 3 / 4 * 2 / 3], rel=1e-15)
-    assert Target.failures(times, censored).sf(want_t) == pytest.approx(want_r, rel=1e-14)
+    assert lifedraw.failure_times(times, censored).sf(want_t) == pytest.approx(want_r, rel=1e-14)
 
 
 def test_product_limit_quantile_is_the_smallest_failure_time_reaching_u():
@@ -183,7 +184,7 @@ def test_product_limit_quantile_is_the_smallest_failure_time_reaching_u():
 
 def test_without_suspensions_the_product_limit_is_the_empirical_distribution():
     data = [5.0, 8.0, 8.0, 12.0, 20.0]
-    target = Target.failures(data)
+    target = lifedraw.failure_times(data)
     # Each observation carries 1/n (NIST e-Handbook 8.2.1.5: K-M reduces to the empirical CDF).
     assert target.cdf(np.array([4.9, 5.0, 8.0, 12.0, 19.9, 20.0])).tolist() == pytest.approx(
         [0.0, 0.2, 0.6, 0.8, 0.8, 1.0], abs=1e-15)
@@ -252,7 +253,7 @@ def test_description_says_the_tail_is_an_extrapolation_with_its_share():
         "one edge"])
 def test_bad_histogram_is_rejected_naming_the_field(edges, counts, field, words):
     with pytest.raises(ModelError) as err:
-        Target.histogram(edges, counts)
+        lifedraw.binned_counts(edges, counts)
     assert err.value.field == field
     assert words in err.value.reason
 
@@ -266,6 +267,6 @@ def test_bad_histogram_is_rejected_naming_the_field(edges, counts, field, words)
 ], ids=["negative time", "empty", "all censored", "length mismatch", "infinite time"])
 def test_bad_failure_data_is_rejected_naming_the_field(times, censored, field, words):
     with pytest.raises(ModelError) as err:
-        Target.failures(times, censored)
+        lifedraw.failure_times(times, censored)
     assert err.value.field == field
     assert words in err.value.reason

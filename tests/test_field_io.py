@@ -6,8 +6,9 @@ CSV reading itself follows RFC 4180 (quoted fields may contain the delimiter).
 """
 import pytest
 
-from engine import ModelError, Target
-from engine.field_io import MAX_REPORTED, FieldDataError, read_binned_csv, read_failure_csv, sniff_layout
+import lifedraw
+from lifedraw.engine import ModelError, Target
+from lifedraw.engine.field_io import MAX_REPORTED, FieldDataError, read_binned_csv, read_failure_csv, sniff_layout
 
 
 # ---- failure times -------------------------------------------------------------------------
@@ -134,7 +135,7 @@ def test_failure_data_builds_the_product_limit_model():
     # Kaplan & Meier (1958): with suspensions at 2 and 4 among 1..5, S(1) = 4/5,
     # S(3) = 4/5 * 2/3, S(5) = 0 (worked by hand from the product-limit formula).
     times, censored = read_failure_csv("time,suspended\n1,0\n2,1\n3,0\n4,1\n5,0\n")
-    target = Target.failures(times, censored)
+    target = lifedraw.failure_times(times, censored)
     assert target.sf(1.5) == pytest.approx(4 / 5)
     assert target.sf(3.5) == pytest.approx(4 / 5 * 2 / 3)
 
@@ -197,7 +198,7 @@ def test_a_binned_header_without_count_is_refused():
 
 def test_binned_data_builds_the_histogram_model():
     edges, counts = read_binned_csv("lower,upper,count\n0,3,14\n3,6,6\n")
-    target = Target.histogram(edges, counts)
+    target = lifedraw.binned_counts(edges, counts)
     # Uniform within bins: F(3) = 14/20 and F(4.5) = 14/20 + 3/6 exactly (by hand).
     assert target.cdf(3.0) == pytest.approx(0.7)
     assert target.cdf(4.5) == pytest.approx(0.7 + 0.5 * 0.3)

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from engine.errors import ModelError
-from engine.families import FamilyTarget
-from engine.fitting import fit_family
+from lifedraw.engine.errors import ModelError
+from lifedraw.engine.families import FamilyTarget
+from lifedraw.engine.fitting import fit_family
 
 SEED = 20260611
 EULER_GAMMA = 0.5772156649015329

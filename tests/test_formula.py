@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from engine.errors import ModelError
-from engine.formula import Formula
+from lifedraw.engine.errors import ModelError
+from lifedraw.engine.formula import Formula
 
 T = np.array([0.5, 1.0, 3.0, 10.0, 49.0, 50.0, 99.0, 100.0, 150.0, 250.0])
 

@@ -12,12 +12,13 @@ import time
 import numpy as np
 import pytest
 
-import engine
-from engine import ModelError
-from engine.generate import (add_generate_parser, connect, generate, open_shards, read_manifest,
-                             sampler_fingerprint, sampler_from_bytes, sampler_to_bytes)
-from engine.scenarios import load_scenario
-from engine.systems import system_from_scenario
+from lifedraw import engine
+from lifedraw.engine import ModelError
+from lifedraw.cli.generate_command import add_generate_parser
+from lifedraw.engine.generate import (connect, generate, open_shards, read_manifest, sampler_fingerprint,
+                                      sampler_from_bytes, sampler_to_bytes)
+from lifedraw.engine.scenarios import load_scenario
+from lifedraw.engine.systems import system_from_scenario
 
 N, CHUNK, SEED = 40_000, 12_000, 11     # four chunks, the last one short
 

@@ -10,14 +10,15 @@ import math
 import numpy as np
 import pytest
 
-import engine
-from engine import Target, kernels
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine import Target, kernels
 
 pytestmark = pytest.mark.skipif(not kernels.HAVE_JIT, reason="Numba not installed: only the numpy path exists")
 
 
 def test_inverse_cdf_kernel_matches_numpy_twin():
-    s = engine.fit(Target.density("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=2.5, p=1.6, s=1.0)))
+    s = engine.fit(lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=2.5, p=1.6, s=1.0)))
     u = np.random.default_rng(1).random(200_000)
     u[:3] = [0.0, 1.0 - 2**-53, s.u_start[5]]          # ends and an exact piece boundary
     tables = (s.guide, s.u_start, kernels.pack_pinv_table(s.x0, s.width, s.coef, s.du))
@@ -27,7 +28,7 @@ def test_inverse_cdf_kernel_matches_numpy_twin():
 
 
 def test_leva_compiled_loop_gives_the_same_deviates_and_counts(monkeypatch):
-    target = Target.family("normal", mean=0.0, sd=1.0)
+    target = lifedraw.family("normal", mean=0.0, sd=1.0)
     compiled = engine.fit(target, "ratio-of-uniforms")
     a = compiled.sample(100_000, 7)
     monkeypatch.setattr(kernels, "HAVE_JIT", False)
@@ -39,8 +40,8 @@ def test_leva_compiled_loop_gives_the_same_deviates_and_counts(monkeypatch):
 
 
 @pytest.mark.parametrize("target", [
-    Target.family("gamma", shape=2.5, scale=1.0),
-    Target.mixture([Target.family("weibull", shape=0.6, scale=50.0), Target.family("weibull", shape=4.0, scale=500.0)],
+    lifedraw.family("gamma", shape=2.5, scale=1.0),
+    lifedraw.mixture([lifedraw.family("weibull", shape=0.6, scale=50.0), lifedraw.family("weibull", shape=4.0, scale=500.0)],
                    [0.3, 0.7]),
 ], ids=["gamma 2.5", "mixture with a pole"])
 def test_rejection_compiled_pass_gives_the_same_draws_and_counts(target, monkeypatch):

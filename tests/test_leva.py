@@ -11,11 +11,12 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from engine import MethodNotApplicable, Target
-from engine import methods as method_registry
-from engine.methods.leva import A, B, R1, R2, S, T, V_SPAN, LevaNormal, leva_applies
-from engine.methods.ratio_of_uniforms import RatioOfUniforms
-from engine.storage import load_sampler
+import lifedraw
+from lifedraw.engine import MethodNotApplicable, Target
+from lifedraw.engine import methods as method_registry
+from lifedraw.engine.methods.leva import A, B, R1, R2, S, T, V_SPAN, LevaNormal, leva_applies
+from lifedraw.engine.methods.ratio_of_uniforms import RatioOfUniforms
+from lifedraw.engine.storage import load_sampler
 
 SEED = 19920401
 N_COUNT = 10**6        # draws for the cost counters
@@ -26,7 +27,7 @@ KS_ALPHA = 1e-3        # a wrong law (e.g. a sd off by 1%) gives p ~ 0 at this n
 @pytest.fixture(scope="module")
 def counted():
     """A standard normal sampler after N_COUNT draws (the counters are what is tested)."""
-    sampler = LevaNormal.build(Target.family("normal", mean=0.0, sd=1.0))
+    sampler = LevaNormal.build(lifedraw.family("normal", mean=0.0, sd=1.0))
     sampler.sample(N_COUNT, SEED)
     return sampler
 
@@ -110,42 +111,42 @@ def test_inner_ellipse_lies_inside_A_and_outer_ellipse_outside():
 
 
 def test_normal_draws_follow_scipy_normal():
-    target = Target.family("normal", mean=1000.0, sd=80.0)
+    target = lifedraw.family("normal", mean=1000.0, sd=80.0)
     x = LevaNormal.build(target).sample(N_KS, SEED)
     assert stats.kstest(x, stats.norm(loc=1000.0, scale=80.0).cdf).pvalue > KS_ALPHA
 
 
 def test_lognormal_with_location_follows_scipy_lognormal():
     # scipy's lognorm(s=sigma, loc=location, scale=exp(mu)).
-    target = Target.family("lognormal", mu=4.0, sigma=0.6, location=25.0)
+    target = lifedraw.family("lognormal", mu=4.0, sigma=0.6, location=25.0)
     x = LevaNormal.build(target).sample(N_KS, SEED + 1)
     ref = stats.lognorm(s=0.6, loc=25.0, scale=math.exp(4.0))
     assert stats.kstest(x, ref.cdf).pvalue > KS_ALPHA
 
 
 def test_ratio_of_uniforms_request_for_a_normal_uses_leva():
-    sampler = RatioOfUniforms.build(Target.family("normal", mean=5.0, sd=2.0))
+    sampler = RatioOfUniforms.build(lifedraw.family("normal", mean=5.0, sd=2.0))
     assert isinstance(sampler, LevaNormal)
     assert sampler.method == "ratio-of-uniforms"
     assert sampler.stats["variant"] == "Leva 1992 quadratic squeezes"
 
 
 def test_leva_applies_to_normal_and_lognormal_only():
-    assert leva_applies(Target.family("normal", mean=0.0, sd=1.0))
-    assert leva_applies(Target.family("lognormal", mu=0.0, sigma=1.0))
-    assert not leva_applies(Target.family("weibull", shape=2.0, scale=1.0))
+    assert leva_applies(lifedraw.family("normal", mean=0.0, sd=1.0))
+    assert leva_applies(lifedraw.family("lognormal", mu=0.0, sigma=1.0))
+    assert not leva_applies(lifedraw.family("weibull", shape=2.0, scale=1.0))
     # Residual life of a normal unit is no longer normal.
-    assert not leva_applies(Target.family("normal", mean=10.0, sd=1.0).given_survival(9.0))
+    assert not leva_applies(lifedraw.family("normal", mean=10.0, sd=1.0).given_survival(9.0))
 
 
 def test_leva_refuses_other_families_with_a_reason():
     with pytest.raises(MethodNotApplicable, match="normal and lognormal"):
-        LevaNormal.build(Target.family("weibull", shape=2.0, scale=1.0))
+        LevaNormal.build(lifedraw.family("weibull", shape=2.0, scale=1.0))
 
 
 def test_saved_and_loaded_sampler_draws_the_same_values(tmp_path, monkeypatch):
     monkeypatch.setitem(method_registry._ALL_CLASSES, "LevaNormal", LevaNormal)
-    sampler = LevaNormal.build(Target.family("lognormal", mu=1.0, sigma=0.3, location=2.0))
+    sampler = LevaNormal.build(lifedraw.family("lognormal", mu=1.0, sigma=0.3, location=2.0))
     path = tmp_path / "leva.npz"
     sampler.save(path)
     loaded = load_sampler(path)
@@ -154,7 +155,7 @@ def test_saved_and_loaded_sampler_draws_the_same_values(tmp_path, monkeypatch):
 
 
 def test_geometry_labels_candidates_by_how_they_were_decided():
-    g = LevaNormal.build(Target.family("normal", mean=0.0, sd=1.0)).geometry(2000, rng=SEED)
+    g = LevaNormal.build(lifedraw.family("normal", mean=0.0, sd=1.0)).geometry(2000, rng=SEED)
     u, v, label = g["candidates_u"], g["candidates_v"], g["candidates_label"]
     in_A = v**2 <= -4 * u**2 * np.log(u)
     assert set(np.unique(label)) <= {"accepted", "rejected", "squeeze"}

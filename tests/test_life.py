@@ -9,8 +9,8 @@ import pytest
 from scipy import stats
 from scipy.special import gamma
 
-from engine.errors import ModelError
-from engine.life import exact_life_figures, life_summary
+from lifedraw.engine.errors import ModelError
+from lifedraw.engine.life import exact_life_figures, life_summary
 
 from scipy_target import ScipyTarget
 

@@ -13,10 +13,11 @@ import pytest
 from scipy import optimize, special, stats
 from scipy.stats import sampling
 
-from engine import MethodNotApplicable, ModelError, Target
-from engine import methods as method_registry
-from engine.methods.ratio_of_uniforms import RatioOfUniforms
-from engine.storage import load_sampler
+import lifedraw
+from lifedraw.engine import MethodNotApplicable, ModelError, Target
+from lifedraw.engine import methods as method_registry
+from lifedraw.engine.methods.ratio_of_uniforms import RatioOfUniforms
+from lifedraw.engine.storage import load_sampler
 
 SEED = 19770301
 N_KS = 100_000
@@ -47,38 +48,38 @@ def mixture_cdf(x):
 
 
 CASES = {
-    "weibull shape 2": (lambda: Target.family("weibull", shape=2.0, scale=100.0),
+    "weibull shape 2": (lambda: lifedraw.family("weibull", shape=2.0, scale=100.0),
                         stats.weibull_min(2.0, scale=100.0).cdf),
-    "weibull shape 3.5": (lambda: Target.family("weibull", shape=3.5, scale=1000.0, location=5.0),
+    "weibull shape 3.5": (lambda: lifedraw.family("weibull", shape=3.5, scale=1000.0, location=5.0),
                           stats.weibull_min(3.5, loc=5.0, scale=1000.0).cdf),
-    "gamma shape 2.5 with location": (lambda: Target.family("gamma", shape=2.5, scale=3.0, location=10.0),
+    "gamma shape 2.5 with location": (lambda: lifedraw.family("gamma", shape=2.5, scale=3.0, location=10.0),
                                       stats.gamma(2.5, loc=10.0, scale=3.0).cdf),
     # t^1.5 exp(-(t/10)^2.5) is the Weibull density with shape 2.5, scale 10, unnormalised.
-    "density formula": (lambda: Target.density("t**1.5*exp(-(t/10)**2.5)"),
+    "density formula": (lambda: lifedraw.density_formula("t**1.5*exp(-(t/10)**2.5)"),
                         stats.weibull_min(2.5, scale=10.0).cdf),
-    "hazard formula": (lambda: Target.hazard("0.002*t + 0.0001*t**2"), hazard_cdf),
-    "given survival of a weibull": (lambda: Target.family("weibull", shape=2.5, scale=100.0).given_survival(50.0),
+    "hazard formula": (lambda: lifedraw.hazard_formula("0.002*t + 0.0001*t**2"), hazard_cdf),
+    "given survival of a weibull": (lambda: lifedraw.family("weibull", shape=2.5, scale=100.0).given_survival(50.0),
                                     residual_weibull_cdf(2.5, 100.0, 50.0)),
-    "loglogistic shape 4": (lambda: Target.family("loglogistic", shape=4.0, scale=100.0),
+    "loglogistic shape 4": (lambda: lifedraw.family("loglogistic", shape=4.0, scale=100.0),
                             stats.fisk(4.0, scale=100.0).cdf),
     # Tail f ~ t^-2.5, lighter than 1/t^2: A is bounded, so the method applies.
-    "loglogistic shape 1.5": (lambda: Target.family("loglogistic", shape=1.5, scale=100.0),
+    "loglogistic shape 1.5": (lambda: lifedraw.family("loglogistic", shape=1.5, scale=100.0),
                               stats.fisk(1.5, scale=100.0).cdf),
-    "birnbaum-saunders": (lambda: Target.family("birnbaum_saunders", shape=0.5, scale=100.0),
+    "birnbaum-saunders": (lambda: lifedraw.family("birnbaum_saunders", shape=0.5, scale=100.0),
                           stats.fatiguelife(0.5, scale=100.0).cdf),
     # 2/(pi (1 + t^2)) is the half-Cauchy law: t^2 f -> 2/pi, the boundary case where A is
     # still bounded (its v-extent is reached only as t -> infinity).
-    "half-cauchy formula": (lambda: Target.density("1/(1+t*t)"), stats.halfcauchy().cdf),
+    "half-cauchy formula": (lambda: lifedraw.density_formula("1/(1+t*t)"), stats.halfcauchy().cdf),
     # Two wear-out modes far apart: bimodal, so not T_{-1/2}-concave (no squeeze).
-    "bimodal mixture": (lambda: Target.mixture([Target.family("weibull", shape=3.0, scale=10.0),
-                                                Target.family("weibull", shape=4.0, scale=50.0)], [0.4, 0.6]),
+    "bimodal mixture": (lambda: lifedraw.mixture([lifedraw.family("weibull", shape=3.0, scale=10.0),
+                                                lifedraw.family("weibull", shape=4.0, scale=50.0)], [0.4, 0.6]),
                         mixture_cdf),
 }
 
 
 @pytest.fixture(scope="module")
 def gamma_target():
-    return Target.family("gamma", shape=2.5, scale=3.0, location=10.0)
+    return lifedraw.family("gamma", shape=2.5, scale=3.0, location=10.0)
 
 
 @pytest.mark.parametrize("envelope", ["auto", "rectangle"])
@@ -198,7 +199,7 @@ def test_rectangle_for_the_normal_is_kinderman_monahans_closed_form():
     # Kinderman & Monahan (1977): for N(mu, sigma^2), u+ = (2 pi sigma^2)^(-1/4),
     # v+- = +- sqrt(2/e) (2 pi)^(-1/4) sqrt(sigma); acceptance sqrt(pi e)/4 = 1/1.3688.
     sigma = 4.0
-    s = RatioOfUniforms.build(Target.family("normal", mean=50.0, sd=sigma), leva=False).stats
+    s = RatioOfUniforms.build(lifedraw.family("normal", mean=50.0, sd=sigma), leva=False).stats
     assert s["u_plus"] == pytest.approx((2 * math.pi * sigma**2) ** -0.25, rel=1e-6)
     assert s["v_plus"] == pytest.approx(math.sqrt(2 / math.e) * (2 * math.pi) ** -0.25 * math.sqrt(sigma), rel=1e-6)
     assert s["v_minus"] == pytest.approx(-s["v_plus"], rel=1e-6)
@@ -209,7 +210,7 @@ def test_same_law_as_scipy_ratio_uniforms_on_the_same_rectangle():
     # scipy.stats.sampling.RatioUniforms: plain rectangle rejection on scipy's own
     # Weibull density, with our rectangle. Two-sample KS: the critical distance at
     # 1e-3 for two samples of 1e5 is 0.0087.
-    target = Target.family("weibull", shape=2.0, scale=100.0)
+    target = lifedraw.family("weibull", shape=2.0, scale=100.0)
     ours = RatioOfUniforms.build(target)
     s = ours.stats
     ref = sampling.RatioUniforms(stats.weibull_min(2.0, scale=100.0).pdf, umax=s["u_plus"],
@@ -227,7 +228,7 @@ def test_same_law_as_scipy_simple_ratio_uniforms():
 
     ref = sampling.SimpleRatioUniforms(Gamma25(), mode=1.5, pdf_area=special.gamma(2.5), domain=(0, math.inf),
                                        random_state=np.random.default_rng(SEED + 2))
-    ours = RatioOfUniforms.build(Target.family("gamma", shape=2.5, scale=1.0))
+    ours = RatioOfUniforms.build(lifedraw.family("gamma", shape=2.5, scale=1.0))
     assert stats.ks_2samp(ours.sample(N_KS, SEED), ref.rvs(N_KS)).pvalue > KS_ALPHA
 
 
@@ -235,15 +236,15 @@ def test_same_law_as_scipy_simple_ratio_uniforms():
 def test_weibull_with_shape_below_one_is_refused_for_its_pole():
     # f ~ t^(beta - 1) -> infinity at 0 for beta < 1: sup sqrt f is infinite.
     with pytest.raises(MethodNotApplicable, match="unbounded"):
-        RatioOfUniforms.build(Target.family("weibull", shape=0.7, scale=100.0))
+        RatioOfUniforms.build(lifedraw.family("weibull", shape=0.7, scale=100.0))
 
 
 @pytest.mark.parametrize("make", [
     # Residual life of a loglogistic shape 0.8 unit past age 10: no pole (the age is
     # past it), but f ~ t^-1.8, so t sqrt f ~ t^0.1 grows without bound (v unbounded).
-    lambda: Target.family("loglogistic", shape=0.8, scale=100.0).given_survival(10.0),
+    lambda: lifedraw.family("loglogistic", shape=0.8, scale=100.0).given_survival(10.0),
     # A Lomax (Pareto II) density with shape 0.5: f ~ t^-1.5, t sqrt f ~ t^0.25.
-    lambda: Target.density("1/(1+t)**1.5"),
+    lambda: lifedraw.density_formula("1/(1+t)**1.5"),
 ], ids=["residual loglogistic 0.8", "lomax 0.5 formula"])
 def test_tail_heavier_than_one_over_t_squared_is_refused(make):
     with pytest.raises(MethodNotApplicable, match=r"heavier than 1/t\^2"):
@@ -252,18 +253,18 @@ def test_tail_heavier_than_one_over_t_squared_is_refused(make):
 
 def test_loglogistic_shape_1_5_is_served():
     # f ~ t^-(beta + 1) = t^-2.5, so t^2 f -> 0 and A is bounded (only beta < 1 is too heavy).
-    RatioOfUniforms.check_applicable(Target.family("loglogistic", shape=1.5, scale=100.0))
+    RatioOfUniforms.check_applicable(lifedraw.family("loglogistic", shape=1.5, scale=100.0))
 
 
 def test_product_limit_target_is_refused_for_its_atoms():
-    target = Target.failures([120.0, 190.0, 190.0, 260.0, 333.0, 410.0])
+    target = lifedraw.failure_times([120.0, 190.0, 190.0, 260.0, 333.0, 410.0])
     with pytest.raises(MethodNotApplicable, match="atoms"):
         RatioOfUniforms.build(target)
 
 
 def test_plain_histogram_is_left_to_table_lookup():
     with pytest.raises(MethodNotApplicable, match="table"):
-        RatioOfUniforms.build(Target.histogram([0.0, 100.0, 200.0, 300.0], [4, 9, 3]))
+        RatioOfUniforms.build(lifedraw.binned_counts([0.0, 100.0, 200.0, 300.0], [4, 9, 3]))
 
 
 # ---- pictures and persistence ---------------------------------------------------------------------

@@ -14,10 +14,11 @@ import pytest
 from scipy import stats
 from scipy.stats import sampling as scipy_sampling
 
-import engine
-from engine.errors import MethodNotApplicable, ModelError
-from engine.methods.rejection import POLE_MASS, Rejection
-from engine.target import Target
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine.errors import MethodNotApplicable, ModelError
+from lifedraw.engine.methods.rejection import POLE_MASS, Rejection
+from lifedraw.engine.target import Target
 
 N = 100_000
 # Kolmogorov-Smirnov at n = 1e5: a CDF off by more than 1.95/sqrt(n) = 0.0062 anywhere
@@ -43,7 +44,7 @@ def _bathtub_hazard():
     a, b, c, d, g = 0.05, 0.5, 0.001, 1e-12, 4.0
     H = lambda t: a * t**b + c * t + d * t**g                              # noqa: E731
     h = lambda t: a * b * t ** (b - 1) + c + d * g * t ** (g - 1)          # noqa: E731
-    target = Target.hazard("a*b*t**(b-1) + c + d*g*t**(g-1)", params=dict(a=a, b=b, c=c, d=d, g=g))
+    target = lifedraw.hazard_formula("a*b*t**(b-1) + c + d*g*t**(g-1)", params=dict(a=a, b=b, c=c, d=d, g=g))
     return target, (lambda t: -np.expm1(-H(t))), (lambda t: h(t) * np.exp(-H(t)))
 
 
@@ -51,17 +52,17 @@ def _bathtub_mixture():
     parts = [stats.weibull_min(0.5, scale=100.0), stats.weibull_min(1.0, scale=1000.0),
              stats.weibull_min(4.0, loc=300.0, scale=500.0)]
     weights = [0.1, 0.3, 0.6]
-    target = Target.mixture([Target.family("weibull", shape=0.5, scale=100.0),
-                             Target.family("weibull", shape=1.0, scale=1000.0),
-                             Target.family("weibull", shape=4.0, scale=500.0, location=300.0)], weights)
+    target = lifedraw.mixture([lifedraw.family("weibull", shape=0.5, scale=100.0),
+                             lifedraw.family("weibull", shape=1.0, scale=1000.0),
+                             lifedraw.family("weibull", shape=4.0, scale=500.0, location=300.0)], weights)
     return (target, *_mix(parts, weights))
 
 
 def _competing():
     # Series system: R = R1 R2 (NIST/SEMATECH e-Handbook 8.1.6.6).
     m1, m2 = stats.weibull_min(0.8, scale=1000.0), stats.weibull_min(3.0, scale=500.0)
-    target = Target.competing([Target.family("weibull", shape=0.8, scale=1000.0),
-                               Target.family("weibull", shape=3.0, scale=500.0)])
+    target = lifedraw.competing([lifedraw.family("weibull", shape=0.8, scale=1000.0),
+                               lifedraw.family("weibull", shape=3.0, scale=500.0)])
     return (target, lambda t: 1 - m1.sf(t) * m2.sf(t),
             lambda t: m1.pdf(t) * m2.sf(t) + m2.pdf(t) * m1.sf(t))
 
@@ -69,7 +70,7 @@ def _competing():
 def _residual():
     # Remaining life after surviving to a: R_X(x) = R(a + x)/R(a) (e-Handbook 8.1.2.4).
     base, age = stats.weibull_min(2.5, scale=100.0), 80.0
-    target = Target.family("weibull", shape=2.5, scale=100.0).given_survival(age)
+    target = lifedraw.family("weibull", shape=2.5, scale=100.0).given_survival(age)
     return (target, lambda x: (base.cdf(age + x) - base.cdf(age)) / base.sf(age),
             lambda x: base.pdf(age + x) / base.sf(age))
 
@@ -79,22 +80,22 @@ def _scipy(target, dist):
 
 
 CASES = {
-    "weibull 2 with location": lambda: _scipy(Target.family("weibull", shape=2.0, scale=100.0, location=50.0),
+    "weibull 2 with location": lambda: _scipy(lifedraw.family("weibull", shape=2.0, scale=100.0, location=50.0),
                                               stats.weibull_min(2.0, loc=50.0, scale=100.0)),
-    "gamma 2.5": lambda: _scipy(Target.family("gamma", shape=2.5, scale=10.0), stats.gamma(2.5, scale=10.0)),
-    "lognormal": lambda: _scipy(Target.family("lognormal", mu=3.0, sigma=0.8),
+    "gamma 2.5": lambda: _scipy(lifedraw.family("gamma", shape=2.5, scale=10.0), stats.gamma(2.5, scale=10.0)),
+    "lognormal": lambda: _scipy(lifedraw.family("lognormal", mu=3.0, sigma=0.8),
                                 stats.lognorm(0.8, scale=math.exp(3.0))),
-    "normal": lambda: _scipy(Target.family("normal", mean=100.0, sd=15.0), stats.norm(100.0, 15.0)),
+    "normal": lambda: _scipy(lifedraw.family("normal", mean=100.0, sd=15.0), stats.norm(100.0, 15.0)),
     # t^1.5 exp(-(t/10)^2.5) is the Weibull density with shape 2.5 and scale 10, unnormalised
     # (f = (k/s)(t/s)^(k-1) exp(-(t/s)^k), NIST e-Handbook 8.1.6.2).
-    "density formula": lambda: _scipy(Target.density("t**1.5*exp(-(t/10)**2.5)"),
+    "density formula": lambda: _scipy(lifedraw.density_formula("t**1.5*exp(-(t/10)**2.5)"),
                                       stats.weibull_min(2.5, scale=10.0)),
     "bathtub hazard formula (pole at 0)": _bathtub_hazard,
     "bathtub mixture of three Weibulls": _bathtub_mixture,
     "competing Weibull modes": _competing,
     "residual life": _residual,
     # scipy's fisk is the log-logistic law: F = 1/(1 + (t/s)^-c).
-    "loglogistic 3": lambda: _scipy(Target.family("loglogistic", shape=3.0, scale=50.0),
+    "loglogistic 3": lambda: _scipy(lifedraw.family("loglogistic", shape=3.0, scale=50.0),
                                     stats.fisk(3.0, scale=50.0)),
 }
 
@@ -150,7 +151,7 @@ def test_pole_piece_holds_its_exact_mass_and_law():
     inversion. Reference: scipy.stats.weibull_min, for the share below the cut (binomial)
     and for the law within it (KS against F(x)/F(cut))."""
     dist = stats.weibull_min(0.5, scale=10.0)
-    sampler = Rejection.build(Target.family("weibull", shape=0.5, scale=10.0))
+    sampler = Rejection.build(lifedraw.family("weibull", shape=0.5, scale=10.0))
     cut = sampler.domain[0]
     assert dist.cdf(cut) == pytest.approx(POLE_MASS, rel=1e-9)
     n = 1_000_000
@@ -164,7 +165,7 @@ def test_pole_piece_holds_its_exact_mass_and_law():
 def test_jump_in_a_piecewise_hazard_is_found_and_respected():
     """h = 0.002 before t = 100 and 0.01 after: f jumps up by a factor 5 at 100. Closed form:
     R(t) = exp(-0.002 t) before 100, exp(-0.2 - 0.01 (t - 100)) after (e-Handbook 8.1.2.4)."""
-    sampler = Rejection.build(Target.hazard("when(t < 100, 0.002, 0.01)"))
+    sampler = Rejection.build(lifedraw.hazard_formula("when(t < 100, 0.002, 0.01)"))
     assert np.any(np.isclose(sampler.piece_edges, 100.0, rtol=1e-12))
     H = lambda t: np.where(t < 100, 0.002 * t, 0.2 + 0.01 * (t - 100))   # noqa: E731
     x = sampler.sample(N, np.random.default_rng(11))
@@ -244,7 +245,7 @@ def test_squeeze_spares_most_density_evaluations(name):
 
 def test_a_higher_goal_adds_construction_points_until_it_is_met():
     """DARS (Leydold, Janka & Hörmann 2002) refines where hat - squeeze is largest."""
-    target = Target.family("weibull", shape=0.5, scale=10.0)
+    target = lifedraw.family("weibull", shape=0.5, scale=10.0)
     loose = Rejection.build(target, acceptance=0.9)
     tight = Rejection.build(target, acceptance=0.99)
     assert tight.stats["construction_points"] > loose.stats["construction_points"]
@@ -252,13 +253,13 @@ def test_a_higher_goal_adds_construction_points_until_it_is_met():
 
 
 def test_point_budget_stops_the_construction_and_says_so():
-    sampler = Rejection.build(Target.family("weibull", shape=0.5, scale=10.0), acceptance=0.999, max_points=30)
+    sampler = Rejection.build(lifedraw.family("weibull", shape=0.5, scale=10.0), acceptance=0.999, max_points=30)
     assert sampler.stats["stopped_by"] == "point budget"
     assert sampler.stats["expected_acceptance"] < 0.999
 
 
 def test_time_budget_stops_the_construction_and_says_so():
-    sampler = Rejection.build(Target.family("weibull", shape=0.5, scale=10.0), acceptance=0.999,
+    sampler = Rejection.build(lifedraw.family("weibull", shape=0.5, scale=10.0), acceptance=0.999,
                               time_budget=1e-6)
     assert sampler.stats["stopped_by"] == "time budget"
 
@@ -266,7 +267,7 @@ def test_time_budget_stops_the_construction_and_says_so():
 def test_two_uniforms_per_candidate_when_nothing_is_inverted():
     """One uniform picks the segment and, recycled, the position; one decides acceptance.
     f > 0 at both ends of (0, 10), so nothing is cut off for inversion."""
-    sampler = Rejection.build(Target.density("t*(10 - t) + 1", support=(0, 10)))
+    sampler = Rejection.build(lifedraw.density_formula("t*(10 - t) + 1", support=(0, 10)))
     assert sampler.stats["inversion_mass"] == 0.0
     sampler.sample(10_000, np.random.default_rng(1))
     c = sampler.counts
@@ -277,11 +278,11 @@ def test_two_uniforms_per_candidate_when_nothing_is_inverted():
 # --- Where the method does not apply ----------------------------------------------------------------
 
 @pytest.mark.parametrize("target, words", [
-    (lambda: Target.failures([1, 2, 3, 5, 8, 13], [False, False, True, False, False, True]), "atoms"),
-    (lambda: Target.histogram([0, 10, 20, 30], [5, 8, 2]), "bin"),
-    (lambda: Target.density("when(t < 10 or t > 20, exp(-t/10), 0)"), "is 0"),
-    (lambda: Target.mixture([Target.family("exponential", scale=100.0),
-                             Target.family("weibull", shape=0.5, scale=50.0, location=100.0)], [0.5, 0.5]),
+    (lambda: lifedraw.failure_times([1, 2, 3, 5, 8, 13], [False, False, True, False, False, True]), "atoms"),
+    (lambda: lifedraw.binned_counts([0, 10, 20, 30], [5, 8, 2]), "bin"),
+    (lambda: lifedraw.density_formula("when(t < 10 or t > 20, exp(-t/10), 0)"), "is 0"),
+    (lambda: lifedraw.mixture([lifedraw.family("exponential", scale=100.0),
+                             lifedraw.family("weibull", shape=0.5, scale=50.0, location=100.0)], [0.5, 0.5]),
      "unbounded"),
 ])
 def test_not_applicable_with_the_reason(target, words):
@@ -293,7 +294,7 @@ def test_not_applicable_with_the_reason(target, words):
                                     dict(max_points=40.5), dict(time_budget=0.0)])
 def test_bad_options_name_the_field(option):
     with pytest.raises(ModelError, match=next(iter(option))):
-        Rejection.build(Target.family("normal", mean=0.0, sd=1.0), **option)
+        Rejection.build(lifedraw.family("normal", mean=0.0, sd=1.0), **option)
 
 
 # --- Pictures and files -----------------------------------------------------------------------------

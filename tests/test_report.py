@@ -10,11 +10,11 @@ import re
 
 import pytest
 
-from dashboard.commands import add_report_parser
-from dashboard.report import write_report
-from engine import ModelError
-from engine.cli import CAUTION
-from engine.scenarios import load_scenario
+from lifedraw.cli.dashboard_commands import add_report_parser
+from lifedraw.dashboard.report import write_report
+from lifedraw.engine import ModelError
+from lifedraw.engine.cautions import CAUTION
+from lifedraw.engine.scenarios import load_scenario
 
 N = 20_000
 

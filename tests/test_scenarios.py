@@ -2,9 +2,9 @@
 import numpy as np
 import pytest
 
-import engine
-from engine import ModelError
-from engine.scenarios import load_scenario, scenario_from_toml, scenario_names
+from lifedraw import engine
+from lifedraw.engine import ModelError
+from lifedraw.engine.scenarios import load_scenario, scenario_from_toml, scenario_names
 
 NAMES = scenario_names()
 

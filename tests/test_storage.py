@@ -6,9 +6,10 @@ import pickle
 import numpy as np
 import pytest
 
-import engine
-from engine import ModelError, Target
-from engine.scenarios import load_scenario
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine import ModelError, Target
+from lifedraw.engine.scenarios import load_scenario
 
 CASES = [
     ("compressor-density", "inversion"),
@@ -39,7 +40,7 @@ def test_pickled_sampler_draws_identically(scenario, method):
 
 
 def test_leva_normal_round_trips(tmp_path):
-    sampler = engine.fit(Target.family("lognormal", mu=1.0, sigma=0.4, location=2.0), "ratio-of-uniforms")
+    sampler = engine.fit(lifedraw.family("lognormal", mu=1.0, sigma=0.4, location=2.0), "ratio-of-uniforms")
     sampler.save(tmp_path / "n.lds")
     assert np.array_equal(engine.load(tmp_path / "n.lds").sample(5_000, 1), sampler.sample(5_000, 1))
 
@@ -57,7 +58,7 @@ def test_a_missing_file_is_named(tmp_path):
 
 
 def test_a_newer_format_version_is_refused(tmp_path):
-    sampler = engine.fit(Target.family("weibull", shape=2.0, scale=10.0))
+    sampler = engine.fit(lifedraw.family("weibull", shape=2.0, scale=10.0))
     sampler.save(tmp_path / "s.lds")
     with np.load(tmp_path / "s.lds") as archive:
         arrays = {k: archive[k] for k in archive.files}

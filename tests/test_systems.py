@@ -13,10 +13,11 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-import engine
-from engine import ModelError, Target
-from engine.scenarios import load_scenario, scenario_from_toml
-from engine.systems import (Component, k_out_of_n, parallel, series, standby, system_from_scenario,
+import lifedraw
+from lifedraw import engine
+from lifedraw.engine import ModelError, Target
+from lifedraw.engine.scenarios import load_scenario, scenario_from_toml
+from lifedraw.engine.systems import (Component, k_out_of_n, parallel, series, standby, system_from_scenario,
                             system_from_spec)
 
 SEED = 20261201
@@ -27,11 +28,11 @@ N_MC, Z_MC = 200_000, 4.5
 
 
 def expo(mean):
-    return Target.family("exponential", scale=mean)
+    return lifedraw.family("exponential", scale=mean)
 
 
 def weibull(shape, scale):
-    return Target.family("weibull", shape=shape, scale=scale)
+    return lifedraw.family("weibull", shape=shape, scale=scale)
 
 
 def assert_survival_fraction_matches(draws, t, exact):
@@ -183,8 +184,8 @@ def test_standby_of_two_different_exponentials():
 def test_standby_of_gamma_units_with_a_density_pole_adds_their_shapes():
     # Gamma laws with a common scale add their shapes (closed form, from memory); shapes < 1
     # give densities unbounded at 0, the hard case for convolution. Reference: scipy.stats.gamma.
-    system = standby([Target.family("gamma", shape=0.5, scale=100.0),
-                      Target.family("gamma", shape=0.7, scale=100.0)])
+    system = standby([lifedraw.family("gamma", shape=0.5, scale=100.0),
+                      lifedraw.family("gamma", shape=0.7, scale=100.0)])
     ref = stats.gamma(1.2, scale=100.0)
     t = np.array([1e-3, 1.0, 10.0, 100.0, 500.0, 2000.0])
     np.testing.assert_allclose(system.reliability(t), ref.sf(t), rtol=1e-9)
@@ -278,7 +279,7 @@ def test_a_system_needs_parts_of_known_kinds():
 
 def test_systems_pickle_through_their_saved_samplers():
     # Formula targets hold compiled functions; a system must still travel to Dask workers.
-    formula = Target.density("t**(k - 1)*exp(-(t/s)**p)", params={"k": 2.5, "p": 1.6, "s": 9000.0})
+    formula = lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", params={"k": 2.5, "p": 1.6, "s": 9000.0})
     system = standby([formula, weibull(2.0, 9000.0)])
     again = pickle.loads(pickle.dumps(system))
     np.testing.assert_array_equal(again.sample(10_000, 3), system.sample(10_000, 3))
@@ -343,8 +344,8 @@ def test_a_system_seen_as_a_target_passes_the_checks_against_its_own_draws():
     # The Target view (exact R, F, f from the structure) must agree with the
     # structure's own draws: KS at 3000 draws (the exact convolution costs
     # ~0.5 ms a point) and the life figures' intervals covering the exact values.
-    from engine.scenarios import load_scenario
-    from engine.systems import as_target, system_from_scenario
+    from lifedraw.engine.scenarios import load_scenario
+    from lifedraw.engine.systems import as_target, system_from_scenario
 
     system = system_from_scenario(load_scenario("pumping-station-system"))
     target = as_target(system)
@@ -355,4 +356,4 @@ def test_a_system_seen_as_a_target_passes_the_checks_against_its_own_draws():
     assert summary["mttf"]["lower"] <= exact["mttf"]["value"] <= summary["mttf"]["upper"]
     r = summary["reliability"][0]
     assert r["lower"] <= exact["reliability"][0]["value"] <= r["upper"]
-    assert engine.Target.from_spec(target.spec()).system.spec() == system.spec()
+    assert lifedraw.from_spec(target.spec()).system.spec() == system.spec()

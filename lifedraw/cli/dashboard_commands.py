@@ -1,20 +1,18 @@
-"""The ``lifedraw serve`` and ``lifedraw report`` subcommands, as argparse subparsers
-that ``engine.cli_more`` registers; the dashboard package is imported only when one runs.
+"""The ``lifedraw serve`` and ``lifedraw report`` subcommands; the dashboard (Panel, Bokeh,
+HoloViews) is imported only when one of them runs, so the other commands start fast.
 """
 from __future__ import annotations
 
-
-def _sample_count(text: str) -> int:
-    from engine.cli import _number
-    return _number(text)
+from ..dashboard.defaults import DEFAULT_ADDRESS, DEFAULT_PORT
+from .numbers import whole_number
 
 
 def add_serve_parser(sub) -> None:
-    """``lifedraw serve [--port 5006] [--address 127.0.0.1] [--scenario NAME] [--report-dir DIR]``."""
+    """``lifedraw serve [--port PORT] [--address ADDRESS] [--scenario NAME] [--report-dir DIR]``."""
     p = sub.add_parser("serve", help="serve the live workbench in the browser (loopback by default)")
-    p.add_argument("--port", type=int, default=5006, help="port (default 5006)")
-    p.add_argument("--address", default="127.0.0.1",
-                   help="address to bind (default 127.0.0.1: this machine only)")
+    p.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"port (default {DEFAULT_PORT})")
+    p.add_argument("--address", default=DEFAULT_ADDRESS,
+                   help=f"address to bind (default {DEFAULT_ADDRESS}: this machine only)")
     p.add_argument("--scenario", default=None, help="scenario to open with (name or .toml path)")
     p.add_argument("--report-dir", default=None,
                    help="where the Report cell writes (default $LIFEDRAW_REPORT_DIR or ~/lifedraw-reports)")
@@ -22,7 +20,7 @@ def add_serve_parser(sub) -> None:
 
 
 def run_serve(args) -> int:
-    from .app import serve
+    from ..dashboard.app import serve
     return serve(port=args.port, address=args.address, scenario=args.scenario, report_dir=args.report_dir)
 
 
@@ -31,7 +29,7 @@ def add_report_parser(sub) -> None:
     p = sub.add_parser("report", help="write a self-contained HTML report of a scenario (opens offline)")
     p.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
     p.add_argument("-o", "--output", required=True, help="the report file, ending in .html")
-    p.add_argument("-n", type=_sample_count, default=None, help="number of draws (default: the scenario's)")
+    p.add_argument("-n", type=whole_number, default=None, help="number of draws (default: the scenario's)")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
     p.add_argument("--method", default=None, help="sampling method (default: the scenario's, usually auto)")
     p.add_argument("--tolerance", type=float, default=None, help="u-error tolerance (default: the scenario's)")
@@ -39,9 +37,9 @@ def add_report_parser(sub) -> None:
 
 
 def run_report(args) -> int:
-    from engine.cli import CAUTION
-    from engine.scenarios import load_scenario
-    from .report import write_report
+    from ..dashboard.report import write_report
+    from ..engine.cautions import CAUTION
+    from ..engine.scenarios import load_scenario
     sc = load_scenario(args.scenario)
     path = write_report(sc, args.output, n=args.n, seed=args.seed, method=args.method, tolerance=args.tolerance)
     print(f"wrote the report of '{sc.title}' to {path}")

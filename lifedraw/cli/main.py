@@ -1,8 +1,8 @@
 """The ``lifedraw`` command: list scenarios, draw samples, prove a sampler,
 compare methods, write reports, serve the dashboard, generate at scale.
 
-Engine commands run on the engine alone; ``serve`` and ``report`` load the
-dashboard package only when called.
+The command line sits above both the engine and the dashboard; engine commands run on
+the engine alone, ``serve`` and ``report`` load the dashboard only when called.
 """
 from __future__ import annotations
 
@@ -12,16 +12,16 @@ from pathlib import Path
 
 import numpy as np
 
-from .cli_more import EXTRA_COMMANDS, whole_number as _number
-from .errors import ModelError
-
-CAUTION = ("Lifetime figures are statistical estimates from a model. Extrapolation beyond the data "
-           "and independence assumptions can mislead; safety-critical decisions follow the applicable "
-           "standards and qualified engineers.")
+from ..engine.cautions import CAUTION
+from ..engine.errors import ModelError
+from .compare_command import add_compare_parser
+from .dashboard_commands import add_report_parser, add_serve_parser
+from .generate_command import add_generate_parser
+from .numbers import whole_number
 
 
 def cmd_scenarios(args) -> int:
-    from .scenarios import load_scenario, scenario_names
+    from ..engine.scenarios import load_scenario, scenario_names
     for name in scenario_names():
         try:
             title = load_scenario(name).title
@@ -32,8 +32,8 @@ def cmd_scenarios(args) -> int:
 
 
 def _sampler_for(args):
-    from .sampling import fit
-    from .scenarios import load_scenario
+    from ..engine.sampling import fit
+    from ..engine.scenarios import load_scenario
     sc = load_scenario(args.scenario)
     method = args.method or sc.method
     tol = args.tolerance if getattr(args, "tolerance", None) is not None else sc.tolerance
@@ -61,7 +61,7 @@ def cmd_sample(args) -> int:
 
 
 def cmd_check(args) -> int:
-    from .check import check
+    from ..engine.check import check
     sc, sampler = _sampler_for(args)
     n = args.n if args.n is not None else sc.sample_size
     seed = args.seed if args.seed is not None else sc.seed
@@ -82,7 +82,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     def common(sp, with_output=False):
         sp.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
-        sp.add_argument("-n", type=_number, default=None, help="number of lifetimes (default: the scenario's)")
+        sp.add_argument("-n", type=whole_number, default=None, help="number of lifetimes (default: the scenario's)")
         sp.add_argument("--method", default=None, help="auto, inversion, rejection, ratio-of-uniforms, table, ...")
         sp.add_argument("--seed", type=int, default=None)
         sp.add_argument("--tolerance", type=float, default=None, help="u-error tolerance for inversion")
@@ -97,7 +97,7 @@ def build_parser() -> argparse.ArgumentParser:
     common(s)
     s.set_defaults(func=cmd_check)
 
-    for add in EXTRA_COMMANDS:
+    for add in (add_compare_parser, add_serve_parser, add_report_parser, add_generate_parser):
         add(sub)
     return p
 
@@ -113,6 +113,9 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("lifedraw: stopped", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # e.g. `lifedraw scenarios | head`: the reader left, nothing to report
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":

@@ -1,0 +1,6 @@
+"""``python -m lifedraw``: the same as the ``lifedraw`` command."""
+import sys
+
+from .cli import main
+
+sys.exit(main())
