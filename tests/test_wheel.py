@@ -136,3 +136,45 @@ def test_the_layer_check_fails_when_the_engine_imports_the_dashboard(venv, elsew
                check=False)
     assert out.returncode != 0
     assert "lifedraw.engine.life -> lifedraw.dashboard.plots" in out.stdout
+
+
+def _free_port() -> int:
+    import socket
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def test_the_installed_server_serves_its_scripts_itself(venv, elsewhere):
+    # No internet: every script and stylesheet the page names comes from this server (Panel and Bokeh
+    # serve them from the installed packages), none from a content network.
+    import re
+    import time
+    import urllib.error
+    import urllib.parse
+    import urllib.request
+    port = _free_port()
+    proc = subprocess.Popen([str(venv / "bin" / "lifedraw"), "serve", "--port", str(port)], cwd=elsewhere,
+                            env=_env(), stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    base = f"http://127.0.0.1:{port}/"
+    try:
+        deadline = time.time() + 90
+        while True:
+            try:
+                page = urllib.request.urlopen(base, timeout=10).read().decode("utf-8")
+                break
+            except (urllib.error.URLError, OSError):
+                assert proc.poll() is None and time.time() < deadline, "the installed server did not start"
+                time.sleep(0.5)
+        sources = re.findall(r'<(?:script|link)[^>]+(?:src|href)="([^"]+)"', page)
+        assert sources, "the page names no scripts"
+        for source in sources:
+            assert not source.startswith(("http://", "https://", "//")) or source.startswith(base), source
+            with urllib.request.urlopen(urllib.parse.urljoin(base, source), timeout=30) as answer:
+                assert answer.status == 200, source
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
