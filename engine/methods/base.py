@@ -31,6 +31,21 @@ def check_tolerance(tolerance) -> float:
     return tol
 
 
+def check_output_buffer(out, n=None) -> np.ndarray:
+    """The caller's buffer for ``sample(n, rng, out=...)``, checked; a flat view of it is returned."""
+    if not isinstance(out, np.ndarray):
+        raise ModelError("out", f"must be a numpy array, got {type(out).__name__}")
+    if out.dtype != np.float64:
+        raise ModelError("out", f"must have dtype float64, got {out.dtype}")
+    if not out.flags.writeable:
+        raise ModelError("out", "is read-only")
+    if not out.flags.c_contiguous:
+        raise ModelError("out", "must be C-contiguous (e.g. np.empty(n)), not a strided view")
+    if n is not None and sample_size("n", n) != out.size:
+        raise ModelError("out", f"holds {out.size} values but n = {n} draws were asked for")
+    return out.reshape(-1)
+
+
 class Sampler:
     """A method bound to a target, with its set-up done.
 
@@ -69,11 +84,16 @@ class Sampler:
         pass
 
     # ---- drawing -----------------------------------------------------------------
-    def sample(self, n, rng=None) -> np.ndarray:
-        """Draw ``n`` lifetimes; ``rng`` is a seed, a SeedSequence or a numpy Generator."""
-        n = sample_size("n", n)
+    def sample(self, n=None, rng=None, out: np.ndarray | None = None) -> np.ndarray:
+        """Draw ``n`` lifetimes; ``rng`` is a seed, a SeedSequence or a numpy Generator.
+
+        ``out`` follows numpy's convention: a preallocated, writeable, contiguous float64 array that
+        receives the draws in place (and is returned); ``n`` may then be left out. The same seed gives
+        the same numbers with or without ``out``.
+        """
+        out = check_output_buffer(out, n) if out is not None else np.empty(sample_size("n", n))
+        n = out.size
         rng = np.random.default_rng(rng)
-        out = np.empty(n)
         for start in range(0, n, CHUNK):
             self._fill(out[start:start + CHUNK], rng)
         self.counts["samples"] += n

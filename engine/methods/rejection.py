@@ -31,7 +31,7 @@ import numpy as np
 from .. import kernels
 from ..errors import MethodNotApplicable, ModelError, finite_number, sample_size
 from ..target import Target
-from .base import Sampler
+from .base import Sampler, check_output_buffer
 
 ACCEPTANCE = 0.9          # default goal for area(f) / area(hat)
 MAX_POINTS = 200          # default budget of construction points
@@ -784,11 +784,11 @@ class Rejection(Sampler):
         out, reserve[side] = reserve[side][:count], reserve[side][count:]
         return out, spent
 
-    def sample(self, n, rng=None) -> np.ndarray:
+    def sample(self, n=None, rng=None, out: np.ndarray | None = None) -> np.ndarray:
         self._reserve = [np.empty(0), np.empty(0)]
-        self._remaining = sample_size("n", n)
+        self._remaining = check_output_buffer(out, n).size if out is not None else sample_size("n", n)
         try:
-            return super().sample(n, rng)
+            return super().sample(n, rng, out=out)
         finally:
             self._reserve = None
 
