@@ -673,8 +673,7 @@ class LifeCell(Cell):
                    f"a uniform reservoir of {figs['n']:,} of the {figs['total']:,} draws")
             self.note.object = (f'<p class="ld-small ld-muted">From {src}. MTTF interval: normal theory; '
                                 "B-lives: distribution-free order-statistic intervals; R(t): Wilson score "
-                                "intervals. A ✓ says the model's exact value lies inside the interval, as it "
-                                "should about 95 times in 100.</p>")
+                                "intervals.</p>")
         else:
             self.note.object = '<p class="ld-muted">No draws yet: the model\'s exact values are shown.</p>'
         self.system.object = self._system_html(s)

@@ -124,12 +124,53 @@ def _order_statistic_ranks(n: int, p: float, confidence: float):
 
 
 def _wilson(successes, n: int, z: float):
-    """Wilson (1927) score interval for a binomial proportion, vectorised over ``successes``."""
-    p = np.asarray(successes, dtype=float) / n
+    """Wilson (1927) score interval for a binomial proportion, vectorised over ``successes``.
+
+    Its ends are exactly 0 when no draw succeeds and exactly 1 when all do (the formula's
+    own limits); they are set so, since centre ± half rounds to 1e-17 or 1 - 1.1e-16 there.
+    """
+    k = np.asarray(successes, dtype=float)
+    p = k / n
     z2n = z * z / n
     centre = (p + z2n / 2.0) / (1.0 + z2n)
     half = z / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n))
-    return p, np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
+    lower = np.where(k <= 0, 0.0, np.clip(centre - half, 0.0, 1.0))
+    upper = np.where(k >= n, 1.0, np.clip(centre + half, 0.0, 1.0))
+    return p, lower, upper
+
+
+# ---- verdicts ---------------------------------------------------------------------------
+
+#: Rounding slack of a verdict, in units in the last place of the largest number compared.
+VERDICT_ULPS = 4
+
+
+def inside_interval(value, lower, upper, ulps: int = VERDICT_ULPS) -> bool | None:
+    """Does ``value`` lie in [lower, upper], allowing ``ulps`` units in the last place of the
+    largest finite magnitude among the three for rounding? None when any is missing or NaN.
+
+    An interval end of 0.9999999999999999 beside an exact value of 1 (or 1e-17 beside 0) is
+    rounding, not evidence: a relative slack of a few ulps keeps such rows from crying wolf
+    without hiding any real miss (which is many ulps wide for any sample below 10^30 draws).
+    """
+    try:
+        v, lo, hi = float(value), float(lower), float(upper)
+    except (TypeError, ValueError):
+        return None
+    if math.isnan(v) or math.isnan(lo) or math.isnan(hi):
+        return None
+    finite = [abs(x) for x in (v, lo, hi) if math.isfinite(x)]
+    slack = ulps * np.finfo(float).eps * (max(finite) if finite else 0.0)
+    return bool(lo - slack <= v <= hi + slack)
+
+
+def verdict_legend(confidence: float = 0.95) -> str:
+    """One line saying what a ✓/✗ beside an interval means and how often a correct sampler shows ✗."""
+    miss = 1.0 - confidence
+    return (f"✓: the model's exact value lies inside the {confidence:.0%} interval from the draws "
+            f"(allowing {VERDICT_ULPS} ulps for rounding); ✗: outside. Each interval misses the true "
+            f"value {miss:.0%} of the time, so a correct sampler still shows ✗ in about 1 row in "
+            f"{1.0 / miss:.0f}.")
 
 
 def _reliability_rows(times, survivors, n: int, z: float) -> list:
