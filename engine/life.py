@@ -220,3 +220,37 @@ def _confidence(confidence) -> float:
     if not 0.0 < c < 1.0:
         raise ModelError("confidence", f"must be strictly between 0 and 1, got {c:g}")
     return c
+
+
+# ---- plain text ---------------------------------------------------------------------------
+
+def format_life_figures(sample: dict, exact: dict | None = None, unit: str = "") -> str:
+    """A terminal table of ``life_summary`` figures with their intervals, beside the model's
+    exact values and a ✓/✗ verdict when ``exact`` (from ``exact_life_figures``) is given,
+    then the verdict legend and how the figures were computed."""
+    conf = sample["confidence"]
+    u, paren = (f" {unit}", f" ({unit})") if unit else ("", "")
+    head = f"{'figure':<14}{'estimate':>14}{f'{conf:.0%} interval':>32}"
+    lines = [head + (f"{'exact':>14}  in?" if exact else "")]
+
+    def row(name, s, value, pct=False):
+        def f(v):
+            return f"{100 * v:.4f} %" if pct else f"{v:.6g}"
+        text = f"{name:<14}{f(s['estimate']):>14}{f(s['lower']) + ' to ' + f(s['upper']):>32}"
+        if exact:
+            verdict = inside_interval(value, s["lower"], s["upper"])
+            text += f"{f(value):>14}  {'–' if verdict is None else ('✓' if verdict else '✗')}"
+        lines.append(text)
+
+    row(f"MTTF{paren}", sample["mttf"], exact["mttf"]["value"] if exact else None)
+    for name, s in sample["b_lives"].items():
+        row(f"{name}{paren}", s, exact["b_lives"][name]["value"] if exact else None)
+    for i, s in enumerate(sample["reliability"]):
+        row(f"R({s['time']:g}{u})", s, exact["reliability"][i]["value"] if exact else None, pct=True)
+    if exact:
+        lines.append(verdict_legend(conf))
+    computation = sample.get("computation", {})
+    if computation.get("text"):
+        lines.append(f"Computed from {computation['text']}.")
+    return "\n".join(lines)
+
