@@ -372,7 +372,7 @@ COMPARISON_METRICS = (
     ("uniforms_per_sample", "uniforms per draw", False),
     ("density_evals_per_sample", "density evaluations per draw", False),
     ("acceptance_rate", "acceptance rate", False),
-    ("u_error", "max u-error", True),
+    ("u_error", "u-error (estimate)", True),
 )
 
 
@@ -431,7 +431,7 @@ _COUNTER_LABELS = {
     "method": "method", "variant": "variant", "samples": "draws", "setup_seconds": "set-up (s)",
     "uniforms_per_sample": "uniforms per draw", "density_evals_per_sample": "density evaluations per draw",
     "acceptance_rate": "acceptance rate", "squeeze_rate": "share decided by the squeeze",
-    "table_bytes": "table size (bytes)", "u_error": "max u-error (stated)", "tolerance": "tolerance",
+    "table_bytes": "table size (bytes)", "u_error": "u-error (estimate at set-up)", "tolerance": "tolerance",
 }
 
 
@@ -457,7 +457,7 @@ def counters_table(stats: dict, columns: int = 1) -> str:
 
 def comparison_table(rows: list[dict]) -> str:
     header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
-              "squeeze share", "table bytes", "max u-error"]
+              "squeeze share", "table bytes", "u-error (estimate)"]
     head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
     body = []
     for r in rows:

@@ -17,7 +17,8 @@ import lifedraw
 from lifedraw.cli.main import main
 from lifedraw.dashboard.plots import life_table
 from lifedraw.engine.check import U_GRID_SIZE, check, u_grid
-from lifedraw.engine.life import exact_life_figures, inside_interval, life_summary, verdict_legend
+from lifedraw.engine.life import (exact_life_figures, format_life_figures, inside_interval, life_summary,
+                                  verdict_legend)
 
 Z95 = stats.norm.ppf(0.975)
 
@@ -118,3 +119,23 @@ def test_the_re_measured_u_error_is_what_scipy_measures_on_the_same_points():
     scipy_error = np.max(np.where(u < 0.5, np.abs(u - ref.cdf(x)), np.abs((1.0 - u) - ref.sf(x))))
     assert report.u_error_measured == pytest.approx(scipy_error, abs=1e-14)
     assert report.u_error_measured <= 1e-10 and report.u_error <= 1e-10
+
+
+def test_the_text_table_marks_each_row_and_carries_the_legend():
+    # Weibull closed forms (NIST/SEMATECH e-Handbook 8.1.6.2) as the exact values; one of
+    # them moved far outside its interval must turn its row, and only its row, to ✗.
+    target = lifedraw.family("weibull", shape=1.8, scale=1200)
+    x = 1200 * np.random.default_rng(7).weibull(1.8, 20_000)
+    figures = life_summary(x, [500.0])
+    exact = {"mttf": {"value": 1200 * math.gamma(1 + 1 / 1.8)},
+             "b_lives": {n: {"p": p, "value": 1200 * (-math.log1p(-p)) ** (1 / 1.8)}
+                         for n, p in (("B1", 0.01), ("B10", 0.10), ("B50", 0.50))},
+             "reliability": [{"time": 500.0, "value": math.exp(-(500 / 1200) ** 1.8)}]}
+    exact["b_lives"]["B50"]["value"] *= 1.5
+    text = format_life_figures(figures, exact, unit="h")
+    rows = {line.split()[0]: line for line in text.splitlines()[1:6]}
+    assert rows["B50"].endswith("✗")
+    assert all(rows[k].endswith("✓") for k in ("MTTF", "B1", "B10", "R(500"))
+    assert verdict_legend(0.95) in text and "exact order statistics" in text
+    assert exact_life_figures(target, [500.0])["b_lives"]["B10"]["value"] == pytest.approx(
+        exact["b_lives"]["B10"]["value"], rel=1e-12)
