@@ -89,7 +89,8 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     # Ages up to 1e300 past the start: far enough for any H that grows like log t
     # with a practical coefficient, near enough that dt/dy of the log-age map stays finite.
     top = min(hi - lo, MAX_AGE_SPAN)
-    offsets = np.logspace(-12, math.log10(top), int(20 * (math.log10(top) + 12)) + 1)
+    first = min(-12.0, math.log10(top) - 12.0)
+    offsets = np.logspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
     offsets[-1] = top
     t = lo + offsets
     with np.errstate(all="ignore"):
