@@ -35,14 +35,33 @@ def order_keys(x: np.ndarray) -> np.ndarray:
     """uint64 keys whose order is the order of the float64 values (IEEE 754 bit patterns
     with the sign bit set for positives and all bits flipped for negatives)."""
     u = np.ascontiguousarray(x, dtype=np.float64).view(np.uint64)
-    return np.where(u >> np.uint64(63), ~u, u | SIGN)
+    # flip = SIGN for a positive value, all ones for a negative one; one array, updated in place.
+    flip = u >> np.uint64(63)
+    np.multiply(flip, np.uint64(0x7FFFFFFFFFFFFFFF), out=flip)
+    flip |= SIGN
+    flip ^= u
+    return flip
+
+
+def key_values(keys: np.ndarray) -> np.ndarray:
+    """The float64 values whose order keys are ``keys`` (inverse of ``order_keys``)."""
+    k = np.asarray(keys, dtype=np.uint64)
+    u = np.where(k & SIGN, k ^ SIGN, ~k)
+    return u.view(np.float64)
 
 
 def key_value(key: int) -> float:
-    """The float64 whose order key is ``key`` (inverse of ``order_keys``)."""
-    k = np.uint64(key)
-    u = k ^ SIGN if k & SIGN else ~k
-    return float(np.array([u], dtype=np.uint64).view(np.float64)[0])
+    return float(key_values(np.array([key], dtype=np.uint64))[0])
+
+
+def top_bin_counts(x: np.ndarray) -> np.ndarray:
+    """Counts of the draws by the top 20 bits of their order keys, without forming the keys:
+    the top bits of the raw pattern, u >> 44, are a key bin after reversing the negatives."""
+    u = np.ascontiguousarray(x, dtype=np.float64).view(np.uint64)
+    raw = np.bincount((u >> np.uint64(TOP_SHIFT)).view(np.int64), minlength=1 << (64 - TOP_SHIFT))
+    half = raw.size // 2
+    # Positives keep their order above the negatives; negatives' keys run backwards (all bits flipped).
+    return np.concatenate([raw[half:][::-1], raw[:half]]).astype(np.int64)
 
 
 # ---- in memory --------------------------------------------------------------------------------
@@ -85,10 +104,11 @@ def _summarise(block, times) -> _Summary:
     if n == 0 or bad:
         return _Summary(n, 0.0, 0.0, bad, survivors, hist)
     mean = float(np.mean(x))
-    m2 = float(np.sum(np.square(x - mean)))
+    deviations = x - mean
+    m2 = float(np.dot(deviations, deviations))
+    del deviations
     survivors = np.array([np.count_nonzero(x > t) for t in times], dtype=np.int64)
-    hist = np.bincount((order_keys(x) >> np.uint64(TOP_SHIFT)).astype(np.int64), minlength=hist.size)
-    return _Summary(n, mean, m2, 0, survivors, hist.astype(np.int64))
+    return _Summary(n, mean, m2, 0, survivors, top_bin_counts(x))
 
 
 def _merge(a: _Summary, b: _Summary) -> _Summary:
@@ -104,13 +124,13 @@ def _merge(a: _Summary, b: _Summary) -> _Summary:
 
 
 def _keep(block, groups) -> np.ndarray:
-    """The draws of a block whose key prefix (key >> shift) is one of ``groups``."""
-    x = np.asarray(block, dtype=np.float64).ravel()
-    keys = order_keys(x)
-    mask = np.zeros(x.size, dtype=bool)
-    for prefix, shift in groups:
-        mask |= (keys >> np.uint64(shift)) == np.uint64(prefix)
-    return x[mask]
+    """The order keys of a block's draws whose key prefix (key >> shift) is one of ``groups``."""
+    keys = order_keys(np.asarray(block, dtype=np.float64).ravel())
+    prefixes = keys >> np.uint64(groups[0][1])          # every group of one pass has one shift
+    mask = np.zeros(keys.size, dtype=bool)
+    for prefix, _ in groups:
+        mask |= prefixes == np.uint64(prefix)
+    return keys[mask]
 
 
 def _split_counts(block, groups, bits: int) -> np.ndarray:
@@ -177,14 +197,14 @@ def chunked_pass(x, times: np.ndarray):
                 break
             if sum(counts[g] for g in groups) <= KEEP_LIMIT:
                 kept_parts = [delayed(_keep)(b, groups) for b in blocks]
-                (kept,) = dask.compute(_tree(delayed, kept_parts, lambda a, b: np.concatenate([a, b])))
+                (keys,) = dask.compute(_tree(delayed, kept_parts, lambda a, b: np.concatenate([a, b])))
                 computation["passes"] += 1
-                computation["kept"] = int(kept.size)
-                kept = np.sort(kept)
-                keys = order_keys(kept)
+                computation["kept"] = int(keys.size)
+                # Sorting the keys, not the values, orders -0.0 before +0.0 as the histogram did.
+                keys = np.sort(keys)
                 for k, (p, s, below) in where.items():
                     start = int(np.searchsorted(keys >> np.uint64(s), np.uint64(p), side="left"))
-                    values[k] = float(kept[start + k - below])
+                    values[k] = key_value(int(keys[start + k - below]))
                 break
             bits = min(REFINE_BITS, shift)
             parts = [delayed(_split_counts)(b, groups, bits) for b in blocks]
