@@ -61,7 +61,9 @@ def life_summary(samples, mission_times=(), confidence=0.95) -> dict:
     b_lives = {}
     for name, (p, frac, j, j1, r, s, achieved) in plans.items():
         lo_v, hi_v = values[j], values[j1]
-        estimate = lo_v + frac * (hi_v - lo_v) if hi_v != lo_v else lo_v
+        # numpy's own interpolation (numpy.lib._function_base_impl._lerp), so the
+        # estimate equals np.quantile(samples, p) to the last bit.
+        estimate = hi_v - (hi_v - lo_v) * (1.0 - frac) if frac >= 0.5 else lo_v + (hi_v - lo_v) * frac
         b_lives[name] = {"p": p, "estimate": float(estimate),
                          "lower": -math.inf if r < 1 else float(values[r - 1]),
                          "upper": math.inf if s > n else float(values[s - 1]),
