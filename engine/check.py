@@ -117,7 +117,8 @@ class CheckReport:
                       "few percent either way"]
         if self.notes:
             lines += ["", "notes:"] + [f"- {note}" for note in self.notes]
-        lines += ["", f"overall: {'PASS' if self.passed(alpha) else 'FAIL'} (alpha = {alpha:g}, |z| < {Z_LIMIT:g})",
+        overall = "PASS" if self.passed(alpha) else "FAIL"
+        lines += ["", f"overall: {overall} (alpha = {alpha:g}, |z| < {Z_LIMIT:g})",
                   f"verdicts: REJECT (and FAIL) when a p-value is below alpha = {alpha:g} or a judged |z| reaches "
                   f"{Z_LIMIT:g}; a correct sampler is still rejected by each test about 1 time in "
                   f"{1.0 / alpha:,.0f}"]

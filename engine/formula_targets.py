@@ -105,9 +105,10 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
         i = int(negative[0])
         raise ModelError("formula", f"the hazard rate is negative at t = {t[i]:.6g} (value {values[i]:.6g}); "
                                     "it must be finite and >= 0")
-    # The formula breaks down numerically (inf/inf -> NaN, an overflowing denominator
-    # -> 0, an underflowing one -> inf) only far out; a breakdown where H > 40 (< 4.3e-18 of the units left) ends the
-    # support there. A smooth decay to 0 (exp(-t/100)) is no breakdown: it fades first.
+    # The formula breaks down numerically (inf/inf -> NaN, an overflowing denominator -> 0,
+    # an underflowing one -> inf) only far out; a breakdown where H > 40 (< 4.3e-18 of the
+    # units left) ends the support there. A smooth decay to 0 (exp(-t/100)) is no
+    # breakdown: it fades first.
     with np.errstate(all="ignore"):
         running = np.maximum.accumulate(np.where(np.isnan(g), 0.0, g))
         abrupt = ~np.isfinite(values) | ((values == 0) & (np.concatenate([[0.0], g[:-1]]) > 1e-10 * running))
@@ -131,6 +132,7 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
         return _Reach(float(t[over[0]]), limit, lo, scale)
     if hi - lo <= MAX_AGE_SPAN and usable == offsets.size:
         return _Reach(hi, hi, lo, scale)
+
     def accurate_H():
         return CumulativeIntegral(h, log_age_map(lo, float(t[-1]), scale, h), rtol=1e-12).total
 
