@@ -14,6 +14,8 @@ import holoviews as hv
 import numpy as np
 from bokeh.models import NumeralTickFormatter
 
+from lifedraw.engine.life import inside_interval, verdict_legend
+
 if "bokeh" not in hv.Store.renderers:
     hv.extension("bokeh", logo=False)
 
@@ -370,7 +372,7 @@ COMPARISON_METRICS = (
     ("uniforms_per_sample", "uniforms per draw", False),
     ("density_evals_per_sample", "density evaluations per draw", False),
     ("acceptance_rate", "acceptance rate", False),
-    ("u_error", "max u-error", True),
+    ("u_error", "u-error (estimate)", True),
 )
 
 
@@ -429,7 +431,7 @@ _COUNTER_LABELS = {
     "method": "method", "variant": "variant", "samples": "draws", "setup_seconds": "set-up (s)",
     "uniforms_per_sample": "uniforms per draw", "density_evals_per_sample": "density evaluations per draw",
     "acceptance_rate": "acceptance rate", "squeeze_rate": "share decided by the squeeze",
-    "table_bytes": "table size (bytes)", "u_error": "max u-error (stated)", "tolerance": "tolerance",
+    "table_bytes": "table size (bytes)", "u_error": "u-error (estimate at set-up)", "tolerance": "tolerance",
 }
 
 
@@ -455,7 +457,7 @@ def counters_table(stats: dict, columns: int = 1) -> str:
 
 def comparison_table(rows: list[dict]) -> str:
     header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
-              "squeeze share", "table bytes", "max u-error"]
+              "squeeze share", "table bytes", "u-error (estimate)"]
     head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
     body = []
     for r in rows:
@@ -486,7 +488,7 @@ def life_table(figures: dict, unit: str) -> str:
         f = (lambda v: "–" if v is None else f"{100 * v:.3f} %") if pct else fmt
         inside = "–"
         if est is not None and model is not None and lo is not None and hi is not None and math.isfinite(model):
-            inside = "✓" if lo <= model <= hi else "✗"
+            inside = "✓" if inside_interval(model, lo, hi) else "✗"
         rows.append([name, f(est), "–" if lo is None else f"{f(lo)} to {f(hi)}", f(model), inside])
 
     m = sample["mttf"] if sample else {}
@@ -497,7 +499,9 @@ def life_table(figures: dict, unit: str) -> str:
     for i, r in enumerate(exact["reliability"]):
         s = sample["reliability"][i] if sample else {}
         row(f"R({fmt(r['time'])} {unit})", s.get("estimate"), s.get("lower"), s.get("upper"), r["value"], pct=True)
-    return html_table(header, rows)
+    legend = (f'<p class="ld-small ld-muted ld-verdict-legend">{html.escape(verdict_legend(conf))}</p>'
+              if sample else "")
+    return html_table(header, rows) + legend
 
 
 def parameters_table(parameters: dict) -> str:

@@ -239,6 +239,8 @@ def _goodness_table(rep) -> str:
     notes = "".join(f"<li>{html.escape(n)}</li>" for n in rep.notes)
     return (f"<h3>Goodness of fit ({rep.n:,} draws): {verdict}</h3>"
             + plots.html_table(["test", "statistic", "p-value"], rows, "ld-table ld-compact")
+            + '<p class="muted">A test rejects when its p-value is below 0.001; a correct sampler is still '
+              "rejected by each test about 1 time in 1,000.</p>"
             + (f'<ul class="muted">{notes}</ul>' if notes else ""))
 
 

@@ -12,13 +12,13 @@ from .sampling import applicable_methods, fit
 from .storage import load_sampler as load
 # Function names that shadow their modules (engine.check is the function).
 from .check import check
-from .life import exact_life_figures, life_summary
+from .life import exact_life_figures, format_life_figures, life_summary
 from .fitting import fit_family
 from .generate import generate
 from .systems import k_out_of_n, parallel, series, standby
 
 __all__ = ["Target", "family", "density_formula", "hazard_formula", "cdf_formula", "binned_counts",
            "failure_times", "mixture", "competing", "from_spec",
-           "fit", "load", "check", "life_summary", "exact_life_figures", "fit_family",
+           "fit", "load", "check", "life_summary", "exact_life_figures", "format_life_figures", "fit_family",
            "applicable_methods", "generate", "series", "parallel", "k_out_of_n", "standby",
            "ModelError", "MethodNotApplicable"]

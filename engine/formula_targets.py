@@ -13,7 +13,7 @@ import numpy as np
 
 from .errors import ModelError, finite_number
 from .formula import Formula
-from .numeric import CumulativeIntegral, SupportMap, invert_monotone, support_map
+from .numeric import CumulativeIntegral, SupportMap, invert_monotone, log_age_map, support_map
 from .target import Target
 
 # Cumulative hazard beyond which R(t) = exp(-H) underflows in double precision.
@@ -52,6 +52,127 @@ def _probe_points(lo: float, hi: float) -> np.ndarray:
     return np.concatenate([-offsets[::-1], [0.0], offsets])
 
 
+# R = exp(-H) is below 2**-53 (the spacing of doubles below 1, so below anything a
+# uniform draw resolves) once H > 36.7; H > 40 leaves < 4.3e-18 of the units.
+H_NEGLIGIBLE = 40.0
+# The farthest age (past the start of life) that the hazard path follows H to.
+MAX_AGE_SPAN = 1e300
+
+
+class _Reach:
+    """Where a cumulative hazard passes the underflow of exp(-H) (or the largest usable age)."""
+
+    def __init__(self, end: float, limit: float, lo: float, scale: float):
+        self.end, self.limit, self.lo, self.scale = end, limit, lo, scale
+
+    def far(self, end: float) -> bool:
+        # Beyond ~10^6 scales a linear map of [lo, end] cannot resolve the bulk.
+        return end - self.lo > 1e6 * self.scale
+
+    def mapping(self, end: float, density) -> SupportMap:
+        if self.far(end):
+            return log_age_map(self.lo, end, self.scale, density)
+        return support_map(self.lo, end, density=density)
+
+
+def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
+    """Bracket the age where H(t) = integral of h from lo passes the underflow of exp(-H).
+
+    H is summed by the trapezoid rule in log-age, H = integral of (t - lo)·h(t) d ln(t - lo),
+    on a grid of 20 points per decade out to the declared end or 1e300 past the start,
+    so H growing like log t (Lomax, log-logistic) is followed as far as doubles reach.
+    A hazard that overflows to NaN (inf/inf) where no unit survives (H > 40) ends the
+    support there. If H stays below the underflow level, ``_levelled_off`` decides
+    whether H grows without bound (accepted while R at the largest age is negligible)
+    or tends to a finite limit (refused: a share exp(-limit) of units would never fail).
+    """
+    # Ages up to 1e300 past the start: far enough for any H that grows like log t
+    # with a practical coefficient, near enough that dt/dy of the log-age map stays finite.
+    top = min(hi - lo, MAX_AGE_SPAN)
+    first = min(-12.0, math.log10(top) - 12.0)
+    offsets = np.logspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+    offsets[-1] = top
+    t = lo + offsets
+    with np.errstate(all="ignore"):
+        values = np.asarray(h(t), dtype=float) * np.ones_like(t)
+    log_steps = np.diff(np.log(offsets))
+    with np.errstate(all="ignore"):
+        g = offsets * values                   # hazard per unit of log-age
+        pieces = 0.5 * (g[1:] + g[:-1]) * log_steps
+        crude = np.concatenate([[g[0]], g[0] + np.cumsum(pieces)])
+    negative = np.flatnonzero(values < 0)
+    if negative.size:
+        i = int(negative[0])
+        raise ModelError("formula", f"the hazard rate is negative at t = {t[i]:.6g} (value {values[i]:.6g}); "
+                                    "it must be finite and >= 0")
+    # The formula breaks down numerically (inf/inf -> NaN, an overflowing denominator -> 0,
+    # an underflowing one -> inf) only far out; a breakdown where H > 40 (< 4.3e-18 of the
+    # units left) ends the support there. A smooth decay to 0 (exp(-t/100)) is no
+    # breakdown: it fades first.
+    with np.errstate(all="ignore"):
+        running = np.maximum.accumulate(np.where(np.isnan(g), 0.0, g))
+        abrupt = ~np.isfinite(values) | ((values == 0) & (np.concatenate([[0.0], g[:-1]]) > 1e-10 * running))
+    usable = t.size
+    broken = np.flatnonzero(abrupt)
+    if broken.size:
+        i = int(broken[0])
+        if i >= 2 and crude[i - 2] > H_NEGLIGIBLE:
+            usable = i - 1
+        elif np.isnan(values[i]):
+            raise ModelError("formula", f"the hazard rate is not a number at t = {t[i]:.6g}; "
+                                        "it must be finite and >= 0")
+    t, g, crude = t[:usable], g[:usable], crude[:usable]
+    # The map's scale: where H reaches 1e-3, below which the law is nearly uniform in t.
+    early = np.flatnonzero(crude > 1e-3)
+    scale = float(t[early[0]] - lo) if early.size else float(t[-1] - lo)
+    limit = hi if hi - lo <= MAX_AGE_SPAN and usable == offsets.size else float(t[-1])
+    # The trapezoid in log-age is only a bracket: stay past twice the underflow level.
+    over = np.flatnonzero(~(crude <= 2 * _H_UNDERFLOW))
+    if over.size:
+        return _Reach(float(t[over[0]]), limit, lo, scale)
+    if hi - lo <= MAX_AGE_SPAN and usable == offsets.size:
+        return _Reach(hi, hi, lo, scale)
+
+    def accurate_H():
+        return CumulativeIntegral(h, log_age_map(lo, float(t[-1]), scale, h), rtol=1e-12).total
+
+    _levelled_off(t - lo, g, float(crude[-1]), float(t[-1]), accurate_H)
+    return _Reach(float(t[-1]), limit, lo, scale)
+
+
+def _levelled_off(offsets, g, H_top: float, t_top: float, accurate_H) -> None:
+    """Refuse a cumulative hazard that tends to a finite limit, or grows too slowly for doubles.
+
+    H grows without bound when g = (t - lo)·h(t) does not fall over the upper half of the
+    log-age grid (g tends to a constant for log growth, grows for faster growth). If it
+    falls, H tends to a finite limit, estimated by extrapolating g's decay as a power of
+    t: limit = H(T) + g(T)/eps with eps = -d ln g / d ln t, H(T) integrated accurately.
+    Limits above the underflow level leave no unit that double precision can count, so they pass.
+    """
+    s = np.log(offsets)
+    mid = int(np.searchsorted(s, 0.5 * (s[0] + s[-1])))
+    g_mid, g_top = float(g[mid]), float(g[-1])
+    if H_top == 0.0:
+        raise ModelError("formula", "the hazard rate is 0 on the whole support: units never fail")
+    if g_top == 0.0 or g_top < g_mid * (1.0 - 1e-9):
+        H_top = accurate_H()
+        if g_top > 0:
+            eps = math.log(g_mid / g_top) / (s[-1] - s[mid])
+            limit = H_top + g_top / eps
+        else:
+            limit = H_top
+        if limit < _H_UNDERFLOW:
+            raise ModelError("formula", f"the cumulative hazard levels off: H(t) tends to about {limit:.6g} "
+                                        f"(H = {H_top:.6g} at t = {t_top:.3g}), so a share exp(-{limit:.4g}) = "
+                                        f"{math.exp(-limit):.3g} of units would never fail; a lifetime model "
+                                        "needs H(t) to grow without bound")
+        return
+    if H_top < H_NEGLIGIBLE:
+        raise ModelError("formula", f"the cumulative hazard grows too slowly for double precision: H = "
+                                    f"{H_top:.4g} at t = {t_top:.3g}, the farthest age followed, so a "
+                                    f"share {math.exp(-H_top):.3g} of units would outlive t = {t_top:.3g}")
+
+
 class _FormulaTarget(Target):
     what = "formula"
 
@@ -79,7 +200,8 @@ class _FormulaTarget(Target):
         lo, hi = self.support
         if not np.isfinite(lo):
             return False
-        width = (hi - lo) if np.isfinite(hi) else max(self.mapping.scale, 1e-300)
+        far = np.isfinite(hi) and not self.mapping.log_span > 0
+        width = (hi - lo) if far else max(self.mapping.scale, 1e-300)
         with np.errstate(all="ignore"):
             near = np.asarray(fn(lo + width * np.array([1e-12, 1e-9, 1e-6])), dtype=float)
         return bool(np.all(np.isfinite(near)) and near[0] > 10 * near[2] and near[0] > 10 * near[1] / 10)
@@ -145,7 +267,13 @@ class DensityTarget(_FormulaTarget):
 
 
 class HazardTarget(_FormulaTarget):
-    """A hazard-rate formula h(t); R(t) = exp(-H(t)), f = h·R."""
+    """A hazard-rate formula h(t); R(t) = exp(-H(t)), f = h·R.
+
+    Any hazard whose cumulative hazard grows without bound is a lifetime model,
+    however slowly H grows (like log t for the Lomax and log-logistic hazards).
+    The support ends where R(t) = exp(-H(t)) underflows, or 1e300 past the start
+    of life; a hazard whose H levels off is refused, with its limit.
+    """
 
     kind = "hazard"
 
@@ -160,20 +288,21 @@ class HazardTarget(_FormulaTarget):
             return self._raw(t) * np.ones_like(t)
 
         self.declared_support = (lo, hi)
-        end = self._effective_end(h, lo, hi)
+        reach = _cumulative_hazard_reach(h, lo, hi)
+        end = reach.end
         # Beyond the effective end R(t) = 0, so the hazard may overflow there.
         probe = _probe_points(lo, end)
         with np.errstate(all="ignore"):
             values = np.asarray(h(probe), dtype=float)
         self._values_ok(probe, values, "hazard rate")
         while True:
-            self.H = CumulativeIntegral(h, support_map(lo, end, density=h), rtol=1e-14, field="formula",
+            self.H = CumulativeIntegral(h, reach.mapping(end, h), rtol=1e-14, field="formula",
                                         check=lambda t, g: self._values_ok(t, g, "hazard rate"))
             # The rough bracket can fall short for a decreasing hazard: push on
             # until R(end) is negligible (H > 40 leaves < 5e-18 of the units).
-            if self.H.total >= 40.0 or end >= hi or end - lo > 1e300:
+            if self.H.total >= H_NEGLIGIBLE or end >= reach.limit or end - lo > 1e300:
                 break
-            end = min(lo + 4.0 * (end - lo), hi)
+            end = min(lo + 4.0 * (end - lo), reach.limit)
         self.effective_end = end
         if not self.H.total > 0:
             raise ModelError("formula", "the hazard rate is 0 on the whole support: units never fail")
@@ -183,39 +312,33 @@ class HazardTarget(_FormulaTarget):
                                         "of units would never fail; extend the support or check the formula")
         # The support ends where R(t) underflows; beyond it no unit survives.
         self.support = (lo, end)
-        self.pole_at_lower = self._pole_check(h)
         self._h = h
+        self._map = reach.mapping(end, self.pdf) if reach.far(end) else None
+        self.pole_at_lower = self._pole_check(h)
 
-    @staticmethod
-    def _effective_end(h, lo, hi) -> float:
-        """First age where a rough cumulative hazard passes the underflow of exp(-H).
+    def moment(self, k: int) -> float:
+        """E[T^k] = lo^k + integral of k·t^(k-1)·R(t) dt (integration by parts, t >= 0),
+        on the hazard's own map, so heavy tails (R ~ t^-b) keep their digits; inf
+        where t^k·R(t) does not die out over the far decades of the support."""
+        lo, end = self.support
+        if k == 0:
+            return 1.0
+        if lo < 0 or k < 1:
+            return super().moment(k)
 
-        A coarse trapezoid sum on a logarithmic grid only brackets that age;
-        the accurate H is integrated afterwards on [lo, end].
-        """
-        if np.isfinite(hi):
-            offsets = (hi - lo) * np.concatenate([np.logspace(-12, 0, 400)])
-        else:
-            offsets = np.logspace(-9, 15, 1200)
-        t = lo + offsets
-        with np.errstate(all="ignore"):
-            values = np.asarray(h(t), dtype=float)
-        if np.any(values < 0) or np.any(np.isnan(values)):
-            i = int(np.flatnonzero((values < 0) | np.isnan(values))[0])
-            raise ModelError("formula", f"the hazard rate is {'negative' if values[i] < 0 else 'not a number'} "
-                                        f"at t = {t[i]:.6g} (value {values[i]:.6g}); it must be finite and >= 0")
-        # An overflowing hazard (+inf) only says the units are long gone.
-        steps = np.diff(np.concatenate([[lo], t]))
-        # Left-point sums under-estimate an increasing hazard, so stay well past 745.
-        crude = np.cumsum(values * steps)
-        over = np.flatnonzero(crude > 4 * _H_UNDERFLOW)
-        if over.size:
-            return float(t[over[0]])
-        if np.isfinite(hi):
-            return hi
-        raise ModelError("formula", f"the cumulative hazard stays below {crude[-1]:.4g} up to "
-                                    f"t = {t[-1]:.3g}: a share of units would never fail; "
-                                    "a lifetime model needs H(t) to grow without bound")
+        def weight(t):
+            t = np.asarray(t, dtype=float)
+            with np.errstate(all="ignore"):
+                return k * np.exp((k - 1) * np.log(t) - self.cumulative_hazard(t))
+
+        if self.mapping.log_span > 0:
+            # Per unit of log-age, the far end must weigh nothing beside the median.
+            median = float(self.quantile(0.5))
+            last = lo + (end - lo) * (1.0 - 1e-9)
+            if last * weight(last) > 1e-12 * median * weight(median):
+                return math.inf
+        total = CumulativeIntegral(weight, self.mapping, rtol=1e-13, field="formula").total
+        return float(lo**k + total) if np.isfinite(total) else math.inf
 
     def _sf(self, t):
         return np.exp(-self.H(t))

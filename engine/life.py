@@ -1,58 +1,82 @@
 """Life figures (MTTF, B-lives, mission reliability) from draws or from the model itself.
 
 Normal-theory interval for the mean, distribution-free order-statistic intervals for
-quantiles (Hahn & Meeker, Statistical Intervals, 1991, ch. 5) and Wilson (1927) score intervals.
+quantiles (Hahn & Meeker, Statistical Intervals, 1991, ch. 5) and Wilson (1927) score
+intervals, all from the sample's exact statistics at any size (order_statistics.py).
 """
 from __future__ import annotations
 
+import functools
 import math
+import os
 import sys
 
 import numpy as np
 from scipy import stats as _stats
 
 from .errors import ModelError, finite_number
+from .order_statistics import chunked_pass, in_memory_pass
 
 B_LIVES = {"B1": 0.01, "B10": 0.10, "B50": 0.50}
-STREAMING_BINS = 2**16
 
 
 def life_summary(samples, mission_times=(), confidence=0.95) -> dict:
     """MTTF, B1/B10/B50 lives and R(t) at each mission time, each with a two-sided interval.
 
     - MTTF: sample mean ± z·s/sqrt(n) (normal theory; needs a finite variance).
-    - B-lives: the sample p-quantile (numpy's default, Hyndman & Fan 1996 definition 7)
-      with the distribution-free interval [x_(r), x_(s)], r and s from Binomial(n, p)
-      (Hahn & Meeker 1991, §5.2); ``achieved_confidence`` is its exact binomial
-      coverage, at least ``confidence``. A bound the sample is too small to give
-      is -inf or +inf.
+    - B-lives: the sample p-quantile (numpy's default, Hyndman & Fan 1996 definition 7,
+      from the exact order statistics x_(j), x_(j+1)) with the distribution-free interval
+      [x_(r), x_(s)], r and s from Binomial(n, p) (Hahn & Meeker 1991, §5.2);
+      ``achieved_confidence`` is its exact binomial coverage, at least ``confidence``.
+      A bound the sample is too small to give is -inf or +inf.
     - R(t): the fraction of draws beyond t, with the Wilson (1927) score interval.
 
-    ``samples`` may also be a dask array: then the figures are streamed (see
-    ``_streaming_summary``) and the result adds ``method`` and ``quantile_error``.
+    ``samples`` is a numpy array (or anything array-like), a dask array, or the folder
+    of a finished ``generate(..., out=folder)`` run. Every figure is exact for the
+    sample at any size: dask arrays and shard folders are read chunk by chunk in
+    bounded memory (``order_statistics.py``), and ``computation`` says how
+    (``method``, ``passes`` over the draws, draws ``kept`` in memory for the ranks).
     """
     times = _mission_times(mission_times)
     confidence = _confidence(confidence)
+    if isinstance(samples, (str, os.PathLike)):
+        from .generate import open_shards
+        samples = open_shards(samples)
     if _is_dask_array(samples):
-        return _streaming_summary(samples, times, confidence)
-    xs = np.sort(_samples(samples))
-    n = xs.size
+        stats, select, computation = chunked_pass(samples, times)
+    else:
+        xs = _samples(samples)
+        stats, select, computation = in_memory_pass(xs, times)
+    n = stats.n
     z = _z(confidence)
-
-    b_lives = {}
+    plans = {}
     for name, p in B_LIVES.items():
+        h = (n - 1) * p                      # numpy's default: between x_(j+1) and x_(j+2), 1-based
+        j = int(math.floor(h))
         r, s, achieved = _order_statistic_ranks(n, p, confidence)
-        b_lives[name] = {"p": p, "estimate": float(np.quantile(xs, p)),
-                         "lower": _order_statistic(xs, r), "upper": _order_statistic(xs, s),
+        plans[name] = (p, h - j, j, min(j + 1, n - 1), r, s, achieved)
+    wanted = sorted({k for (_, _, j, j1, r, s, _) in plans.values()
+                     for k in (j, j1, r - 1, s - 1) if 0 <= k < n})
+    values = select(wanted)
+    b_lives = {}
+    for name, (p, frac, j, j1, r, s, achieved) in plans.items():
+        lo_v, hi_v = values[j], values[j1]
+        # numpy's own interpolation (numpy.lib._function_base_impl._lerp), so the
+        # estimate equals np.quantile(samples, p) to the last bit.
+        estimate = hi_v - (hi_v - lo_v) * (1.0 - frac) if frac >= 0.5 else lo_v + (hi_v - lo_v) * frac
+        b_lives[name] = {"p": p, "estimate": float(estimate),
+                         "lower": -math.inf if r < 1 else float(values[r - 1]),
+                         "upper": math.inf if s > n else float(values[s - 1]),
                          "achieved_confidence": achieved}
-    survivors = n - np.searchsorted(xs, times, side="right")
-    sd = float(np.std(xs, ddof=1)) if n > 1 else math.nan
     return {
         "n": n,
         "confidence": confidence,
-        "mttf": _mean_interval(float(np.mean(xs)), sd, n, z),
+        "mttf": _mean_interval(stats.mean, stats.sd, n, z),
         "b_lives": b_lives,
-        "reliability": _reliability_rows(times, survivors, n, z),
+        "reliability": _reliability_rows(times, stats.survivors, n, z),
+        "method": computation["method"],
+        "passes": computation["passes"],
+        "computation": computation,
     }
 
 
@@ -76,6 +100,7 @@ def exact_life_figures(target, mission_times=()) -> dict:
 
 # ---- intervals ------------------------------------------------------------------------
 
+@functools.lru_cache(maxsize=64)
 def _z(confidence: float) -> float:
     return float(_stats.norm.ppf(0.5 + confidence / 2.0))
 
@@ -85,6 +110,7 @@ def _mean_interval(mean: float, sd: float, n: int, z: float) -> dict:
     return {"estimate": mean, "lower": mean - half, "upper": mean + half}
 
 
+@functools.lru_cache(maxsize=256)
 def _order_statistic_ranks(n: int, p: float, confidence: float):
     """1-based ranks r, s with P(x_(r) <= x_p <= x_(s)) >= confidence, and that probability.
 
@@ -99,21 +125,54 @@ def _order_statistic_ranks(n: int, p: float, confidence: float):
     return r, s, achieved
 
 
-def _order_statistic(xs: np.ndarray, rank: int) -> float:
-    if rank < 1:
-        return -math.inf
-    if rank > xs.size:
-        return math.inf
-    return float(xs[rank - 1])
-
-
 def _wilson(successes, n: int, z: float):
-    """Wilson (1927) score interval for a binomial proportion, vectorised over ``successes``."""
-    p = np.asarray(successes, dtype=float) / n
+    """Wilson (1927) score interval for a binomial proportion, vectorised over ``successes``.
+
+    Its ends are exactly 0 when no draw succeeds and exactly 1 when all do (the formula's
+    own limits); they are set so, since centre ± half rounds to 1e-17 or 1 - 1.1e-16 there.
+    """
+    k = np.asarray(successes, dtype=float)
+    p = k / n
     z2n = z * z / n
     centre = (p + z2n / 2.0) / (1.0 + z2n)
     half = z / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n))
-    return p, np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
+    lower = np.where(k <= 0, 0.0, np.clip(centre - half, 0.0, 1.0))
+    upper = np.where(k >= n, 1.0, np.clip(centre + half, 0.0, 1.0))
+    return p, lower, upper
+
+
+# ---- verdicts ---------------------------------------------------------------------------
+
+#: Rounding slack of a verdict, in units in the last place of the largest number compared.
+VERDICT_ULPS = 4
+
+
+def inside_interval(value, lower, upper, ulps: int = VERDICT_ULPS) -> bool | None:
+    """Does ``value`` lie in [lower, upper], allowing ``ulps`` units in the last place of the
+    largest finite magnitude among the three for rounding? None when any is missing or NaN.
+
+    An interval end of 0.9999999999999999 beside an exact value of 1 (or 1e-17 beside 0) is
+    rounding, not evidence: a relative slack of a few ulps keeps such rows from crying wolf
+    without hiding any real miss (which is many ulps wide for any sample below 10^30 draws).
+    """
+    try:
+        v, lo, hi = float(value), float(lower), float(upper)
+    except (TypeError, ValueError):
+        return None
+    if math.isnan(v) or math.isnan(lo) or math.isnan(hi):
+        return None
+    finite = [abs(x) for x in (v, lo, hi) if math.isfinite(x)]
+    slack = ulps * np.finfo(float).eps * (max(finite) if finite else 0.0)
+    return bool(lo - slack <= v <= hi + slack)
+
+
+def verdict_legend(confidence: float = 0.95) -> str:
+    """One line saying what a ✓/✗ beside an interval means and how often a correct sampler shows ✗."""
+    miss = 1.0 - confidence
+    return (f"✓: the model's exact value lies inside the {confidence:.0%} interval from the draws "
+            f"(allowing {VERDICT_ULPS} ulps for rounding); ✗: outside. Each interval misses the true "
+            f"value {miss:.0%} of the time, so a correct sampler still shows ✗ in about 1 row in "
+            f"{1.0 / miss:.0f}.")
 
 
 def _reliability_rows(times, survivors, n: int, z: float) -> list:
@@ -122,81 +181,11 @@ def _reliability_rows(times, survivors, n: int, z: float) -> list:
             for t, e, lo, hi in zip(times, est, lower, upper)]
 
 
-# ---- dask: streaming figures -----------------------------------------------------------
+# ---- input kinds -------------------------------------------------------------------------
 
 def _is_dask_array(obj) -> bool:
     da = sys.modules.get("dask.array")
     return da is not None and isinstance(obj, da.Array)
-
-
-def _streaming_summary(x, times, confidence) -> dict:
-    """Life figures from a dask array in two passes, never holding the draws in memory.
-
-    Pass 1: count, min, max, mean, sd, finiteness and the survivor count at each
-    mission time (MTTF and R(t) are exact). Pass 2: a 2^16-bin histogram between
-    min and max. Each order statistic is placed inside the bin that holds it, by
-    its rank within the bin, so it is off by less than one bin width; a B-life
-    estimate interpolates two neighbouring order statistics with weights summing
-    to 1, so it too is within one bin width (``quantile_error``) of the in-memory
-    figure, and so are the interval bounds.
-    """
-    import dask
-    import dask.array as da
-
-    if x.ndim != 1:
-        raise ModelError("samples", f"must be a 1-D array, got {x.ndim} dimensions")
-    if math.isnan(x.size):  # chunk sizes unknown (e.g. after boolean indexing): one counting pass
-        x = x.compute_chunk_sizes()
-    survivors = [(x > t).sum() for t in times]
-    n, lo, hi, mean, sd, finite, *survivors = dask.compute(
-        x.size, x.min() if x.size else 0.0, x.max() if x.size else 0.0,
-        x.mean() if x.size else 0.0, x.std(ddof=1) if x.size > 1 else math.nan,
-        da.isfinite(x).all(), *survivors)
-    n = int(n)
-    if n == 0:
-        raise ModelError("samples", "must not be empty")
-    if not finite:
-        raise ModelError("samples", "must be finite; some are NaN or infinite")
-    lo, hi = float(lo), float(hi)
-    z = _z(confidence)
-
-    if hi > lo:
-        counts, edges = da.histogram(x, bins=STREAMING_BINS, range=(lo, hi))
-        counts = np.asarray(counts.compute(), dtype=np.int64)
-        width = (hi - lo) / STREAMING_BINS
-    else:
-        counts, edges, width = np.array([n]), np.array([lo, hi]), 0.0
-    cum = np.cumsum(counts)
-
-    def order_stat(rank0):
-        """Estimate of the 0-based rank0-th order statistic from the histogram."""
-        rank0 = np.asarray(rank0)
-        b = np.searchsorted(cum, rank0, side="right")
-        before = np.where(b > 0, cum[b - 1], 0)
-        frac = (rank0 - before + 0.5) / counts[b]
-        return edges[b] + frac * (edges[b + 1] - edges[b])
-
-    b_lives = {}
-    for name, p in B_LIVES.items():
-        # numpy's default quantile: h = (n - 1) p between x_(floor h) and x_(floor h + 1).
-        h = (n - 1) * p
-        j = int(math.floor(h))
-        pair = order_stat([j, min(j + 1, n - 1)])
-        estimate = float(pair[0] + (h - j) * (pair[1] - pair[0]))
-        r, s, achieved = _order_statistic_ranks(n, p, confidence)
-        lower = -math.inf if r < 1 else float(order_stat(r - 1))
-        upper = math.inf if s > n else float(order_stat(s - 1))
-        b_lives[name] = {"p": p, "estimate": estimate, "lower": lower, "upper": upper,
-                         "achieved_confidence": achieved}
-    return {
-        "n": n,
-        "confidence": confidence,
-        "mttf": _mean_interval(float(mean), float(sd), n, z),
-        "b_lives": b_lives,
-        "reliability": _reliability_rows(times, np.asarray(survivors, dtype=float), n, z),
-        "method": "streaming",
-        "quantile_error": width,
-    }
 
 
 # ---- validation -----------------------------------------------------------------------
@@ -233,3 +222,37 @@ def _confidence(confidence) -> float:
     if not 0.0 < c < 1.0:
         raise ModelError("confidence", f"must be strictly between 0 and 1, got {c:g}")
     return c
+
+
+# ---- plain text ---------------------------------------------------------------------------
+
+def format_life_figures(sample: dict, exact: dict | None = None, unit: str = "") -> str:
+    """A terminal table of ``life_summary`` figures with their intervals, beside the model's
+    exact values and a ✓/✗ verdict when ``exact`` (from ``exact_life_figures``) is given,
+    then the verdict legend and how the figures were computed."""
+    conf = sample["confidence"]
+    u, paren = (f" {unit}", f" ({unit})") if unit else ("", "")
+    head = f"{'figure':<14}{'estimate':>14}{f'{conf:.0%} interval':>32}"
+    lines = [head + (f"{'exact':>14}  in?" if exact else "")]
+
+    def row(name, s, value, pct=False):
+        def f(v):
+            return f"{100 * v:.4f} %" if pct else f"{v:.6g}"
+        text = f"{name:<14}{f(s['estimate']):>14}{f(s['lower']) + ' to ' + f(s['upper']):>32}"
+        if exact:
+            verdict = inside_interval(value, s["lower"], s["upper"])
+            text += f"{f(value):>14}  {'–' if verdict is None else ('✓' if verdict else '✗')}"
+        lines.append(text)
+
+    row(f"MTTF{paren}", sample["mttf"], exact["mttf"]["value"] if exact else None)
+    for name, s in sample["b_lives"].items():
+        row(f"{name}{paren}", s, exact["b_lives"][name]["value"] if exact else None)
+    for i, s in enumerate(sample["reliability"]):
+        row(f"R({s['time']:g}{u})", s, exact["reliability"][i]["value"] if exact else None, pct=True)
+    if exact:
+        lines.append(verdict_legend(conf))
+    computation = sample.get("computation", {})
+    if computation.get("text"):
+        lines.append(f"Computed from {computation['text']}.")
+    return "\n".join(lines)
+

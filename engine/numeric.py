@@ -37,6 +37,9 @@ class SupportMap:
     scale: float
     power: float = 1.0
     tail_power: float = 1.0
+    #: > 0 selects the log-age map t = lo + scale*expm1(z*log_span), z = y**power, on a
+    #: finite [lo, hi] that spans many decades (log_span = ln(1 + (hi - lo)/scale)).
+    log_span: float = 0.0
 
     @property
     def y_range(self) -> tuple[float, float]:
@@ -60,6 +63,9 @@ class SupportMap:
         y = np.asarray(y, dtype=float)
         c = self.scale
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            if self.log_span > 0:
+                z = y ** self.power if self.power != 1.0 else y
+                return np.minimum(self.lo + c * np.expm1(z * self.log_span), self.hi)
             if np.isfinite(self.lo):
                 if np.isfinite(self.hi):
                     w = y ** self.power if self.power != 1.0 else y
@@ -74,6 +80,11 @@ class SupportMap:
         y = np.asarray(y, dtype=float)
         c = self.scale
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            if self.log_span > 0:
+                p = self.power
+                z = y**p if p != 1.0 else y
+                dz = p * y ** (p - 1.0) if p != 1.0 else np.ones_like(y)
+                return c * self.log_span * np.exp(z * self.log_span) * dz
             if np.isfinite(self.lo):
                 p = self.power
                 z = y**p if p != 1.0 else y
@@ -92,6 +103,9 @@ class SupportMap:
         t = np.asarray(t, dtype=float)
         c = self.scale
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            if self.log_span > 0:
+                z = np.clip(np.log1p(np.maximum(t - self.lo, 0.0) / c) / self.log_span, 0.0, 1.0)
+                return z ** (1.0 / self.power) if self.power != 1.0 else z
             if np.isfinite(self.lo):
                 if np.isfinite(self.hi):
                     z = np.clip((t - self.lo) / (self.hi - self.lo), 0.0, 1.0)
@@ -193,6 +207,20 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
     return SupportMap(float(lo), float(hi), centre, scale, power, tail)
 
 
+def log_age_map(lo: float, hi: float, scale: float, density: Callable | None = None) -> SupportMap:
+    """The log-age map of a finite [lo, hi] that spans many decades above ``scale``.
+
+    Equal steps in y are equal steps in ln(1 + (t - lo)/scale), so an integrand
+    like c/t (a cumulative hazard growing like log t, e.g. the Lomax hazard)
+    becomes a constant, and a pole at lo keeps its y**power treatment.
+    """
+    if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo and scale > 0):
+        raise ValueError("log_age_map needs a finite interval and a positive scale")
+    power = lower_end_power(density, lo, scale) if density is not None else 1.0
+    span = float(np.log1p((hi - lo) / scale))
+    return SupportMap(float(lo), float(hi), 0.0, float(scale), power, 1.0, span)
+
+
 class CumulativeIntegral:
     """G(t) = integral of g from the lower end of the support to t, to ~1e-14.
 
@@ -220,7 +248,8 @@ class CumulativeIntegral:
         self._ylo = ylo
         self._jacobi = None
         if np.isfinite(mapping.lo) and mapping.power == 1.0:
-            width = (mapping.hi - mapping.lo) if np.isfinite(mapping.hi) else mapping.scale
+            far = np.isfinite(mapping.hi) and mapping.log_span == 0.0
+            width = (mapping.hi - mapping.lo) if far else mapping.scale
             alpha = lower_end_exponent(integrand, mapping.lo, width)
             if alpha is not None and alpha > 0 and abs(alpha - round(alpha)) > 1e-9:
                 # Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the

@@ -37,6 +37,16 @@ def test_the_report_carries_the_caution(report):
     assert html.escape(CAUTION) in report[2]
 
 
+def test_the_life_table_says_what_a_cross_means_and_how_often_a_correct_sampler_shows_one(report):
+    # One row in 20 misses at 95 % by the definition of a 95 % interval (tests/test_life.py proves the rate).
+    assert "✗: outside" in report[2] and "about 1 row in 20" in report[2]
+
+
+def test_the_goodness_of_fit_verdict_says_how_often_a_correct_sampler_is_rejected(report):
+    # A level-0.001 test rejects a true model with probability 0.001 by definition.
+    assert "rejected by each test about 1 time in 1,000" in report[2]
+
+
 def test_the_report_names_the_scenario(report):
     scenario, _, text = report
     assert f"<title>lifedraw report — {html.escape(scenario.title)}</title>" in text

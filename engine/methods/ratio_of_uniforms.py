@@ -57,7 +57,9 @@ def _pole_ages(target: Target) -> list[float]:
 def _end_pole(target: Target) -> str | None:
     """A density that keeps growing towards a finite end of the support has no sup there."""
     lo, hi = target.support
-    width = (hi - lo) if np.isfinite(hi - lo) else float(target.quantile(0.75) - target.quantile(0.25))
+    # The spread of the bulk, not the support's width: a hazard model's support may
+    # end 1e100 past its bulk (where R underflows), where steps of width*1e-6 see nothing.
+    width = min(hi - lo, float(target.quantile(0.75) - target.quantile(0.25)))
     steps = width * np.array([1e-6, 1e-9, 1e-12])
     for name, end, sign in (("lower", lo, 1.0), ("upper", hi, -1.0)):
         if not np.isfinite(end):
