@@ -13,7 +13,8 @@ import numpy as np
 
 from .errors import ModelError, finite_number
 from .formula import Formula
-from .numeric import CumulativeIntegral, SupportMap, invert_monotone, log_age_map, support_map
+from .numeric import (CumulativeIntegral, SupportMap, divergence_reason, invert_monotone, log_age_map,
+                      support_map)
 from .target import Target
 
 # Cumulative hazard beyond which R(t) = exp(-H) underflows in double precision.
@@ -234,6 +235,16 @@ class DensityTarget(_FormulaTarget):
         if not np.any(values > 0):
             raise ModelError("formula", "the density is 0 everywhere it was probed on the support; "
                                         "it has no area to normalise")
+        why = divergence_reason(lambda t: self._raw(t), lo, hi)
+        if why:
+            raise ModelError("formula", why)
+        peak = float(np.max(values))
+        if peak < 1e-280 or peak > 1e280:
+            # Near the ends of double precision the values lose their digits (1e-320 keeps
+            # three): refuse rather than normalise noise. The scale itself is irrelevant.
+            raise ModelError("formula", f"the density's values are of order {peak:.3g}, too near the limits of "
+                                        "double precision to compute with; multiply the formula by a constant "
+                                        "that brings them near 1 (a density is normalised, so the scale is free)")
         self._map = support_map(lo, hi, density=lambda t: self._raw(t) * np.ones_like(t))
         self.integral = CumulativeIntegral(
             lambda t: self._raw(t) * np.ones_like(t), self._map, field="formula",

@@ -234,3 +234,36 @@ def test_the_rejection_kernel_clamps_a_damaged_guide(rejection):
         counts = kernels.hat_propose(u, v, rejection.cum, guide, rejection.total, rejection._last,
                                      rejection._table, x, loghat, status)
         assert counts.sum() == n
+
+
+# ---- densities with infinite mass ----------------------------------------------------------------
+# Reference: the comparison test with the integral of 1/t (any calculus text, e.g. Apostol,
+# Calculus I, 10.21): the area over (0, inf) is finite only if t*f(t) -> 0; a pole
+# (t - lo)**alpha at a finite end is integrable only for alpha > -1.
+
+@pytest.mark.parametrize("expr", ["1", "t/(1+t)", "exp(-t)+1e-20", "when(t<1, 1, 1e-10)"])
+def test_a_density_with_infinite_area_is_refused_with_the_reason(expr):
+    with pytest.raises(ModelError, match="area under it is infinite") as info:
+        lifedraw.density_formula(expr, (0, math.inf))
+    assert "tolerance" not in str(info.value)
+
+
+def test_infinite_area_toward_minus_infinity_and_at_a_pole_is_refused():
+    with pytest.raises(ModelError, match="lower end"):
+        lifedraw.density_formula("1/(1 + exp(t))", (-math.inf, 0))
+    with pytest.raises(ModelError, match="pole that is not integrable"):
+        lifedraw.density_formula("1/t", (0, 1))
+
+
+def test_integrable_tails_and_poles_are_still_accepted():
+    # Closed forms: integral of t**-0.5 over (0, 1) is 2; of exp(-t**2) over R is sqrt(pi);
+    # of (1 + t)**-1.5 over (0, inf) is 2 (a heavy tail, t*f(t) -> 0 slowly).
+    assert lifedraw.density_formula("t**-0.5", (0, 1)).area == pytest.approx(2.0, rel=1e-10)
+    assert lifedraw.density_formula("exp(-t**2)", (-math.inf, math.inf)).area == pytest.approx(
+        math.sqrt(math.pi), rel=1e-10)
+    assert lifedraw.density_formula("(1 + t)**-1.5", (0, math.inf)).area == pytest.approx(2.0, rel=1e-9)
+
+
+def test_a_density_scaled_into_subnormal_numbers_is_refused():
+    with pytest.raises(ModelError, match="multiply the formula by a constant"):
+        lifedraw.density_formula("1e-320*exp(-t)", (0, math.inf))
