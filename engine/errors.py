@@ -52,6 +52,36 @@ def finite_number(field: str, value, *, positive: bool = False,
     return value
 
 
+def censoring_flags(field: str, flags, n: int) -> np.ndarray:
+    """Suspension flags as a bool array of length n (None: all failures).
+
+    Only true/false or the numbers 0/1 are flags; text such as "no", NaN or 2 is
+    refused naming the entry, never read as a suspension.
+    """
+    if flags is None:
+        return np.zeros(n, dtype=bool)
+    try:
+        c = np.asarray(flags)
+    except (TypeError, ValueError):
+        raise ModelError(field, "must be true/false flags (true = suspension)") from None
+    if c.ndim == 0:
+        c = c.reshape(1)
+    if c.ndim != 1 or c.size != n:
+        raise ModelError(field, f"{c.size} flags for {n} times; give one flag per time")
+    if c.dtype != bool:
+        try:
+            numeric = c.astype(float)
+        except (TypeError, ValueError):
+            raise ModelError(field, "must be true/false flags (true = suspension), "
+                                    f"got {str(c.ravel()[0])[:20]!r}") from None
+        bad = np.flatnonzero((numeric != 0) & (numeric != 1))
+        if bad.size:
+            i = int(bad[0])
+            raise ModelError(field, f"value {c[i]!r} (row {i + 1}) is not a true/false flag")
+        c = numeric.astype(bool)
+    return c
+
+
 def sample_size(field: str, n, *, limit: int | None = None) -> int:
     """Validate a sample size: a whole number >= 0 that fits in memory.
 
