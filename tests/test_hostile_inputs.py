@@ -303,3 +303,140 @@ def test_censoring_flags_that_are_not_flags_are_refused(flags):
         lifedraw.failure_times([10.0, 20.0, 30.0], flags)
     with pytest.raises(ModelError, match="censored"):
         engine.fit_family("weibull", [10.0, 20.0, 30.0], flags)
+
+
+# ---- output files: atomic, never silently replaced, checked before the work ------------------------
+
+from lifedraw.cli.main import main as cli  # noqa: E402
+
+
+def test_sample_refuses_to_replace_a_file_without_force(tmp_path, capsys):
+    out = tmp_path / "draws.npy"
+    out.write_bytes(b"precious")
+    assert cli(["sample", "gearbox-wearout", "-n", "1000", "-o", str(out)]) == 2
+    assert "already exists" in capsys.readouterr().err and out.read_bytes() == b"precious"
+    assert cli(["sample", "gearbox-wearout", "-n", "1000", "--seed", "3", "-o", str(out), "--force"]) == 0
+    assert np.load(out).shape == (1000,)
+    assert [p.name for p in tmp_path.iterdir()] == ["draws.npy"]         # no temporary left behind
+
+
+@pytest.mark.parametrize("where, words", [
+    ("missing/x.npy", "does not exist"),
+    ("x.parquet", "unknown file type"),
+    (".", "is a folder"),
+])
+def test_a_bad_destination_is_one_clear_line_before_any_work(tmp_path, capsys, monkeypatch, where, words):
+    from lifedraw.engine import sampling
+    monkeypatch.setattr(sampling, "fit", lambda *a, **k: pytest.fail("the model was built before the check"))
+    assert cli(["sample", "gearbox-wearout", "-o", str(tmp_path / where)]) == 2
+    err = capsys.readouterr().err
+    assert words in err and "Traceback" not in err
+
+
+def test_an_unwritable_folder_is_refused(tmp_path, capsys):
+    import os
+    folder = tmp_path / "ro"
+    folder.mkdir()
+    folder.chmod(0o500)
+    try:
+        if os.access(folder, os.W_OK):
+            pytest.skip("running as a user who may write anywhere (root)")
+        assert cli(["sample", "gearbox-wearout", "-o", str(folder / "x.npy")]) == 2
+        assert "not writable" in capsys.readouterr().err
+    finally:
+        folder.chmod(0o700)
+
+
+def test_a_write_that_fails_midway_keeps_the_old_file(tmp_path):
+    from lifedraw.engine.output_files import write_atomically
+    out = tmp_path / "report.html"
+    out.write_text("old, whole")
+
+    def dies(fh):
+        fh.write(b"half a new fil")
+        raise OSError(28, "No space left on device")
+
+    with pytest.raises(ModelError, match="No space left"):
+        write_atomically(out, dies)
+    assert out.read_text() == "old, whole"
+    assert [p.name for p in tmp_path.iterdir()] == ["report.html"]
+
+
+def test_report_refuses_an_existing_file_before_building(tmp_path, capsys):
+    out = tmp_path / "r.html"
+    out.write_text("keep me")
+    assert cli(["report", "gearbox-wearout", "-o", str(out)]) == 2
+    assert "already exists" in capsys.readouterr().err and out.read_text() == "keep me"
+
+
+def test_scenario_save_is_atomic_and_asks_before_replacing(tmp_path):
+    from lifedraw.engine.scenarios import load_scenario
+    sc = load_scenario("gearbox-wearout")
+    path = sc.save(tmp_path / "mine.toml")
+    with pytest.raises(ModelError, match="already exists"):
+        sc.save(path)
+    sc.save(path, overwrite=True)
+    assert load_scenario(path).title == sc.title
+
+
+@pytest.mark.parametrize("args", [["--seed", "-1"], ["--seed", "ten"], ["-n", "inf"], ["-n", "1.5"]])
+def test_bad_seeds_and_sizes_on_the_command_line_are_usage_errors(tmp_path, capsys, args):
+    with pytest.raises(SystemExit) as info:
+        cli(["sample", "gearbox-wearout", *args, "-o", str(tmp_path / "x.npy")])
+    assert info.value.code == 2
+    assert "Traceback" not in capsys.readouterr().err
+
+
+# ---- scenario files ------------------------------------------------------------------------------
+
+from lifedraw.engine.scenarios import scenario_from_toml  # noqa: E402
+
+GOOD = '''title = "t"
+[model]
+kind = "family"
+family = "weibull"
+params = { shape = 2.0, scale = 10.0 }
+'''
+
+
+@pytest.mark.parametrize("extra, field, words", [
+    ("[run]\nsample_sise = 10\n", "run.sample_sise", "did you mean 'sample_size'"),
+    ("[run]\nsed = 4\n", "run.sed", "did you mean 'seed'"),
+    ("titel = 'x'\n", "titel", "did you mean 'title'"),
+    ("[run]\nseed = 1.5\n", "run.seed", "whole number"),
+    ("[run]\nseed = -1\n", "run.seed", "between"),
+    ("[run]\nsample_size = inf\n", "run.sample_size", "whole number"),
+    ("[run]\nsample_size = '100'\n", "run.sample_size", "whole number"),
+    ("[run]\nmission_times = 5\n", "run.mission_times", "list"),
+    ("run = 5\n", "run", "must be a table"),
+    ("parameters = [1, 2]\n", "parameters", "must be a table"),
+    ("story = 7\n", "story", "must be text"),
+])
+def test_malformed_scenario_tables_name_the_key(extra, field, words):
+    text = extra + GOOD if not extra.startswith("[") else GOOD.replace("[model]", extra + "[model]")
+    with pytest.raises(ModelError) as info:
+        scenario_from_toml(text)
+    assert info.value.field == field and words in info.value.reason
+
+
+@pytest.mark.parametrize("blob, words", [
+    (GOOD.encode("utf-16"), "UTF-16"),
+    (b"\x89PNG\r\n\x1a\n\x00\x00\x00\rIHDR", "not UTF-8"),
+    (b"title = 'x'\x00", "NUL"),
+    (b"x = " + b"[" * 5000 + b"]" * 5000, "too deeply"),
+    (("x = " + "[" * 100 + "]" * 100 + "\n" + GOOD).encode(), "deeper than"),
+])
+def test_binary_foreign_and_deep_scenario_files_are_refused(blob, words):
+    with pytest.raises(ModelError, match=words):
+        scenario_from_toml(blob)
+
+
+def test_a_model_of_the_wrong_shape_is_a_model_error():
+    with pytest.raises(ModelError, match="model"):
+        scenario_from_toml(GOOD.replace("params = { shape = 2.0, scale = 10.0 }", "params = [1, 2]"))
+
+
+def test_a_file_where_the_folder_belongs_is_refused(tmp_path, capsys):
+    (tmp_path / "afile").write_text("x")
+    assert cli(["sample", "gearbox-wearout", "-o", str(tmp_path / "afile" / "x.npy")]) == 2
+    assert "is not a folder" in capsys.readouterr().err
