@@ -440,3 +440,80 @@ def test_a_file_where_the_folder_belongs_is_refused(tmp_path, capsys):
     (tmp_path / "afile").write_text("x")
     assert cli(["sample", "gearbox-wearout", "-o", str(tmp_path / "afile" / "x.npy")]) == 2
     assert "is not a folder" in capsys.readouterr().err
+
+
+# ---- shards: a checksum per shard, verified on resume and on reading ------------------------------
+
+from lifedraw.engine.generate import generate, open_shards, read_manifest  # noqa: E402
+
+SHARD_N, SHARD_CHUNK = 12_000, 4_000
+
+
+@pytest.fixture(scope="module")
+def weibull_fit():
+    return engine.fit(lifedraw.family("weibull", shape=2.0, scale=100.0))
+
+
+def _shards(weibull_fit, out, seed=7):
+    generate(weibull_fit, SHARD_N, chunk=SHARD_CHUNK, seed=seed, out=out)
+    return np.concatenate([np.load(out / f"draws-{i:06d}.npy") for i in range(3)])
+
+
+def _flip_a_byte(path, at=-16):
+    blob = bytearray(path.read_bytes())
+    blob[at] ^= 0x01
+    path.write_bytes(bytes(blob))
+
+
+def test_the_manifest_records_a_checksum_per_shard(weibull_fit, tmp_path):
+    import hashlib
+    _shards(weibull_fit, tmp_path / "a")
+    checksums = read_manifest(tmp_path / "a")["checksums"]
+    assert sorted(checksums) == ["0", "1", "2"]
+    # Reference: hashlib's sha256 of the shard's float64 values as numpy stores them.
+    draws = np.load(tmp_path / "a" / "draws-000001.npy")
+    assert checksums["1"] == hashlib.sha256(draws.astype("<f8").tobytes()).hexdigest()
+
+
+def test_a_flipped_byte_stops_reading_naming_the_shard(weibull_fit, tmp_path):
+    out = tmp_path / "a"
+    _shards(weibull_fit, out)
+    _flip_a_byte(out / "draws-000001.npy")
+    x = open_shards(out)
+    with pytest.raises(ModelError, match="draws-000001.npy does not match the checksum"):
+        x.compute(scheduler="threads")
+
+
+def test_a_shard_copied_from_another_seed_is_caught(weibull_fit, tmp_path):
+    right = _shards(weibull_fit, tmp_path / "a", seed=7)
+    _shards(weibull_fit, tmp_path / "b", seed=8)
+    (tmp_path / "a" / "draws-000002.npy").write_bytes((tmp_path / "b" / "draws-000002.npy").read_bytes())
+    with pytest.raises(ModelError, match="draws-000002.npy"):
+        open_shards(tmp_path / "a").compute(scheduler="threads")
+    # Resuming rebuilds exactly that shard, after which the numbers are the original ones.
+    x = generate(weibull_fit, SHARD_N, chunk=SHARD_CHUNK, seed=7, out=tmp_path / "a")
+    np.testing.assert_array_equal(x.compute(scheduler="threads"), right)
+
+
+def test_nan_and_negative_values_in_a_shard_are_named(weibull_fit, tmp_path):
+    from lifedraw.engine.generate import load_shard
+    out = tmp_path / "a"
+    _shards(weibull_fit, out)
+    for value, words in ((np.nan, "nan"), (-3.0, "-3.0")):
+        bad = np.load(out / "draws-000000.npy")
+        bad[5] = value
+        np.save(tmp_path / "bad.npy", bad)
+        with pytest.raises(ModelError, match=f"bad.npy holds {words}"):
+            load_shard(str(tmp_path / "bad.npy"), None, (0.0, math.inf))
+
+
+@pytest.mark.parametrize("text", ["", "[]", "{\"format\": \"lifedraw-shards\", \"version\": 2, \"n\": \"x\"}",
+                                  "[" * 100_000])
+def test_a_malformed_manifest_is_a_model_error(weibull_fit, tmp_path, text):
+    out = tmp_path / "a"
+    _shards(weibull_fit, out)
+    (out / "manifest.json").write_text(text)
+    with pytest.raises(ModelError, match="manifest.json"):
+        open_shards(out)
+    with pytest.raises(ModelError, match="manifest.json"):
+        generate(weibull_fit, SHARD_N, chunk=SHARD_CHUNK, seed=7, out=out)
