@@ -185,7 +185,7 @@ def _table(data: Mapping, key: str, path: str = "") -> Mapping:
     return value
 
 
-def _nesting(value, limit: int) -> int:
+def nesting_depth(value, limit: int) -> int:
     """Depth of nested tables and lists, walked without recursion, stopping past ``limit``."""
     stack, deepest = [(value, 1)], 0
     while stack and deepest <= limit:
@@ -221,7 +221,7 @@ def _text(field: str, value, limit: int = 100_000) -> str:
 def scenario_from_dict(data: Mapping, name: str, path: Path | None = None) -> Scenario:
     if not isinstance(data, Mapping):
         raise ModelError("scenario", "must be a table")
-    if _nesting(data, MAX_NESTING) > MAX_NESTING:
+    if nesting_depth(data, MAX_NESTING) > MAX_NESTING:
         raise ModelError("scenario", f"nests tables or lists deeper than {MAX_NESTING} levels")
     _known_keys(data, _TOP_KEYS, "")
     for key in ("title", "model"):

@@ -26,6 +26,9 @@ def system_from_spec(spec: Mapping, path: str = "system", method: str = "auto",
     carry ``name``, ``copies`` (that many identical, independent parts), and a model
     part ``method`` and ``tolerance``.
     """
+    from .scenarios import MAX_NESTING, nesting_depth
+    if nesting_depth(spec, MAX_NESTING) > MAX_NESTING:
+        raise ModelError(path, f"nests tables deeper than {MAX_NESTING} levels")
     block = block_from_spec(spec, path, method, tolerance)
     if not isinstance(block, System):
         raise ModelError(f"{path}.kind", f"the top of a system must be one of {', '.join(STRUCTURES)}")

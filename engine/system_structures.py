@@ -20,6 +20,8 @@ from .system_parts import Block, as_array, as_block, scalar_or_array
 from .target import Target
 
 STRUCTURES = ("series", "parallel", "k_out_of_n", "standby")
+# Deepest nesting of structures (a real system has a handful of levels).
+MAX_DEPTH = 64
 
 RULES = {
     "series": "fails at the first part failure (NIST/SEMATECH e-Handbook 8.1.8.2)",
@@ -62,6 +64,11 @@ class System(Block):
             raise ModelError("parts", f"a {self.kind} system needs at least one part")
         self.parts: list[Block] = [as_block(p, f"parts[{i}]") for i, p in enumerate(parts)]
         self.name = str(name or "")
+        # Evaluation recurses through the structure: bound its depth with a clear message.
+        self.depth = 1 + max((getattr(p, "depth", 0) for p in self.parts), default=0)
+        if self.depth > MAX_DEPTH:
+            raise ModelError("parts", f"the structure nests {self.depth} levels deep; at most {MAX_DEPTH} "
+                                      "levels are supported (flatten equal structures into one)")
 
     # ---- drawing ---------------------------------------------------------------------
     def sample(self, n, rng=None) -> np.ndarray:

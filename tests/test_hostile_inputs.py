@@ -517,3 +517,22 @@ def test_a_malformed_manifest_is_a_model_error(weibull_fit, tmp_path, text):
         open_shards(out)
     with pytest.raises(ModelError, match="manifest.json"):
         generate(weibull_fit, SHARD_N, chunk=SHARD_CHUNK, seed=7, out=out)
+
+
+# ---- systems nested beyond reason ---------------------------------------------------------------
+
+def test_a_3000_deep_system_table_is_refused():
+    from lifedraw.engine.systems import system_from_spec
+    spec = {"kind": "family", "family": "exponential", "params": {"scale": 10.0}}
+    for _ in range(3000):
+        spec = {"kind": "series", "parts": [spec]}
+    with pytest.raises(ModelError, match="deeper than"):
+        system_from_spec(spec)
+
+
+def test_a_3000_deep_system_of_objects_is_refused():
+    from lifedraw.engine.systems import series
+    block = series([lifedraw.family("exponential", scale=10.0)])
+    with pytest.raises(ModelError, match="levels deep"):
+        for _ in range(3000):
+            block = series([block])
