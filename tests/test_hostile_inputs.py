@@ -536,3 +536,30 @@ def test_a_3000_deep_system_of_objects_is_refused():
     with pytest.raises(ModelError, match="levels deep"):
         for _ in range(3000):
             block = series([block])
+
+
+# ---- formulas: size and derivative bounded, flat sums are not "nested" ---------------------------
+
+from lifedraw.engine.formula import Formula  # noqa: E402
+
+
+def test_a_flat_sum_of_101_terms_is_not_called_nested():
+    # Reference: arithmetic; 101 * t at t = 2 is 202, and t - t - ... (300 terms) at 1 is -298.
+    f = Formula.parse("+".join(["t"] * 101))
+    assert f(np.array([2.0]))[0] == 202.0
+    assert Formula.parse("-".join(["t"] * 300))(np.array([1.0]))[0] == -298.0
+    assert Formula.parse("*".join(["t"] * 101))(np.array([1.01]))[0] == pytest.approx(1.01 ** 101, rel=1e-13)
+
+
+def test_real_nesting_beyond_the_limit_is_still_named():
+    with pytest.raises(ModelError, match="nests more than 100 levels"):
+        Formula.parse("sin(" * 150 + "t" + ")" * 150)
+
+
+def test_a_derivative_that_explodes_is_refused_quickly():
+    # 95 nested sinh: the second derivative would grow without bound; refused with the reason.
+    f = Formula.parse("sinh(" * 95 + "t" + ")" * 95)
+    with pytest.raises(ModelError, match="exact derivative of this formula grows"):
+        f.derivative().derivative()
+    with pytest.raises(ModelError, match="derivative"):
+        lifedraw.cdf_formula("1 - exp(-" + "sinh(" * 60 + "t" + ")" * 60 + ")")
