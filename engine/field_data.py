@@ -55,12 +55,14 @@ class HistogramTarget(Target):
         if neg.size:
             i = int(neg[0])
             raise ModelError("counts", f"bin {i + 1} has a negative count ({counts[i]:g})")
-        if counts.sum() <= 0:
+        if not counts.max() > 0:
             raise ModelError("counts", "all counts are 0; there is nothing to sample")
         self.edges = edges
         self.counts = counts
         self.smooth = bool(smooth)
-        self.probabilities = counts / counts.sum()
+        # Scaled by the largest count first, so counts near 1e308 do not overflow the sum.
+        scaled = counts / counts.max()
+        self.probabilities = scaled / scaled.sum()
         self.widths = np.diff(edges)
         self.cumulative = np.concatenate([[0.0], np.cumsum(self.probabilities)])
         self.cumulative[-1] = 1.0

@@ -417,7 +417,8 @@ def fit_family(name: str, times, censored=None, *, location: float | None = None
                                      f"at least {len(names)} failures are needed")
 
     start = _starting_values(fam, t, failed, loc)
-    if start is None:
+    no_spread = len(names) > 1 and np.ptp(t[failed]) == 0 and not np.any(t[~failed] > t[failed][0])
+    if start is None or no_spread:
         raise ModelError("times", "every failure is at the same age and no unit ran longer, so the "
                                   f"spread of the {fam.title} law cannot be estimated")
     if fam.name in ("weibull", "exponential", "smallest_extreme_value"):

@@ -13,7 +13,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .errors import ModelError, sample_size
+from .errors import ModelError, random_generator, sample_size
 from .methods.base import CHUNK, Sampler
 from .system_numerics import binomial_split, log_of, mean_by_integration, plain_spec, prod_others, working_counts
 from .system_parts import Block, as_array, as_block, scalar_or_array
@@ -77,7 +77,7 @@ class System(Block):
         Draws are made in blocks; within a block each part draws in the listed order.
         """
         n = sample_size("n", n)
-        rng = np.random.default_rng(rng)
+        rng = random_generator(rng)
         out = np.empty(n)
         for start in range(0, n, CHUNK):
             stop = min(start + CHUNK, n)

@@ -563,3 +563,70 @@ def test_a_derivative_that_explodes_is_refused_quickly():
         f.derivative().derivative()
     with pytest.raises(ModelError, match="derivative"):
         lifedraw.cdf_formula("1 - exp(-" + "sinh(" * 60 + "t" + ")" * 60 + ")")
+
+
+# ---- raw exceptions that are now ModelErrors -------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def weibull_sampler():
+    return engine.fit(lifedraw.family("weibull", shape=2.0, scale=10.0))
+
+
+@pytest.mark.parametrize("call, field", [
+    (lambda s: s.sample(10**400), "n"),
+    (lambda s: s.sample(float("inf")), "n"),
+    (lambda s: s.sample(10, -1), "seed"),
+    (lambda s: s.sample(10, "abc"), "seed"),
+    (lambda s: s.sample(10, 1.5), "seed"),
+    (lambda s: s.geometry(10**10), "n_points"),
+    (lambda s: s.geometry(0), "n_points"),
+    (lambda s: engine.fit(s.target, "inversion", foo=3), "foo"),
+    (lambda s: lifedraw.family("weibull", shape=10**400, scale=1.0), "shape"),
+    (lambda s: engine.fit_family("normal", [5.0, 5.0, 5.0]), "times"),
+    (lambda s: engine.series([s.target]).sample(10, -3), "seed"),
+], ids=["n 10**400", "n inf", "seed -1", "seed text", "seed 1.5", "geometry 1e10", "geometry 0",
+        "unknown fit option", "shape 10**400", "normal fit of equal times", "system seed -1"])
+def test_raw_exceptions_became_model_errors(weibull_sampler, call, field):
+    with pytest.raises(ModelError) as info:
+        call(weibull_sampler)
+    assert info.value.field == field
+
+
+# ---- silent wrong values, now refused or right -----------------------------------------------------
+
+@pytest.mark.parametrize("family, params, field", [
+    ("weibull", {"shape": 0.001, "scale": 1.0}, "shape"),
+    ("loglogistic", {"shape": 1e-300, "scale": 1.0}, "shape"),
+    ("lognormal", {"mu": 800.0, "sigma": 1.0}, "mu"),
+])
+def test_parameters_whose_draws_overflow_are_refused(family, params, field):
+    # Weibull shape 0.001 drew 13% infinities: its 1 - 2^-53 quantile, (53 ln 2)^1000, is beyond 1.8e308.
+    with pytest.raises(ModelError, match="beyond double precision") as info:
+        lifedraw.family(family, **params)
+    assert info.value.field == field
+
+
+def test_moderate_shapes_still_draw_finite_values():
+    x = engine.fit(lifedraw.family("weibull", shape=0.05, scale=1.0)).sample(10_000, 1)
+    assert np.all(np.isfinite(x))
+
+
+def test_gamma_mean_with_a_huge_shape():
+    # Gamma mean = shape * scale (closed form; scipy.stats.gamma(1e20).mean() agrees).
+    from scipy import stats
+    assert lifedraw.family("gamma", shape=1e20, scale=1.0).mean() == pytest.approx(stats.gamma(1e20).mean(), rel=1e-12)
+
+
+def test_histogram_counts_near_the_largest_double():
+    assert np.allclose(lifedraw.binned_counts([0, 1, 2], [1e308, 1e308]).probabilities, [0.5, 0.5])
+
+
+def test_a_cdf_with_a_narrow_dip_is_refused():
+    with pytest.raises(ModelError, match="decreases near t = 0.99"):
+        lifedraw.cdf_formula("1-exp(-t) - 0.05*exp(-((t-1)/0.001)**2)")
+
+
+def test_a_cdf_with_a_jump_is_named_not_blamed_on_the_tolerance():
+    with pytest.raises(ModelError, match="jumps by 0.516") as info:
+        engine.fit(lifedraw.cdf_formula("when(t<1, 0.3*t, 1-0.5*exp(-t))"))
+    assert "tolerance" not in str(info.value)
