@@ -58,10 +58,10 @@ def loads(blob: bytes):
 
 
 def save_sampler(sampler, path) -> Path:
-    path = Path(path)
-    with open(path, "wb") as fh:
-        _write(sampler, fh)
-    return path
+    """Write the sampler file atomically (a temporary file in the same folder, then a rename),
+    so an interrupted save never leaves a truncated file under the name."""
+    from .output_files import write_atomically
+    return write_atomically(Path(path), lambda fh: _write(sampler, fh), field="path")
 
 
 def _write(sampler, fh) -> None:

@@ -630,3 +630,10 @@ def test_a_cdf_with_a_jump_is_named_not_blamed_on_the_tolerance():
     with pytest.raises(ModelError, match="jumps by 0.516") as info:
         engine.fit(lifedraw.cdf_formula("when(t<1, 0.3*t, 1-0.5*exp(-t))"))
     assert "tolerance" not in str(info.value)
+
+
+def test_saving_a_sampler_into_a_missing_folder_is_a_model_error(weibull_sampler, tmp_path):
+    with pytest.raises(ModelError, match="could not write"):
+        weibull_sampler.save(tmp_path / "missing" / "s.lds")
+    weibull_sampler.save(tmp_path / "s.lds")
+    assert [p.name for p in tmp_path.iterdir()] == ["s.lds"]      # no temporary left behind
