@@ -13,7 +13,7 @@ from typing import Sequence
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from .errors import ModelError
+from .errors import ModelError, censoring_flags
 from .numeric import invert_monotone
 from .target import Target
 
@@ -55,12 +55,14 @@ class HistogramTarget(Target):
         if neg.size:
             i = int(neg[0])
             raise ModelError("counts", f"bin {i + 1} has a negative count ({counts[i]:g})")
-        if counts.sum() <= 0:
+        if not counts.max() > 0:
             raise ModelError("counts", "all counts are 0; there is nothing to sample")
         self.edges = edges
         self.counts = counts
         self.smooth = bool(smooth)
-        self.probabilities = counts / counts.sum()
+        # Scaled by the largest count first, so counts near 1e308 do not overflow the sum.
+        scaled = counts / counts.max()
+        self.probabilities = scaled / scaled.sum()
         self.widths = np.diff(edges)
         self.cumulative = np.concatenate([[0.0], np.cumsum(self.probabilities)])
         self.cumulative[-1] = 1.0
@@ -148,15 +150,8 @@ class ProductLimitTarget(Target):
         if neg.size:
             i = int(neg[0])
             raise ModelError("times", f"value {i + 1} is negative ({times[i]:g}); ages are >= 0")
-        if censored is None:
-            cens = np.zeros(times.size, dtype=bool)
-        else:
-            try:
-                cens = np.asarray(censored).astype(bool).ravel()
-            except (TypeError, ValueError):
-                raise ModelError("censored", "must be a list of true/false flags") from None
-            if cens.size != times.size:
-                raise ModelError("censored", f"{cens.size} flags for {times.size} times; give one per time")
+        # Text ("no"), NaN or 2 is not a flag: refused, not read as a suspension.
+        cens = censoring_flags("censored", censored, times.size)
         if cens.all():
             raise ModelError("censored", "every unit is a suspension; at least one failure is needed")
         self.times = times
@@ -165,10 +160,11 @@ class ProductLimitTarget(Target):
         t_sorted, c_sorted = times[order], cens[order]
         n = t_sorted.size
         at_risk = n - np.arange(n)
-        fail_times = np.unique(t_sorted[~c_sorted])
+        # Deaths d_i at each distinct failure time and units at risk n_i just before it,
+        # both from the sorted ages: O(n log n) in all (the sort), no pass per failure time.
+        fail_times, d = np.unique(t_sorted[~c_sorted], return_counts=True)
         # S(t_j) = prod over failure times t_i <= t_j of (1 - d_i / n_i)   (Kaplan-Meier 1958)
         first_index = np.searchsorted(t_sorted, fail_times, side="left")
-        d = np.array([np.sum((t_sorted == tj) & ~c_sorted) for tj in fail_times])
         n_risk = at_risk[first_index]
         survival = np.cumprod(1.0 - d / n_risk)
         self.failure_times = fail_times

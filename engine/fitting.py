@@ -11,7 +11,7 @@ import warnings
 import numpy as np
 from scipy import optimize, special
 
-from .errors import ModelError, finite_number
+from .errors import ModelError, censoring_flags, finite_number
 from .families import FAMILIES, Family, FamilyTarget
 
 __all__ = ["fit_family"]
@@ -94,24 +94,7 @@ def _check_times(times) -> np.ndarray:
 
 
 def _check_censored(censored, n: int) -> np.ndarray:
-    if censored is None:
-        return np.zeros(n, dtype=bool)
-    c = np.asarray(censored)
-    if c.ndim == 0:
-        c = c.reshape(1)
-    if c.ndim != 1 or c.size != n:
-        raise ModelError("censored", f"has {c.size} entries but times has {n}; give one flag per time")
-    if c.dtype != bool:
-        try:
-            numeric = c.astype(float)
-        except (TypeError, ValueError):
-            raise ModelError("censored", "must be true/false flags (true = suspension)") from None
-        bad = np.flatnonzero((numeric != 0) & (numeric != 1))
-        if bad.size:
-            i = int(bad[0])
-            raise ModelError("censored", f"value {c[i]!r} (row {i + 1}) is not a true/false flag")
-        c = numeric.astype(bool)
-    return c
+    return censoring_flags("censored", censored, n)
 
 
 def _fixed_location(fam: Family) -> str | None:
@@ -434,7 +417,8 @@ def fit_family(name: str, times, censored=None, *, location: float | None = None
                                      f"at least {len(names)} failures are needed")
 
     start = _starting_values(fam, t, failed, loc)
-    if start is None:
+    no_spread = len(names) > 1 and np.ptp(t[failed]) == 0 and not np.any(t[~failed] > t[failed][0])
+    if start is None or no_spread:
         raise ModelError("times", "every failure is at the same age and no unit ran longer, so the "
                                   f"spread of the {fam.title} law cannot be estimated")
     if fam.name in ("weibull", "exponential", "smallest_extreme_value"):

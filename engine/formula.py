@@ -24,6 +24,12 @@ from .errors import ModelError
 
 MAX_LENGTH = 2000
 MAX_DEPTH = 100
+# Flat sums or products longer than this are read as a balanced tree (see _Reader.chain).
+CHAIN_MIN = 16
+# Largest expression, counted as a tree (shared parts counted each time they occur): bounds
+# the work of compiling, printing and differentiating; an exact derivative may grow far
+# beyond its formula (95 nested sinh: megabytes).
+MAX_NODES = 20_000
 
 
 # --- The tree ----------------------------------------------------------------------------
@@ -87,6 +93,25 @@ def _children(node) -> tuple:
     if isinstance(node, Compare):
         return node.operands
     return ()
+
+
+def tree_size(node, limit: int = 10 * 20_000) -> int:
+    """Number of nodes counted as a tree (a shared subtree once per occurrence), computed
+    on the shared graph without recursion; stops early past ``limit``."""
+    sizes: dict[int, int] = {}
+    stack = [(node, False)]
+    while stack:
+        item, expanded = stack.pop()
+        key = id(item)
+        if key in sizes:
+            continue
+        kids = _children(item)
+        if expanded or not kids:
+            sizes[key] = min(1 + sum(sizes[id(k)] for k in kids), limit + 1)
+            continue
+        stack.append((item, True))
+        stack.extend((k, False) for k in kids if id(k) not in sizes)
+    return sizes[id(node)]
 
 
 def _walk(node):
@@ -311,6 +336,9 @@ class _Reader:
             arg = self.value(node.operand, depth)
             return Neg(arg) if isinstance(node.op, ast.USub) else arg
         if isinstance(node, ast.BinOp) and type(node.op) in _BIN_OPS:
+            chain = self.chain(node, depth)
+            if chain is not None:
+                return chain
             return Bin(_BIN_OPS[type(node.op)], self.value(node.left, depth),
                        self.value(node.right, depth))
         if isinstance(node, ast.Call):
@@ -323,6 +351,36 @@ class _Reader:
             self.fail(node, f"'{self.segment(node)}' is a condition; conditions are only "
                             "allowed as the first argument of when(...) or after 'if'")
         self.reject(node)
+
+    def chain(self, node, depth):
+        """A long flat sum (a + b - c + ...) or product (a * b * c ...) as a balanced tree.
+
+        Python parses ``a + b + c`` as ((a + b) + c): a flat sum of 101 terms would be 100
+        levels deep and be refused as deeply nested. A run of more than CHAIN_MIN terms is
+        read as the terms, each at the depth of the whole, and summed (or multiplied) in a
+        balanced tree, so depth counts real nesting only.
+        """
+        additive = (ast.Add, ast.Sub)
+        kinds = additive if isinstance(node.op, additive) else (ast.Mult,) if isinstance(node.op, ast.Mult) else None
+        if kinds is None:
+            return None
+        terms = []                        # (negated, ast node), right to left
+        current = node
+        while isinstance(current, ast.BinOp) and isinstance(current.op, kinds):
+            terms.append((isinstance(current.op, ast.Sub), current.right))
+            current = current.left
+        if len(terms) + 1 <= CHAIN_MIN:
+            return None
+        terms.append((False, current))
+        values = []
+        for negated, term in reversed(terms):
+            v = self.value(term, depth)
+            values.append(Neg(v) if negated else v)
+        op = "+" if kinds is additive else "*"
+        while len(values) > 1:
+            paired = [Bin(op, values[i], values[i + 1]) for i in range(0, len(values) - 1, 2)]
+            values = paired + ([values[-1]] if len(values) % 2 else [])
+        return values[0]
 
     def condition(self, node, depth):
         """A comparison, or and/or/not of comparisons: true/false per element."""
@@ -597,7 +655,11 @@ class Formula:
             raise ModelError(field, f"formula is {len(text)} characters long; the limit "
                                     f"is {MAX_LENGTH}")
         params = _check_params(params, field)
-        return cls(_Reader(text, params, field).read(), params, field, text)
+        tree = _Reader(text, params, field).read()
+        size = tree_size(tree)
+        if size > MAX_NODES:
+            raise ModelError(field, f"formula has {size:,} terms; the limit is {MAX_NODES:,}")
+        return cls(tree, params, field, text)
 
     def __call__(self, t, **param_values) -> np.ndarray:
         return self._run(t, self._values(param_values))
@@ -609,7 +671,16 @@ class Formula:
 
     def derivative(self) -> "Formula":
         """d/dt as a new Formula (exact, by rule; only trivial simplification)."""
-        return Formula(_derive(self._tree), self.params, self.field)
+        try:
+            tree = _derive(self._tree)
+        except RecursionError:
+            tree = None
+        size = tree_size(tree) if tree is not None else MAX_NODES + 1
+        if size > MAX_NODES:
+            raise ModelError(self.field, f"the exact derivative of this formula grows to more than "
+                                         f"{MAX_NODES:,} terms (deeply nested functions); simplify the "
+                                         "formula, or use a method that needs no derivative (inversion)")
+        return Formula(tree, self.params, self.field)
 
     def uses_t(self) -> bool:
         return _uses_t(self._tree)

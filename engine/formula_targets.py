@@ -13,7 +13,8 @@ import numpy as np
 
 from .errors import ModelError, finite_number
 from .formula import Formula
-from .numeric import CumulativeIntegral, SupportMap, invert_monotone, log_age_map, support_map
+from .numeric import (CumulativeIntegral, SupportMap, divergence_reason, invert_monotone, log_age_map,
+                      support_map)
 from .target import Target
 
 # Cumulative hazard beyond which R(t) = exp(-H) underflows in double precision.
@@ -234,6 +235,16 @@ class DensityTarget(_FormulaTarget):
         if not np.any(values > 0):
             raise ModelError("formula", "the density is 0 everywhere it was probed on the support; "
                                         "it has no area to normalise")
+        why = divergence_reason(lambda t: self._raw(t), lo, hi)
+        if why:
+            raise ModelError("formula", why)
+        peak = float(np.max(values))
+        if peak < 1e-280 or peak > 1e280:
+            # Near the ends of double precision the values lose their digits (1e-320 keeps
+            # three): refuse rather than normalise noise. The scale itself is irrelevant.
+            raise ModelError("formula", f"the density's values are of order {peak:.3g}, too near the limits of "
+                                        "double precision to compute with; multiply the formula by a constant "
+                                        "that brings them near 1 (a density is normalised, so the scale is free)")
         self._map = support_map(lo, hi, density=lambda t: self._raw(t) * np.ones_like(t))
         self.integral = CumulativeIntegral(
             lambda t: self._raw(t) * np.ones_like(t), self._map, field="formula",
@@ -413,12 +424,50 @@ class CdfTarget(_FormulaTarget):
         d = self.expression.derivative().bind(**self.params)
         self._d = lambda t: d(t) * np.ones_like(np.asarray(t, dtype=float))
         self._map = support_map(lo, hi, density=self._d)
+        self._check_dense()
         self.pole_at_lower = self._pole_check(self._d)
         d2 = self.expression.derivative().derivative().bind(**self.params)
         self._d2 = lambda t: d2(t) * np.ones_like(np.asarray(t, dtype=float))
 
     def _dpdf_exact(self):
         return self._d2
+
+    def _check_dense(self, points: int = 20001) -> None:
+        """A narrow dip or a jump slips between the coarse probes: look again on a dense grid
+        spread by the support map, with the exact derivative (F' >= 0) and bisection of big steps."""
+        y0, y1 = self._map.y_range
+        y = np.linspace(y0, y1, points)[1:-1]
+        t = np.unique(self._map.to_t(y))
+        t = t[np.isfinite(t)]
+        with np.errstate(all="ignore"):
+            F = np.asarray(self._raw(t), dtype=float) * np.ones_like(t)
+            d = np.asarray(self._d(t), dtype=float)
+        finite = np.isfinite(d)
+        peak = float(np.max(np.abs(d[finite]))) if finite.any() else 0.0
+        falling = np.flatnonzero(finite & (d < -1e-9 * peak))
+        if falling.size:
+            tb = t[falling[0]]
+            raise ModelError("formula", f"the CDF decreases near t = {tb:.6g} (its derivative is {d[falling[0]]:.3g} "
+                                        "there); a CDF never decreases")
+        # Steps of more than 1e-4 in F between neighbours: halve them; a continuous F's step
+        # shrinks with the interval, a jump's does not.
+        big = np.flatnonzero(np.diff(F) > 1e-4)
+        if big.size:
+            a, b = t[big], t[big + 1]
+            Fa, Fb = F[big], F[big + 1]
+            for _ in range(80):
+                m = 0.5 * (a + b)
+                with np.errstate(all="ignore"):
+                    Fm = np.asarray(self._raw(m), dtype=float) * np.ones_like(m)
+                left = (Fm - Fa) >= (Fb - Fm)          # keep the half holding the larger step
+                a, b = np.where(left, a, m), np.where(left, m, b)
+                Fa, Fb = np.where(left, Fa, Fm), np.where(left, Fm, Fb)
+            jump = np.flatnonzero((Fb - Fa) > 1e-6)
+            if jump.size:
+                i = int(jump[0])
+                raise ModelError("formula", f"the CDF jumps by {Fb[i] - Fa[i]:.4g} at t = {a[i]:.6g}; a CDF formula "
+                                            "must be continuous (a jump means a share of units failing at one "
+                                            "age, which a CDF formula cannot carry)")
 
     def _cdf(self, t):
         return np.clip(self._raw(t) * np.ones_like(t), 0.0, 1.0)

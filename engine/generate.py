@@ -35,7 +35,10 @@ from .target import Target
 DEFAULT_CHUNK = 10**7
 MANIFEST = "manifest.json"
 SHARD_FORMAT = "lifedraw-shards"
-SHARD_VERSION = 1
+# Version 2 records a sha256 checksum per shard in the manifest.
+SHARD_VERSION = 2
+# The manifest's checksums are rewritten at most this often while shards finish (and at the end).
+CHECKSUM_FLUSH_SECONDS = 2.0
 # Beyond this many chunks the task graph itself becomes the bottleneck; bigger chunks are the answer.
 MAX_CHUNKS = 1_000_000
 # Saved-sampler fields that vary between two set-ups of the same model and do not change a draw.
@@ -121,8 +124,9 @@ class _Shipped:
     process), so a chunk's numbers never depend on what ran before it in that process.
     """
 
-    def __init__(self, payload: bytes, kind: str, fingerprint: str):
+    def __init__(self, payload: bytes, kind: str, fingerprint: str, bounds=(-math.inf, math.inf)):
         self.payload, self.kind, self.fingerprint = payload, kind, fingerprint
+        self.bounds = (float(bounds[0]), float(bounds[1]))
         self._lock = threading.Lock()
         self._base = None
 
@@ -130,9 +134,10 @@ class _Shipped:
     def of(cls, obj) -> "_Shipped":
         if isinstance(obj, Sampler):
             blob = sampler_to_bytes(obj)
-            return cls(blob, "sampler", _blob_fingerprint(blob))
-        # Systems pickle through their components' saved files (engine.systems).
-        return cls(pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL), "system", obj.fingerprint())
+            return cls(blob, "sampler", _blob_fingerprint(blob), obj.target.support)
+        # Systems pickle through their components' saved files (engine.systems); lifetimes are >= 0.
+        return cls(pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL), "system", obj.fingerprint(),
+                   (0.0, math.inf))
 
     def fresh(self):
         with self._lock:
@@ -142,7 +147,7 @@ class _Shipped:
         return copy.deepcopy(self._base)
 
     def __reduce__(self):
-        return (_Shipped, (self.payload, self.kind, self.fingerprint))
+        return (_Shipped, (self.payload, self.kind, self.fingerprint, self.bounds))
 
     def __dask_tokenize__(self):
         return ("lifedraw-sampler", self.fingerprint)
@@ -275,7 +280,13 @@ def generate(sampler, n, chunk=DEFAULT_CHUNK, seed=0, client=None, out=None,
 
 
 def open_shards(out):
-    """The draws of a finished ``out`` folder as a lazy dask array (one chunk per shard)."""
+    """The draws of a finished ``out`` folder as a lazy dask array (one chunk per shard).
+
+    Every shard must be present, complete and recorded with its checksum in the manifest;
+    each shard's checksum (and that its values are finite and inside the model's support)
+    is verified when its chunk is read, so a damaged or swapped shard stops the computation
+    with a ModelError naming it instead of passing wrong numbers on.
+    """
     import dask
     import dask.array as da
 
@@ -284,14 +295,19 @@ def open_shards(out):
     if manifest is None:
         raise ModelError("out", f"{folder} has no {MANIFEST}; it is not a lifedraw shard folder")
     sizes = chunk_sizes(int(manifest["n"]), int(manifest["chunk"]))
-    missing = [i for i, size in enumerate(sizes) if not _shard_ok(_shard_path(folder, i, len(sizes)), size)]
+    checksums = manifest.get("checksums", {})
+    missing = [i for i, size in enumerate(sizes)
+               if str(i) not in checksums or not _shard_ok(_shard_path(folder, i, len(sizes)), size)]
     if missing:
-        raise ModelError("out", f"{len(missing)} of {len(sizes)} shards in {folder} are missing or incomplete "
-                                f"(first: {_shard_path(folder, missing[0], len(sizes)).name}); run generate "
-                                "again with the same settings to finish them")
+        raise ModelError("out", f"{len(missing)} of {len(sizes)} shards in {folder} are missing, incomplete or "
+                                f"not recorded as finished (first: {_shard_path(folder, missing[0], len(sizes)).name}); "
+                                "run generate again with the same settings to finish them")
+    bounds = tuple(manifest.get("bounds", (-math.inf, math.inf)))
     name = "lifedraw-shards-" + dask.base.tokenize(manifest["sampler"]["fingerprint"], manifest["n"],
-                                                   manifest["chunk"], manifest["seed"], str(folder.resolve()))
-    graph = {(name, i): (_load_shard, str(_shard_path(folder, i, len(sizes)))) for i in range(len(sizes))}
+                                                   manifest["chunk"], manifest["seed"], str(folder.resolve()),
+                                                   checksums)
+    graph = {(name, i): (load_shard, str(_shard_path(folder, i, len(sizes))), checksums[str(i)], bounds)
+             for i in range(len(sizes))}
     return da.Array(graph, name, chunks=(sizes,), dtype=np.float64)
 
 
@@ -324,8 +340,35 @@ def _shard_ok(path: Path, size: int) -> bool:
     return ok
 
 
-def _load_shard(path: str) -> np.ndarray:
-    return np.load(path, allow_pickle=False)
+def shard_digest(draws: np.ndarray) -> str:
+    """sha256 of a shard's float64 values (little-endian bytes), as recorded in the manifest."""
+    data = np.ascontiguousarray(draws, dtype="<f8")
+    return hashlib.sha256(memoryview(data).cast("B")).hexdigest()
+
+
+def check_draws(draws: np.ndarray, bounds, where: str) -> None:
+    """Refuse NaN, infinite or out-of-support values, naming the shard or chunk."""
+    lo, hi = bounds
+    bad = ~np.isfinite(draws) | (draws < lo) | (draws > hi)
+    if np.any(bad):
+        i = int(np.flatnonzero(bad)[0])
+        raise ModelError("out", f"{where} holds {float(draws[i])!r} at position {i}, outside the model's support "
+                                f"[{lo:g}, {hi:g}]; it is damaged (remove it and run generate again)")
+
+
+def load_shard(path: str, digest: str | None = None, bounds=(-math.inf, math.inf)) -> np.ndarray:
+    """One shard's draws, verified against its recorded checksum and the model's support."""
+    name = Path(path).name
+    try:
+        draws = np.load(path, allow_pickle=False)
+    except (OSError, ValueError) as err:
+        raise ModelError("out", f"shard {name} could not be read ({err})") from None
+    if digest is not None and shard_digest(draws) != digest:
+        raise ModelError("out", f"shard {name} does not match the checksum recorded in {MANIFEST}: it was "
+                                "changed or copied from another run; run generate again with the same "
+                                "settings to rebuild it")
+    check_draws(draws, bounds, f"shard {name}")
+    return draws
 
 
 def _write_shard(shipped: _Shipped, seed: int, index: int, size: int, path: str) -> dict:
@@ -334,6 +377,8 @@ def _write_shard(shipped: _Shipped, seed: int, index: int, size: int, path: str)
     start = time.perf_counter()
     draws = _draw_chunk(shipped, seed, index, size)
     final = Path(path)
+    check_draws(draws, shipped.bounds, f"chunk {index} (for {final.name})")
+    digest = shard_digest(draws)
     temp = final.with_name(f".{final.name}.{uuid.uuid4().hex}.tmp")
     try:
         with open(temp, "wb") as fh:
@@ -345,7 +390,7 @@ def _write_shard(shipped: _Shipped, seed: int, index: int, size: int, path: str)
         with contextlib.suppress(OSError):
             temp.unlink()
         raise ModelError("out", f"could not write {final}: {err}") from None
-    return {"index": index, "size": size, "seconds": time.perf_counter() - start}
+    return {"index": index, "size": size, "seconds": time.perf_counter() - start, "sha256": digest}
 
 
 def _versions() -> dict:
@@ -374,8 +419,11 @@ def _manifest(drawable, shipped: _Shipped, n: int, chunk: int, seed: int, sizes)
         "shards": f"draws-<index>.npy, index zero-padded to {_index_width(len(sizes))} digits",
         "dtype": "float64",
         "sampler": {"fingerprint": shipped.fingerprint, "kind": shipped.kind, **model},
+        "bounds": list(shipped.bounds),
         "versions": _versions(),
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        # shard index -> sha256 of its values, filled in as shards finish.
+        "checksums": {},
     })
 
 
@@ -384,9 +432,56 @@ def _read_manifest(folder: Path) -> dict | None:
     if not path.exists():
         return None
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError) as err:
-        raise ModelError("out", f"{path} could not be read ({err})") from None
+        if path.stat().st_size > 64 * 2**20:
+            raise ValueError("larger than any manifest (64 MiB)")
+        manifest = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError, RecursionError) as err:
+        raise ModelError("out", f"{path} could not be read ({type(err).__name__}: {str(err)[:200]})") from None
+    _check_manifest(manifest, path)
+    return manifest
+
+
+def _check_manifest(manifest, path) -> None:
+    """The fields every reader relies on, with their types; anything else is a damaged manifest."""
+    def bad(reason):
+        raise ModelError("out", f"{path} is malformed: {reason}; it was damaged or not written by lifedraw")
+
+    if not isinstance(manifest, dict):
+        bad("not a JSON object")
+    if manifest.get("format") != SHARD_FORMAT:
+        bad(f"format {str(manifest.get('format'))[:40]!r}")
+    if manifest.get("version") != SHARD_VERSION:
+        # Only the version is read here; _differences names it against this run's.
+        return
+    for key, low in (("n", 1), ("chunk", 1), ("seed", 0), ("chunks", 1)):
+        value = manifest.get(key)
+        if isinstance(value, bool) or not isinstance(value, int) or value < low:
+            bad(f"{key} is {str(value)[:40]!r}")
+    if manifest["chunks"] != math.ceil(manifest["n"] / manifest["chunk"]) or manifest["chunks"] > MAX_CHUNKS:
+        bad("n, chunk and chunks disagree")
+    sampler = manifest.get("sampler")
+    if not isinstance(sampler, dict) or not isinstance(sampler.get("fingerprint"), str):
+        bad("no sampler fingerprint")
+    checksums = manifest.get("checksums")
+    if not isinstance(checksums, dict) or not all(
+            isinstance(v, str) and len(v) == 64 and isinstance(k, str) and k.isdigit() for k, v in checksums.items()):
+        bad("the checksums are not a table of shard index -> sha256")
+    bounds = manifest.get("bounds")
+    if (not isinstance(bounds, list) or len(bounds) != 2
+            or not all(isinstance(b, (int, float)) or isinstance(b, dict) for b in bounds)):
+        bad("bounds is not [low, high]")
+    manifest["bounds"] = [float(b["float"]) if isinstance(b, dict) else float(b) for b in bounds]
+
+
+def _write_manifest(folder: Path, manifest: dict) -> None:
+    """Replace the manifest atomically (temporary file in the folder, then rename)."""
+    from .storage import jsonable
+    try:
+        temp = folder / f".{MANIFEST}.{uuid.uuid4().hex}.tmp"
+        temp.write_text(json.dumps(jsonable(manifest), indent=2, allow_nan=False), encoding="utf-8")
+        os.replace(temp, folder / MANIFEST)
+    except OSError as err:
+        raise ModelError("out", f"could not write {folder / MANIFEST}: {err}") from None
 
 
 def _differences(old: dict, new: dict) -> list[str]:
@@ -408,7 +503,8 @@ def _differences(old: dict, new: dict) -> list[str]:
     return out
 
 
-def _prepare_folder(folder: Path, manifest: dict) -> None:
+def _prepare_folder(folder: Path, manifest: dict) -> dict:
+    """The folder's manifest: the existing one when it describes this run, else a new one."""
     if folder.exists() and not folder.is_dir():
         raise ModelError("out", f"{folder} is a file, not a folder")
     old = _read_manifest(folder)
@@ -417,44 +513,71 @@ def _prepare_folder(folder: Path, manifest: dict) -> None:
         if differences:
             raise ModelError("out", f"{folder} holds shards of another run ({'; '.join(differences)}); "
                                     "mixing them would mix different numbers; choose a new folder")
+        manifest = old
     else:
         if folder.exists() and any(folder.iterdir()):
             raise ModelError("out", f"{folder} is not empty and has no {MANIFEST}, so it is not a lifedraw "
                                     "shard folder; choose a new or empty folder")
         try:
             folder.mkdir(parents=True, exist_ok=True)
-            temp = folder / f".{MANIFEST}.{uuid.uuid4().hex}.tmp"
-            temp.write_text(json.dumps(manifest, indent=2, allow_nan=False), encoding="utf-8")
-            os.replace(temp, folder / MANIFEST)
         except OSError as err:
             raise ModelError("out", f"could not create {folder}: {err}") from None
+        _write_manifest(folder, manifest)
+        manifest = _read_manifest(folder)        # as every later reader sees it
     # Temporary shards left by an interrupted run are never complete: drop them.
     for stale in folder.glob(".draws-*.tmp"):
         with contextlib.suppress(OSError):
             stale.unlink()
+    return manifest
+
+
+def _shard_verified(path: Path, size: int, digest: str | None, bounds) -> bool:
+    """A shard that can be kept on resume: complete, with a recorded checksum that matches.
+    A shard finished after the manifest's last update (no checksum yet) is redrawn."""
+    if digest is None or not _shard_ok(path, size):
+        return False
+    try:
+        load_shard(str(path), digest, bounds)
+    except ModelError:
+        return False
+    return True
 
 
 def _write_shards(drawable, shipped, n, chunk, seed, sizes, folder: Path, client, progress):
-    manifest = _manifest(drawable, shipped, n, chunk, seed, sizes)
-    _prepare_folder(folder, manifest)
+    manifest = _prepare_folder(folder, _manifest(drawable, shipped, n, chunk, seed, sizes))
     total = len(sizes)
+    checksums = manifest["checksums"]
+    bounds = tuple(manifest["bounds"])
+    # Resume: keep only shards whose values match their recorded checksum; a damaged,
+    # swapped or unrecorded shard is drawn again (its numbers are fixed by seed and index).
     todo = [(i, size, str(_shard_path(folder, i, total))) for i, size in enumerate(sizes)
-            if not _shard_ok(_shard_path(folder, i, total), size)]
-    state = {"done": total - len(todo), "drawn": 0}
+            if not _shard_verified(_shard_path(folder, i, total), size, checksums.get(str(i)), bounds)]
+    for i, _, _ in todo:
+        checksums.pop(str(i), None)
+    state = {"done": total - len(todo), "drawn": 0, "flushed": time.monotonic(), "dirty": bool(todo)}
 
     def finished(result):
+        checksums[str(result["index"])] = result["sha256"]
         state["done"] += 1
         state["drawn"] += result["size"]
+        if time.monotonic() - state["flushed"] > CHECKSUM_FLUSH_SECONDS:
+            _write_manifest(folder, manifest)
+            state["flushed"] = time.monotonic()
         if progress is not None:
             progress(state["done"], total, state["drawn"])
 
     if progress is not None:
         progress(state["done"], total, 0)
-    if todo:
-        if client is None:
-            _run_threads(shipped, seed, todo, _local_threads(), finished)
-        else:
-            _run_cluster(client, shipped, seed, todo, finished)
+    try:
+        if todo:
+            if client is None:
+                _run_threads(shipped, seed, todo, _local_threads(), finished)
+            else:
+                _run_cluster(client, shipped, seed, todo, finished)
+    finally:
+        # Also on an interruption: every shard finished so far keeps its checksum.
+        if state["dirty"]:
+            _write_manifest(folder, manifest)
     try:
         return open_shards(folder)
     except ModelError as err:

@@ -42,15 +42,21 @@ def pack_pinv_table(x0, width, coef, du):
 
 def _pinv_eval_py(u, guide, u_start, table, out):
     n = u.shape[0]
-    m = u_start.shape[0]
+    # Every index is clamped into the tables, so even a damaged table cannot make the
+    # compiled loop read outside its memory (loading refuses such tables first).
+    m = min(u_start.shape[0], table.shape[0])
     g_size = guide.shape[0]
     top = table.shape[1] - 2          # column of the highest coefficient
     for i in range(n):
         ui = u[i]
-        g = int(ui * g_size)
+        g = int(ui * g_size) if ui > 0.0 else 0
         if g >= g_size:
             g = g_size - 1
         k = guide[g]
+        if k < 0:
+            k = 0
+        if k > m - 1:
+            k = m - 1
         # Guide-table search (Chen & Asau 1974): rarely more than the first look.
         while k < m - 1 and u_start[k + 1] <= ui:
             k += 1
@@ -78,10 +84,11 @@ def pinv_eval(u, guide, u_start, table, out=None, *, use_jit=True):
 
 def _pinv_eval_numpy(u, guide, u_start, table, out):
     g_size = guide.shape[0]
-    m = u_start.shape[0]
+    m = min(u_start.shape[0], table.shape[0])
     top = table.shape[1] - 2
-    g = np.clip((u * g_size).astype(np.int64), 0, g_size - 1)
-    k = guide[g].astype(np.int64)
+    with np.errstate(invalid="ignore"):
+        g = np.clip(np.where(u > 0.0, u * g_size, 0.0), 0, g_size - 1).astype(np.int64)
+    k = np.clip(guide[g].astype(np.int64), 0, m - 1)
     last = m - 1
     while True:
         step = (k < last) & (u_start[np.minimum(k + 1, last)] <= u)
@@ -153,16 +160,21 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, cou
     The arithmetic follows Rejection._propose term by term.
     """
     n = u.shape[0]
-    top = cum.shape[0] - 1
+    top = min(cum.shape[0], table.shape[0]) - 1
     g_size = guide.shape[0]
     counts[:] = 0
     for i in range(n):
         uA = u[i] * total
         # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
-        g = int(u[i] * g_size)
+        # Indices are clamped into the tables: a damaged table cannot reach outside them.
+        g = int(u[i] * g_size) if u[i] > 0.0 else 0
         if g >= g_size:
             g = g_size - 1
         k = guide[g]
+        if k < 0:
+            k = 0
+        if k > top:
+            k = top
         while k < top and cum[k] <= uA:
             k += 1
         if k > last:

@@ -169,6 +169,38 @@ def lower_end_power(g: Callable, lo: float, width: float) -> float:
     return float(np.clip(1.0 / (alpha + 1.0), 1.0, 50.0))
 
 
+def divergence_reason(g: Callable, lo: float, hi: float) -> str | None:
+    """Why the integral of g >= 0 over (lo, hi) is infinite, or None if no sign of it.
+
+    A quadrature on a compressed map returns a finite number for any integrand, so the
+    ends are examined directly. At an infinite end the mass per unit of log-age,
+    |t| g(t), must tend to 0 for the integral to converge (comparison with the
+    integral of 1/t; e.g. Apostol, Calculus I, 10.21); if it is still not falling
+    across t = 1e240, 1e270, 1e300 the area is infinite. At a finite end, a pole
+    g ~ (t - lo)**alpha with alpha <= -1 is not integrable (same comparison).
+    """
+    far = np.array([1e240, 1e270, 1e300])
+    ends = []
+    if np.isinf(hi):
+        ends.append(("upper", (0.0 if np.isinf(lo) else lo) + far))
+    if np.isinf(lo):
+        ends.append(("lower", (0.0 if np.isinf(hi) else hi) - far))
+    for side, t in ends:
+        with np.errstate(all="ignore"):
+            w = np.abs(t) * np.asarray(g(t), dtype=float) * np.ones_like(t)
+        if np.all(np.isfinite(w)) and w[-1] > 0 and w[2] >= 0.999 * w[1] and w[1] >= 0.999 * w[0]:
+            return (f"the area under it is infinite: toward the {side} end (t = {t[-1]:.3g}) the density "
+                    f"does not fall faster than 1/t (t·f(t) = {w[-1]:.3g} and not decreasing), so no "
+                    "normalising constant exists; give the formula a decaying tail or a finite support")
+    if np.isfinite(lo):
+        width = (hi - lo) if np.isfinite(hi) else 1.0
+        alpha = lower_end_exponent(g, lo, width)
+        if alpha is not None and alpha <= -1.0 + 1e-6:
+            return (f"the area under it is infinite: near the lower end t = {lo:g} it grows like "
+                    f"(t - {lo:g})^{alpha:.3g}, a pole that is not integrable (the exponent must exceed -1)")
+    return None
+
+
 def support_map(lo: float, hi: float, density: Callable | None = None) -> SupportMap:
     """Choose a map for (lo, hi); for infinite ends, probe ``density`` for its scale.
 

@@ -3,6 +3,8 @@ method from the target's properties and says why in ``sampler.reason``.
 """
 from __future__ import annotations
 
+import inspect
+
 import time
 
 import numpy as np
@@ -75,7 +77,13 @@ def fit(target: Target, method: str = "auto", tolerance: float = 1e-10, **option
         return _auto(target, tolerance)
     if name not in METHODS:
         raise ModelError("method", f"unknown method {method!r}; known: {', '.join(method_names())}")
-    sampler = METHODS[name].build(target, tolerance, **options)
+    cls = METHODS[name]
+    accepted = [k for k in inspect.signature(cls.__init__).parameters if k not in ("self", "target", "tolerance")]
+    for key in options:
+        if key not in accepted:
+            raise ModelError(str(key), f"not an option of the {name} method "
+                                       f"(its options: {', '.join(accepted) or 'none'})")
+    sampler = cls.build(target, tolerance, **options)
     sampler.reason = f"{name} was requested"
     return sampler
 

@@ -6,6 +6,7 @@ Model values may name a parameter (a string) instead of giving a number.
 """
 from __future__ import annotations
 
+import difflib
 import math
 import os
 import tomllib
@@ -17,6 +18,7 @@ from typing import Any, Mapping
 import tomli_w
 
 from .errors import ModelError, finite_number
+from .output_files import check_destination, write_atomically
 from .specs import target_from_spec
 from .target import Target
 
@@ -105,10 +107,10 @@ class Scenario:
         header = f"# lifedraw scenario: {self.title}\n"
         return header + tomli_w.dumps(_toml_safe(self.to_dict()))
 
-    def save(self, path) -> Path:
-        path = Path(path)
-        path.write_text(self.to_toml(), encoding="utf-8")
-        return path
+    def save(self, path, *, overwrite: bool = False) -> Path:
+        """Write the scenario as TOML, atomically; an existing file is replaced only with ``overwrite``."""
+        path = check_destination(path, force=overwrite, suffixes=(".toml",), field="path")
+        return write_atomically(path, self.to_toml(), field="path")
 
 
 def _toml_safe(value):
@@ -159,27 +161,93 @@ def _parameter(name: str, raw, path: str) -> Parameter:
     return Parameter(name, v, low, high, step, str(raw.get("label", "")))
 
 
+# The keys a scenario file may use; any other key is named with the closest known one.
+_TOP_KEYS = ("title", "story", "time_unit", "run", "parameters", "model", "system")
+_RUN_KEYS = ("method", "seed", "sample_size", "mission_times", "tolerance")
+# Deeper than this, a scenario table is not a reliability model but a denial of service.
+MAX_NESTING = 64
+# Bigger than this, a scenario file is data, not a scenario (field data goes in CSV).
+MAX_SCENARIO_BYTES = 16 * 2**20
+
+
+def _known_keys(table: Mapping, known, path: str) -> None:
+    for key in table:
+        if key not in known:
+            close = difflib.get_close_matches(str(key), known, n=1, cutoff=0.6)
+            hint = f"; did you mean {close[0]!r}?" if close else f"; known keys: {', '.join(known)}"
+            raise ModelError(f"{path}{key}", f"is not a key lifedraw knows{hint}")
+
+
+def _table(data: Mapping, key: str, path: str = "") -> Mapping:
+    value = data.get(key, {})
+    if not isinstance(value, Mapping):
+        raise ModelError(f"{path}{key}", f"must be a table, got {type(value).__name__}")
+    return value
+
+
+def nesting_depth(value, limit: int) -> int:
+    """Depth of nested tables and lists, walked without recursion, stopping past ``limit``."""
+    stack, deepest = [(value, 1)], 0
+    while stack and deepest <= limit:
+        item, depth = stack.pop()
+        deepest = max(deepest, depth)
+        if isinstance(item, Mapping):
+            stack.extend((v, depth + 1) for v in item.values())
+        elif isinstance(item, (list, tuple)):
+            stack.extend((v, depth + 1) for v in item)
+    return deepest
+
+
+def _whole(field: str, value, low: int, high: int) -> int:
+    """A whole number in [low, high]: 1.5, "7", true and inf are refused, not rounded."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ModelError(field, f"must be a whole number, got {value!r}")
+    if isinstance(value, float) and not (math.isfinite(value) and value == math.floor(value)):
+        raise ModelError(field, f"must be a whole number, got {value!r}")
+    value = int(value)
+    if not low <= value <= high:
+        raise ModelError(field, f"must lie between {low} and {high:.3g}, got {value}")
+    return value
+
+
+def _text(field: str, value, limit: int = 100_000) -> str:
+    if not isinstance(value, str):
+        raise ModelError(field, f"must be text, got {type(value).__name__}")
+    if len(value) > limit:
+        raise ModelError(field, f"is {len(value):,} characters long; the limit is {limit:,}")
+    return value
+
+
 def scenario_from_dict(data: Mapping, name: str, path: Path | None = None) -> Scenario:
     if not isinstance(data, Mapping):
         raise ModelError("scenario", "must be a table")
+    if nesting_depth(data, MAX_NESTING) > MAX_NESTING:
+        raise ModelError("scenario", f"nests tables or lists deeper than {MAX_NESTING} levels")
+    _known_keys(data, _TOP_KEYS, "")
     for key in ("title", "model"):
         if key not in data:
             raise ModelError(key, "missing from the scenario file")
-    run = data.get("run", {})
-    params = {k: _parameter(k, v, f"parameters.{k}") for k, v in data.get("parameters", {}).items()}
-    try:
-        seed = int(run.get("seed", 20261201))
-        size = int(run.get("sample_size", 100_000))
-    except (TypeError, ValueError):
-        raise ModelError("run", "seed and sample_size must be whole numbers") from None
-    if size <= 0:
-        raise ModelError("run.sample_size", f"must be > 0, got {size}")
-    missions = tuple(finite_number("run.mission_times", m, nonnegative=True) for m in run.get("mission_times", []))
-    sc = Scenario(name=name, title=str(data["title"]), story=str(data.get("story", "")).strip(),
-                  model=dict(data["model"]), parameters=params,
-                  time_unit=str(data.get("time_unit", "hours")), method=str(run.get("method", "auto")),
+    run = _table(data, "run")
+    _known_keys(run, _RUN_KEYS, "run.")
+    params = {k: _parameter(k, v, f"parameters.{k}") for k, v in _table(data, "parameters").items()}
+    model = _table(data, "model")
+    seed = _whole("run.seed", run.get("seed", 20261201), 0, 2**63 - 1)
+    size = _whole("run.sample_size", run.get("sample_size", 100_000), 1, 10**15)
+    missions = run.get("mission_times", [])
+    if not isinstance(missions, list):
+        raise ModelError("run.mission_times", "must be a list of ages")
+    missions = tuple(finite_number("run.mission_times", m, nonnegative=True) for m in missions)
+    system = data.get("system")
+    if system is not None and not isinstance(system, Mapping):
+        raise ModelError("system", f"must be a table, got {type(system).__name__}")
+    sc = Scenario(name=name, title=_text("title", data["title"], 1000),
+                  story=_text("story", data.get("story", "")).strip(),
+                  model=dict(model), parameters=params,
+                  time_unit=_text("time_unit", data.get("time_unit", "hours"), 100),
+                  method=_text("run.method", run.get("method", "auto"), 100),
                   seed=seed, sample_size=size, mission_times=missions,
-                  tolerance=float(run.get("tolerance", 1e-10)), system=data.get("system"), path=path)
+                  tolerance=finite_number("run.tolerance", run.get("tolerance", 1e-10), positive=True),
+                  system=system, path=path)
     sc.target()  # fail early, with the field named, if the model is invalid
     return sc
 
@@ -215,18 +283,38 @@ def load_scenario(name_or_path) -> Scenario:
         source, name = files[str(name_or_path)], str(name_or_path)
         path = source if isinstance(source, Path) else None
     try:
-        data = tomllib.loads(source.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as err:
-        raise ModelError("scenario", f"{source.name} is not valid TOML: {err}") from None
-    return scenario_from_dict(data, name, path)
+        raw = source.read_bytes()
+    except OSError as err:
+        raise ModelError("scenario", f"{source.name} could not be read: {err.strerror or err}") from None
+    return scenario_from_dict(_parse_toml(raw, source.name), name, path)
 
 
-def scenario_from_toml(text: str, name: str = "uploaded") -> Scenario:
+def _parse_toml(raw, label: str) -> dict:
+    """TOML from UTF-8 bytes or text; other encodings, binary files and runaway nesting are refused."""
+    if len(raw) > MAX_SCENARIO_BYTES:
+        raise ModelError("scenario", f"{label} is {len(raw) / 2**20:.1f} MiB; a scenario file is at most "
+                                     f"{MAX_SCENARIO_BYTES // 2**20} MiB (field data belongs in a CSV file)")
+    if isinstance(raw, bytes):
+        if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):
+            raise ModelError("scenario", f"{label} is UTF-16 text; save it as UTF-8")
+        try:
+            raw = raw.decode("utf-8")
+        except UnicodeDecodeError as err:
+            raise ModelError("scenario", f"{label} is not UTF-8 text (byte {err.start}); "
+                                         "save it as UTF-8") from None
+    if "\x00" in raw:
+        raise ModelError("scenario", f"{label} holds a NUL character: a binary file, not TOML")
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(raw.removeprefix("\ufeff"))
     except tomllib.TOMLDecodeError as err:
-        raise ModelError("scenario", f"not valid TOML: {err}") from None
-    return scenario_from_dict(data, name)
+        raise ModelError("scenario", f"{label} is not valid TOML: {err}") from None
+    except RecursionError:
+        raise ModelError("scenario", f"{label} nests tables or lists too deeply") from None
+
+
+def scenario_from_toml(text, name: str = "uploaded") -> Scenario:
+    """A scenario from TOML text (or UTF-8 bytes), e.g. an upload."""
+    return scenario_from_dict(_parse_toml(text, "the scenario"), name)
 
 
 def scenario_names() -> list[str]:

@@ -68,4 +68,9 @@ def target_from_spec(spec: Mapping[str, Any], path: str = "model") -> Target:
         if err.field.startswith(path):
             raise
         raise ModelError(f"{path}.{err.field}", err.reason) from None
+    except RecursionError:
+        raise ModelError(path, "nests models too deeply") from None
+    except (TypeError, ValueError, AttributeError, KeyError, IndexError, OverflowError) as err:
+        # A value of the wrong type somewhere in the table (a list where a table belongs, ...).
+        raise ModelError(path, f"is malformed ({type(err).__name__}: {str(err)[:200]})") from None
     raise ModelError(f"{path}.kind", f"unknown kind {kind!r}; known: {', '.join(KINDS)}")

@@ -371,7 +371,7 @@ def test_zero_time_is_rejected_with_its_row():
 
 
 def test_censored_flags_must_match_the_times():
-    raises("censored", "has 2 entries but times has 3", "weibull", [5.0, 6.0, 7.0], [True, False])
+    raises("censored", "2 flags for 3 times", "weibull", [5.0, 6.0, 7.0], [True, False])
 
 
 def test_all_suspensions_are_rejected():

@@ -11,7 +11,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ..errors import ModelError, sample_size
+from ..errors import ModelError, random_generator, sample_size
 from ..target import Target
 
 # Draws are produced in chunks of this many values: large enough to amortise
@@ -19,6 +19,24 @@ from ..target import Target
 CHUNK = 1 << 16
 
 COUNTER_NAMES = ("samples", "uniforms", "density_evals", "candidates", "accepted", "squeezed", "log_evals")
+
+
+# A picture needs at most this many points; more only costs memory.
+MAX_GEOMETRY_POINTS = 100_000
+
+
+def _checked_geometry(geometry):
+    import functools
+
+    @functools.wraps(geometry)
+    def checked(self, n_points: int = 400, rng=0):
+        if isinstance(n_points, bool) or not isinstance(n_points, (int, np.integer)) or not (
+                1 <= n_points <= MAX_GEOMETRY_POINTS):
+            raise ModelError("n_points", f"must be a whole number from 1 to {MAX_GEOMETRY_POINTS:,} "
+                                         f"(points of a picture), got {str(n_points)[:40]}")
+        random_generator(rng, "rng")          # checked here; the method turns it into a Generator
+        return geometry(self, int(n_points), rng)
+    return checked
 
 
 def check_tolerance(tolerance) -> float:
@@ -55,6 +73,12 @@ class Sampler:
     """
 
     method: ClassVar[str] = "abstract"
+
+    def __init_subclass__(cls, **kwargs):
+        # Every method's geometry() gets the same check of its size argument, in one place.
+        super().__init_subclass__(**kwargs)
+        if "geometry" in cls.__dict__:
+            cls.geometry = _checked_geometry(cls.__dict__["geometry"])
     #: A one-line citation of the published method.
     reference: ClassVar[str] = ""
 
@@ -93,7 +117,7 @@ class Sampler:
         """
         out = check_output_buffer(out, n) if out is not None else np.empty(sample_size("n", n))
         n = out.size
-        rng = np.random.default_rng(rng)
+        rng = random_generator(rng)
         for start in range(0, n, CHUNK):
             self._fill(out[start:start + CHUNK], rng)
         self.counts["samples"] += n

@@ -11,7 +11,8 @@ from typing import Any
 import numpy as np
 
 from ..composite import MixtureTarget
-from ..errors import MethodNotApplicable
+from .. import table_checks
+from ..errors import MethodNotApplicable, ModelError
 from ..target import Target
 from .base import COUNTER_NAMES, Sampler
 from .table import alias_table
@@ -89,11 +90,21 @@ class Composition(Sampler):
 
     def _restore(self, meta, tables):
         from ..storage import restore_sampler
-        self.keep, self.alias = np.asarray(tables["keep"]), np.asarray(tables["alias"])
+        k = len(self.target.components)
+        self.keep = table_checks.table(tables, "keep", length=k, low=0.0, high=1.0)
+        # An alias outside the components would leave draws unwritten: refused here.
+        self.alias = table_checks.table(tables, "alias", kind="int", length=k, low=0, high=k - 1)
+        parts = meta.get("parts") if isinstance(meta, dict) else None
+        if not isinstance(parts, list) or len(parts) != k or not all(isinstance(p, dict) for p in parts):
+            raise ModelError("path", f"the sampler file's 'parts' metadata does not describe {k} components; "
+                                     "the file is damaged")
         self.parts = []
-        for j, (info, component) in enumerate(zip(meta["parts"], self.target.components)):
+        for j, (info, component) in enumerate(zip(parts, self.target.components)):
             prefix = f"part{j}."
-            own = {k[len(prefix):]: v for k, v in tables.items() if k.startswith(prefix)}
-            self.parts.append(restore_sampler(info["class"], component, self.tolerance, info["meta"], own,
-                                              setup_seconds=info["setup_seconds"], reason=info["reason"]))
-        self.extra_stats.update({"components": meta["components"], "u_error": meta["u_error"]})
+            own = {k_[len(prefix):]: v for k_, v in tables.items() if k_.startswith(prefix)}
+            self.parts.append(restore_sampler(
+                str(info.get("class")), component, self.tolerance, table_checks.mapping(info, "meta"), own,
+                setup_seconds=table_checks.number(info, "setup_seconds", low=0.0),
+                reason=str(info.get("reason", ""))))
+        self.extra_stats.update({"components": meta.get("components"),
+                                 "u_error": table_checks.number(meta, "u_error", low=0.0, optional=True)})

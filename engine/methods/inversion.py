@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import kernels
+from .. import kernels, table_checks
 from ..check import measure_u_error
 from ..errors import MethodNotApplicable
 from ..numeric import bracket_grid
@@ -70,7 +70,7 @@ class Inversion(Sampler):
 
     def _restore(self, meta, tables):
         self.extra_stats["variant"] = "closed form"
-        self.extra_stats["u_error"] = meta["u_error"]
+        self.extra_stats["u_error"] = table_checks.number(meta, "u_error", low=0.0, optional=True)
 
 
 class NumericalInversion(Inversion):
@@ -289,13 +289,20 @@ class NumericalInversion(Inversion):
                 "stats": {k: self.extra_stats[k] for k in ("pieces", "order", "u_error")}}
 
     def _restore(self, meta, tables):
-        for key in ("x0", "width", "coef", "du", "u_start", "guide"):
-            setattr(self, key, np.asarray(tables[key]))
-        self.guide = self.guide.astype(np.int64)
+        # Every table is checked against the others before the kernel indexes with it.
+        check = table_checks.table
+        self.x0 = check(tables, "x0", nondecreasing=True)
+        m = self.x0.size
+        self.width = check(tables, "width", length=m, low=0.0)
+        self.coef = check(tables, "coef", ndim=2, length=m, columns=ORDER + 1)
+        # Cumulative sums may pass 1 by rounding; a little room, no more.
+        self.du = check(tables, "du", length=m, low=0.0, high=1.0 + 1e-9)
+        self.u_start = check(tables, "u_start", length=m, low=0.0, high=1.0 + 1e-9, nondecreasing=True)
+        self.guide = check(tables, "guide", kind="int", low=0, high=m - 1)
         self._derive()
-        self.u_end = meta["u_end"]
-        self.tail_cut = meta["tail_cut"]
-        self.extra_stats.update({"variant": "piecewise polynomial", **meta["stats"]})
+        self.u_end = table_checks.number(meta, "u_end", low=0.0, high=1.0 + 1e-9)
+        self.tail_cut = table_checks.number(meta, "tail_cut", low=0.0, high=1.0)
+        self.extra_stats.update({"variant": "piecewise polynomial", **table_checks.mapping(meta, "stats")})
 
 
 def _split(xa, xb, parts):

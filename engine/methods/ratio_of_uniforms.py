@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 from scipy import optimize
 
+from .. import table_checks
 from ..errors import MethodNotApplicable, ModelError
 from ..target import Target
 from .base import Sampler
@@ -598,5 +599,29 @@ class RatioOfUniforms(Sampler):
         return {"envelope_request": self.envelope_request, "state": self.state}
 
     def _restore(self, meta, tables):
-        self.envelope_request = meta["envelope_request"]
-        self._install(meta["state"], tables)
+        # Every number and table is checked before the envelope is rebuilt from them.
+        self.envelope_request = table_checks.choice(meta, "envelope_request", ("auto", "rectangle", "polygon"))
+        state = dict(table_checks.mapping(meta, "state"))
+        number = table_checks.number
+        state["centre"] = number(state, "centre")
+        state["u_plus"] = number(state, "u_plus", low=np.finfo(float).tiny)
+        state["v_minus"] = number(state, "v_minus", high=0.0)
+        state["v_plus"] = number(state, "v_plus", low=0.0)
+        if not state["v_plus"] > state["v_minus"]:
+            raise ModelError("path", "the sampler file's envelope has v_plus <= v_minus; the file is damaged")
+        table_checks.choice(state, "envelope", ("rectangle", "polygon"))
+        state.setdefault("squeeze", "")
+        state.setdefault("rectangle_check", "")
+        check = table_checks.table
+        xc = check(tables, "construction_x", nondecreasing=True, allow_empty=True)
+        n = xc.size
+        clean = {"construction_x": xc,
+                 "points": check(tables, "points", ndim=2, length=n, columns=2, allow_empty=True),
+                 "chords": check(tables, "chords", ndim=2, length=max(n - 1, 0), columns=3, allow_empty=True),
+                 "polygon": check(tables, "polygon", ndim=2, columns=2,
+                                  allow_empty=state["envelope"] != "polygon")}
+        if state["envelope"] == "polygon" and (n < 2 or clean["polygon"].shape[0] < 3):
+            raise ModelError("path", "the sampler file's polygon envelope has too few corners; the file is damaged")
+        self._install(state, clean)
+        if not (0.0 < self.expected_acceptance <= 1.0) or not np.all(np.isfinite(getattr(self, "_alias_prob", 0.0))):
+            raise ModelError("path", "the sampler file's envelope has no area; the file is damaged")

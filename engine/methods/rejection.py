@@ -28,7 +28,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import kernels
+from .. import kernels, table_checks
 from ..errors import MethodNotApplicable, ModelError, finite_number, sample_size
 from ..target import Target
 from .base import Sampler, check_output_buffer
@@ -926,11 +926,37 @@ class Rejection(Sampler):
                 "cL": self.cL, "cR": self.cR, "FL": self.FL, "SR": self.SR, "stats": dict(self.extra_stats)}
 
     def _restore(self, meta, tables):
-        for k in self._TABLES:
-            setattr(self, k, np.asarray(tables[k]))
-        self.acceptance = meta["acceptance"]
-        self.max_points = meta["max_points"]
-        self.time_budget = meta["time_budget"]
-        self.cL, self.cR, self.FL, self.SR = meta["cL"], meta["cR"], meta["FL"], meta["SR"]
+        # Every table is checked before the drawing table is derived from it: a negative
+        # or NaN area, or segments out of order, would make draws loop or go wrong.
+        check = table_checks.table
+        self.seg_x0 = check(tables, "seg_x0", nondecreasing=True)
+        n = self.seg_x0.size
+        self.seg_x1 = check(tables, "seg_x1", length=n)
+        if np.any(self.seg_x1 < self.seg_x0):
+            raise ModelError("path", "the sampler file's segments end before they start; the file is damaged")
+        self.seg_xa = check(tables, "seg_xa", length=n)
+        self.seg_ya = check(tables, "seg_ya", length=n)
+        self.seg_slope = check(tables, "seg_slope", length=n)
+        self.seg_qa = check(tables, "seg_qa", length=n, finite=False, high=np.inf)
+        self.seg_qslope = check(tables, "seg_qslope", length=n)
+        self.seg_area = check(tables, "seg_area", length=n, low=0.0)
+        self.points_x = check(tables, "points_x", nondecreasing=True)
+        self.points_logf = check(tables, "points_logf", length=self.points_x.size, finite=False)
+        self.interval_labels = check(tables, "interval_labels", kind="int", low=-1, high=1,
+                                     allow_empty=True).astype(np.int8)
+        self.piece_edges = check(tables, "piece_edges", nondecreasing=True)
+        self.piece_convex = check(tables, "piece_convex", kind="bool", allow_empty=True)
+        number = table_checks.number
+        self.acceptance = number(meta, "acceptance", low=0.0, high=1.0)
+        self.max_points = number(meta, "max_points", low=0.0)
+        self.time_budget = number(meta, "time_budget", low=0.0)
+        self.cL, self.cR = number(meta, "cL"), number(meta, "cR")
+        self.FL, self.SR = number(meta, "FL", low=0.0, high=1.0), number(meta, "SR", low=0.0, high=1.0)
+        if np.any(np.isinf(self.seg_qa) & (self.seg_qa > 0)):
+            raise ModelError("path", "the sampler file's 'seg_qa' table holds +inf; the file is damaged")
         self._tabulate()
-        self.extra_stats.update(meta["stats"])
+        # The hat's area is at least the density's (1); a smaller or non-finite one is not a hat.
+        if not (1.0 - 1e-6 <= self.total < 1e6):
+            raise ModelError("path", f"the sampler file's hat has area {self.total:g}, which cannot cover a "
+                                     "density of area 1; the file is damaged")
+        self.extra_stats.update(table_checks.mapping(meta, "stats"))

@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import table_checks
 from ..errors import MethodNotApplicable, ModelError
 from ..field_data import HistogramTarget, ProductLimitTarget
 from ..target import Target
@@ -161,8 +162,21 @@ class TableSampler(Sampler):
         return {"picker": self.picker, "kind": self.kind, "u_error": self.extra_stats["u_error"]}
 
     def _restore(self, meta, tables):
-        self.picker = meta["picker"]
-        self.kind = meta["kind"]
-        for key in ("p", "left", "width", "keep", "alias", "guide", "cumulative"):
-            setattr(self, key, np.asarray(tables[key]))
-        self.extra_stats.update({"picker": self.picker, "bins": int(self.p.size), "u_error": meta["u_error"]})
+        # Every table is checked against the others before a draw indexes with it.
+        self.picker = table_checks.choice(meta, "picker", ("alias", "guide"))
+        self.kind = table_checks.choice(meta, "kind", ("bins", "atoms"))
+        self.p = table_checks.table(tables, "p", low=0.0, high=1.0)
+        k = self.p.size
+        if not abs(float(np.sum(self.p)) - 1.0) <= 1e-9:
+            raise ModelError("path", "the sampler file's 'p' table does not sum to 1; the file is damaged")
+        self.left = table_checks.table(tables, "left", length=k)
+        self.width = table_checks.table(tables, "width", length=k, low=0.0)
+        self.keep = table_checks.table(tables, "keep", length=k, low=0.0, high=1.0)
+        self.alias = table_checks.table(tables, "alias", kind="int", length=k, low=0, high=k - 1)
+        self.cumulative = table_checks.table(tables, "cumulative", length=k + 1, low=0.0, high=1.0,
+                                             nondecreasing=True)
+        self.guide = table_checks.table(tables, "guide", kind="int", low=0, high=k - 1)
+        if self.kind == "atoms" and np.any(self.width != 0):
+            raise ModelError("path", "the sampler file's 'width' table gives atoms a width; the file is damaged")
+        u_error = table_checks.number(meta, "u_error", low=0.0, optional=True)
+        self.extra_stats.update({"picker": self.picker, "bins": int(k), "u_error": u_error})

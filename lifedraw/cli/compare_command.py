@@ -1,7 +1,7 @@
 """``lifedraw compare``: measure every applicable method on a scenario, now, on this machine."""
 from __future__ import annotations
 
-from .numbers import whole_number
+from .numbers import seed_number, whole_number
 
 
 def run_compare(args) -> int:
@@ -21,6 +21,6 @@ def add_compare_parser(sub) -> None:
     p = sub.add_parser("compare", help="measure every applicable method on a scenario")
     p.add_argument("scenario")
     p.add_argument("-n", type=whole_number, default=300_000, help="draws timed per method (default 3e5)")
-    p.add_argument("--seed", type=int, default=None)
+    p.add_argument("--seed", type=seed_number, default=None)
     p.add_argument("--tolerance", type=float, default=None)
     p.set_defaults(func=run_compare)

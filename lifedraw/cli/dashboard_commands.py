@@ -4,7 +4,7 @@ HoloViews) is imported only when one of them runs, so the other commands start f
 from __future__ import annotations
 
 from ..dashboard.defaults import DEFAULT_ADDRESS, DEFAULT_PORT
-from .numbers import whole_number
+from .numbers import seed_number, whole_number
 
 
 def add_serve_parser(sub) -> None:
@@ -29,19 +29,24 @@ def add_report_parser(sub) -> None:
     p = sub.add_parser("report", help="write a self-contained HTML report of a scenario (opens offline)")
     p.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
     p.add_argument("-o", "--output", required=True, help="the report file, ending in .html")
+    p.add_argument("--force", action="store_true", help="replace the report file if it exists")
     p.add_argument("-n", type=whole_number, default=None, help="number of draws (default: the scenario's)")
-    p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
+    p.add_argument("--seed", type=seed_number, default=None, help="seed (default: the scenario's)")
     p.add_argument("--method", default=None, help="sampling method (default: the scenario's, usually auto)")
     p.add_argument("--tolerance", type=float, default=None, help="u-error tolerance (default: the scenario's)")
     p.set_defaults(func=run_report)
 
 
 def run_report(args) -> int:
-    from ..dashboard.report import write_report
+    from ..dashboard.report import build_report
     from ..engine.cautions import CAUTION
     from ..engine.scenarios import load_scenario
+    from ..engine.output_files import check_destination, write_atomically
+    # The destination is checked before the (costly) report is built; written atomically.
+    path = check_destination(args.output, force=args.force, suffixes=(".html", ".htm"))
     sc = load_scenario(args.scenario)
-    path = write_report(sc, args.output, n=args.n, seed=args.seed, method=args.method, tolerance=args.tolerance)
+    text = build_report(sc, n=args.n, seed=args.seed, method=args.method, tolerance=args.tolerance)
+    write_atomically(path, text)
     print(f"wrote the report of '{sc.title}' to {path}")
     print(CAUTION)
     return 0

@@ -7,7 +7,7 @@ import sys
 import time
 
 from ..engine.generate import DEFAULT_CHUNK, MANIFEST, dask_client, generate, read_manifest, workers_of
-from .numbers import whole_number
+from .numbers import seed_number, whole_number
 
 
 class TextProgress:
@@ -94,7 +94,7 @@ def add_generate_parser(sub) -> None:
     p.add_argument("-n", type=whole_number, default=None, help="number of lifetimes, e.g. 1e9 (default: the scenario's)")
     p.add_argument("--chunk", type=whole_number, default=DEFAULT_CHUNK, help="draws per chunk and shard (default 1e7)")
     p.add_argument("--out", required=True, help="output folder for the shards and manifest.json")
-    p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
+    p.add_argument("--seed", type=seed_number, default=None, help="seed (default: the scenario's)")
     where = p.add_mutually_exclusive_group()
     where.add_argument("--scheduler", metavar="tcp://HOST:PORT", default=None,
                        help="run on this Dask scheduler (--out must be visible to its workers)")

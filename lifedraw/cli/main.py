@@ -17,7 +17,7 @@ from ..engine.errors import ModelError
 from .compare_command import add_compare_parser
 from .dashboard_commands import add_report_parser, add_serve_parser
 from .generate_command import add_generate_parser
-from .numbers import whole_number
+from .numbers import seed_number, whole_number
 
 
 def cmd_scenarios(args) -> int:
@@ -40,20 +40,28 @@ def _sampler_for(args):
     return sc, fit(sc.target(), method=method, tolerance=tol)
 
 
+SAMPLE_SUFFIXES = (".npy", ".csv", ".txt")
+
+
 def cmd_sample(args) -> int:
+    from ..engine.output_files import check_destination, write_atomically
+    # The destination is checked before the model is built or a draw is made.
+    out = check_destination(args.output, force=args.force, suffixes=SAMPLE_SUFFIXES)
     sc, sampler = _sampler_for(args)
     n = args.n if args.n is not None else sc.sample_size
     seed = args.seed if args.seed is not None else sc.seed
     x = sampler.sample(n, seed)
-    out = Path(args.output)
-    if out.suffix == ".npy":
-        np.save(out, x)
-    elif out.suffix == ".csv":
-        np.savetxt(out, x, fmt="%.17g", header=f"lifetime_{sc.time_unit}", comments="")
-    elif out.suffix == ".txt":
-        np.savetxt(out, x, fmt="%.17g")
-    else:
-        raise ModelError("output", f"unknown file type {out.suffix!r}; use .npy, .csv or .txt")
+    suffix = out.suffix.lower()
+
+    def write(fh):
+        if suffix == ".npy":
+            np.save(fh, x)
+        elif suffix == ".csv":
+            np.savetxt(fh, x, fmt="%.17g", header=f"lifetime_{sc.time_unit}", comments="")
+        else:
+            np.savetxt(fh, x, fmt="%.17g")
+
+    write_atomically(out, write)
     s = sampler.stats
     print(f"wrote {n} lifetimes ({sc.time_unit}) of '{sc.title}' to {out}")
     print(f"method: {s['method']} ({sampler.reason}); seed {seed}; set-up {s['setup_seconds'] * 1e3:.1f} ms")
@@ -84,10 +92,11 @@ def build_parser() -> argparse.ArgumentParser:
         sp.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
         sp.add_argument("-n", type=whole_number, default=None, help="number of lifetimes (default: the scenario's)")
         sp.add_argument("--method", default=None, help="auto, inversion, rejection, ratio-of-uniforms, table, ...")
-        sp.add_argument("--seed", type=int, default=None)
+        sp.add_argument("--seed", type=seed_number, default=None)
         sp.add_argument("--tolerance", type=float, default=None, help="u-error tolerance for inversion")
         if with_output:
             sp.add_argument("-o", "--output", required=True, help="output file: .npy, .csv or .txt")
+            sp.add_argument("--force", action="store_true", help="replace the output file if it exists")
 
     s = sub.add_parser("sample", help="draw lifetimes to a file")
     common(s, with_output=True)
@@ -116,6 +125,11 @@ def main(argv=None) -> int:
     except BrokenPipeError:  # e.g. `lifedraw scenarios | head`: the reader left, nothing to report
         sys.stderr.close()
         return 0
+    except OSError as err:
+        # A file system error the checks above did not foresee (disk full, permissions
+        # changed mid-run): one line, never a traceback.
+        print(f"lifedraw: {err.strerror or err}{f': {err.filename}' if err.filename else ''}", file=sys.stderr)
+        return 2
 
 
 if __name__ == "__main__":

@@ -16,3 +16,14 @@ def whole_number(text: str) -> int:
     if value != int(value):
         raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
     return int(value)
+
+
+def seed_number(text: str) -> int:
+    """A seed: a whole number from 0 to 2**128 - 1 (numpy's SeedSequence takes no negatives)."""
+    try:
+        value = int(str(text).replace("_", ""))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    if not 0 <= value < 2**128:
+        raise argparse.ArgumentTypeError(f"a seed is a whole number from 0 to 2**128 - 1, got {text!r}")
+    return value
