@@ -242,3 +242,21 @@ def variance_z(x, reference) -> float:
     mu4 = m4 - 4 * m1 * m3 + 6 * m1**2 * m2 - 3 * m1**4
     x = np.asarray(x, dtype=float)
     return float((np.var(x, ddof=1) - var) / math.sqrt((mu4 - var**2) / x.size))
+
+
+#: The suite's verdict on draws: lifedraw.check's rule (every p-value >= 1e-3, |z| < 5 for the
+#: mean and the tail fractions, u-error within ``u_tolerance`` when given) plus |z| < 5 for the
+#: sample variance, where KS is weak (a 1 % sd error is a 2 % variance error).
+Z_MAX = 5.0
+
+
+def verdict(sampler, ref, n, seed, u_tolerance=None):
+    """(passed, why): the draws of ``sampler`` judged against the outside reference ``ref``."""
+    from lifedraw import engine
+    report = engine.check(sampler, ref, n=n, rng=seed)
+    if not report.passed(u_tolerance=u_tolerance):
+        return False, report.summary()
+    z = variance_z(sampler.sample(n, seed + 1), ref)
+    if not abs(z) < Z_MAX:
+        return False, f"variance z = {z:.2f}"
+    return True, ""
