@@ -96,6 +96,30 @@ def tails_cut_in_sample(monkeypatch):
     monkeypatch.setattr(NumericalInversion, "_fill", _fill)
 
 
+def pole_piece_unscaled(monkeypatch):
+    """Rejection draws its exact piece next to a pole (the first 1e-3 of probability, inverted,
+    engine/methods/rejection.py) from F^-1(U) instead of F^-1(U * 1e-3): the uniform is not
+    scaled to the piece's mass, so those draws spread over the whole law."""
+    original = Rejection._end_draws
+
+    def _end_draws(self, side, count, rng):
+        if side == 0:
+            return self.target.quantile(rng.random(count)), count
+        return original(self, side, count, rng)
+    monkeypatch.setattr(Rejection, "_end_draws", _end_draws)
+
+
+def rectangle_v_plus_short(monkeypatch):
+    """Ratio-of-uniforms' bounding rectangle 5 % short on the v+ side (an optimiser stopped
+    early): the part of region A beyond it, the upper tail's share, is never proposed."""
+    original = RatioOfUniforms._install
+
+    def _install(self, state, tables):
+        state = dict(state, v_plus=0.95 * state["v_plus"])
+        original(self, state, tables)
+    monkeypatch.setattr(RatioOfUniforms, "_install", _install)
+
+
 def bin_share_times_1_25(index):
     """The table draws bin ``index`` with 1.25 times its share (the rest renormalised)."""
     def inject(monkeypatch):
@@ -161,7 +185,9 @@ NORMAL_REF = from_scipy(stats.norm(1000.0, 80.0), "norm(1000, 80)")
 # id: (inject, make sampler, reference, detector). Measured rejection rates over seeds 1..30
 # beside each (a correct sampler is rejected at about 3e-3 by the verdict).
 CASES = {
-    # 1 % scale, every method. Measured 30/30 at n = 1e5 for each.
+    # 1 % scale, every method. Measured 30/30 at n = 1e5 for each; at n = 3e4 only 10-22/30 for
+    # the continuous methods (inversion 22, numerical inversion 12, rejection 13,
+    # ratio-of-uniforms 10, composition 30), hence n = 1e5.
     "scale+1%: closed-form inversion": (scale_one_percent(Inversion), scenario("gearbox-wearout", "inversion"),
                                         "gearbox-wearout", check_rejects(100_000)),
     "scale+1%: numerical inversion": (scale_one_percent(NumericalInversion),
@@ -178,10 +204,10 @@ CASES = {
                         "ebike-battery-returns", check_rejects(100_000)),
     "scale+1%: composition": (scale_one_percent(Composition), scenario("sensor-bathtub", "composition"),
                               "sensor-bathtub", check_rejects(100_000)),
-    # Leva's sd 1 % too large. KS alone at n = 2e5 caught it 6 times in 40 (issue 15); the
-    # variance z-test measured: 30/30 at n = 1e6 (z about 14).
+    # Leva's sd 1 % too large. KS alone at n = 2e5 caught it 6 times in 40 (issue 15) and 3/30 here;
+    # the verdict with the variance z-test measured 11/30 at n = 1e5, 30/30 at 2e5 and at 5e5.
     "sd+1%: Leva": (leva_sd_one_percent, lambda: engine.fit(normal(), "ratio-of-uniforms"),
-                    NORMAL_REF, check_rejects(1_000_000)),
+                    NORMAL_REF, check_rejects(200_000)),
     # Composition weight 0.08 -> 0.10 on the bathtub: measured 30/30 at n = 1e5.
     "weight 0.08->0.10: composition": (composition_weight_0_10, scenario("sensor-bathtub", "composition"),
                                        "sensor-bathtub", check_rejects(100_000)),
@@ -193,8 +219,19 @@ CASES = {
     "tails cut at 1e-6: numerical inversion (tail count)": (tails_cut_in_sample,
                                                             scenario("compressor-density", "inversion"),
                                                             "compressor-density", deep_tail_count_too_low),
+    # Rejection's pole piece drawn from the whole law (sensor-bathtub: a Weibull 0.55 infant share,
+    # pole at 0): 1e-3 of the draws misplaced, invisible to KS (D = 0.001), caught by the tail
+    # count at q = 0.001 inside lifedraw.check (z ~ -10): measured 30/30 at n = 1e5 and at 3e4.
+    "pole piece unscaled: rejection": (pole_piece_unscaled, scenario("sensor-bathtub", "rejection"),
+                                       "sensor-bathtub", check_rejects(100_000)),
+    # Ratio-of-uniforms' rectangle 5 % short at v+: measured 9/10 at n = 1e5, 30/30 at n = 1e6.
+    "rectangle v+ 5% short: ratio-of-uniforms": (rectangle_v_plus_short,
+                                                 scenario("compressor-density", "ratio-of-uniforms",
+                                                          envelope="rectangle"),
+                                                 "compressor-density", check_rejects(1_000_000)),
     # A bin share x1.25 on the e-bike returns: the smallest bin (index 2, share 2.7 %) and the
-    # largest (index 8, 16.8 %), with either picker. Measured 30/30 at n = 1e5 for each.
+    # largest (index 8, 16.8 %). Measured at n = 1e5: bin 2 30/30 (alias) and 29/30 (guide),
+    # bin 8 30/30; at n = 3e4 bin 2 only 9/30 and 13/30, hence n = 1e5.
     "bin 2 share x1.25: table (alias)": (bin_share_times_1_25(2), scenario("ebike-battery-returns", "table"),
                                          "ebike-battery-returns", check_rejects(100_000)),
     "bin 2 share x1.25: table (guide)": (bin_share_times_1_25(2),
