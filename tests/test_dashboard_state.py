@@ -201,7 +201,11 @@ def test_the_binned_counts_follow_the_models_bin_masses():
     # Pearson chi-square (scipy.stats.chisquare), bins merged until each expects >= 5.
     wb = Workbench("gearbox-wearout")
     data = wb.histogram_data()
-    expected = data["expected"] * wb.n
+    # Bin masses from scipy's Weibull (shape 2.6, scale 31000), not from the model's own cdf; the
+    # page's expected shares must equal them too.
+    masses = np.diff(stats.weibull_min(2.6, scale=31_000.0).cdf(data["edges"]))
+    np.testing.assert_allclose(data["expected"], masses, rtol=0, atol=1e-12)
+    expected = masses * wb.n
     observed = data["counts"].astype(float)
     keep = expected >= 5
     obs = np.append(observed[keep], observed[~keep].sum() + data["above"] + data["below"])
