@@ -4,8 +4,11 @@ monkeypatch) must be rejected by the suite's checks, against outside references.
 Each fault is a small, plausible slip (a scale read 1 % off, a weight typed 0.10 for 0.08, tails
 cut in the draw path, one bin's share 25 % high); each detector is a check the suite runs on
 correct samplers too (references.verdict, the quantile tie, the deep-tail count). The rates in
-the comments were measured once over seeds 1..30 with ``python tests/test_fault_injection.py``
-(2026-12-02); the tests below use one fixed seed, so they are deterministic.
+the comments were measured once over seeds 1..30 with ``cd tests && python test_fault_injection.py``
+(2026-12-02); the tests below use one fixed seed, so they are deterministic. The same detectors on
+the unbroken samplers, same seeds: 1 rejection in 510 runs (rejection on compressor-density,
+seed 19, chi-square p = 2.7e-4 with KS p = 0.46; at n = 1e7 its KS p-values were 0.2-0.99 over four
+seeds, so a chance event, as the verdict's ~3e-3 false-alarm rate predicts).
 
 References: scipy.stats (laws, KS, Poisson); tests/references.py (scenario laws written out from
 scipy.stats and closed forms).
@@ -224,11 +227,12 @@ CASES = {
     # count at q = 0.001 inside lifedraw.check (z ~ -10): measured 30/30 at n = 1e5 and at 3e4.
     "pole piece unscaled: rejection": (pole_piece_unscaled, scenario("sensor-bathtub", "rejection"),
                                        "sensor-bathtub", check_rejects(100_000)),
-    # Ratio-of-uniforms' rectangle 5 % short at v+: measured 9/10 at n = 1e5, 30/30 at n = 1e6.
+    # Ratio-of-uniforms' rectangle 5 % short at v+ on the gearbox Weibull: measured 20/30 at n = 1e5,
+    # 30/30 at n = 3e5 (on the generalised gamma of compressor-density: 9/10 at 1e5, 10/10 at 1e6).
     "rectangle v+ 5% short: ratio-of-uniforms": (rectangle_v_plus_short,
-                                                 scenario("compressor-density", "ratio-of-uniforms",
+                                                 scenario("gearbox-wearout", "ratio-of-uniforms",
                                                           envelope="rectangle"),
-                                                 "compressor-density", check_rejects(1_000_000)),
+                                                 "gearbox-wearout", check_rejects(300_000)),
     # A bin share x1.25 on the e-bike returns: the smallest bin (index 2, share 2.7 %) and the
     # largest (index 8, 16.8 %). Measured at n = 1e5: bin 2 30/30 (alias) and 29/30 (guide),
     # bin 8 30/30; at n = 3e4 bin 2 only 9/30 and 13/30, hence n = 1e5.
