@@ -356,3 +356,46 @@ def test_quantiles_outside_zero_one_raise_model_error():
     with pytest.raises(ModelError) as err:
         check(draws(WEIBULL, 100), WEIBULL, quantiles=(0.5, 1.0))
     assert err.value.field == "quantiles"
+
+
+# ---- chi-square cells: bins=... ----------------------------------------------------------------
+
+def test_bins_sets_the_equiprobable_cells_and_matches_scipy_chisquare():
+    # Ten cells equiprobable under scipy's Weibull: counts between its deciles, against n/10 each,
+    # by scipy.stats.chisquare (Pearson 1900).
+    x = draws(WEIBULL, 100_000)
+    report = check(x, WEIBULL, bins=10)
+    edges = WEIBULL.frozen.ppf(np.arange(1, 10) / 10)
+    observed = np.diff(np.concatenate([[0], np.searchsorted(np.sort(x), edges, side="right"), [x.size]]))
+    ref = stats.chisquare(observed, np.full(10, x.size / 10))
+    assert report.chi2_dof == 9
+    assert report.chi2_statistic == pytest.approx(ref.statistic, rel=1e-9)
+    assert report.chi2_pvalue == pytest.approx(ref.pvalue, rel=1e-9)
+
+
+def test_bins_are_capped_so_each_cell_expects_five_draws():
+    # 1000 cells asked for 1000 draws: capped at n/5 = 200 cells expecting 5 each. Cells whose
+    # expected count rounds to just under 5 are merged with a neighbour (measured: 150 cells
+    # remain), so the count lies between 100 and 200.
+    report = check(draws(WEIBULL, 1_000), WEIBULL, bins=1_000)
+    assert 100 - 1 <= report.chi2_dof <= 200 - 1
+    assert np.all(report.chi2_cells["expected"] >= 5 - 1e-9)
+    assert report.chi2_cells["expected"].sum() == pytest.approx(1_000, rel=1e-12)
+
+
+@pytest.mark.parametrize("bins", [1, 0, -3, 2.5, "many"])
+def test_bad_bins_are_a_model_error_naming_the_field(bins):
+    with pytest.raises(ModelError) as err:
+        check(draws(WEIBULL, 1_000), WEIBULL, bins=bins)
+    assert err.value.field == "bins"
+
+
+def test_more_cells_see_a_narrow_bump_that_few_cells_average_away():
+    # 2 % of the draws moved into a narrow band around the median: 4 cells dilute it into one
+    # cell's noise, 200 cells resolve it (the trade-off behind the 2 n^0.4 rule of thumb).
+    x = draws(WEIBULL, 100_000)
+    rng = np.random.default_rng(9)
+    median = WEIBULL.frozen.median()
+    x[:2_000] = median + rng.uniform(-1.0, 1.0, 2_000)
+    few, many = check(x, WEIBULL, bins=4), check(x, WEIBULL, bins=200)
+    assert many.chi2_pvalue < 1e-10 < few.chi2_pvalue

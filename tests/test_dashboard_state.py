@@ -180,7 +180,9 @@ def test_the_reservoir_is_a_uniform_sample_of_all_draws():
 def test_the_live_ks_statistic_matches_scipy_with_the_exact_cdf():
     wb = Workbench("compressor-density")          # a density formula: numerical cdf, interpolated live
     d, _ = wb.ks()
-    reference = stats.kstest(wb.acc.x, wb.target.cdf).statistic
+    # The outside cdf: t^(k-1) exp(-(t/s)^p) with k = 2.5, p = 1.6, s = 9000 is scipy's
+    # gengamma(a = k/p, c = p, scale = s) (Stacy's generalised gamma), not the model's own cdf.
+    reference = stats.kstest(wb.acc.x, stats.gengamma(2.5 / 1.6, 1.6, scale=9000.0).cdf).statistic
     # The table is exact at its nodes and errs by less than 1e-5 between them.
     assert d == pytest.approx(reference, abs=1e-5)
 
@@ -188,14 +190,22 @@ def test_the_live_ks_statistic_matches_scipy_with_the_exact_cdf():
 def test_the_cdf_table_is_close_to_the_exact_cdf_at_every_draw():
     wb = Workbench("streetlight-driver-hazard")
     x = wb.acc.x
-    assert np.max(np.abs(wb.table.cdf(x) - wb.target.cdf(x))) < 1e-5
+    # Outside reference: h = a b t^(b-1) + c + d e^(t/tau) integrates to
+    # H = a t^b + c t + d tau (e^(t/tau) - 1), F = 1 - exp(-H) (NIST/SEMATECH e-Handbook 8.1.2.4),
+    # with the scenario's a = 0.004, b = 0.5, c = 4e-6, d = 2e-7, tau = 15000.
+    exact = -np.expm1(-(0.004 * x**0.5 + 4e-6 * x + 2e-7 * 15000.0 * np.expm1(x / 15000.0)))
+    assert np.max(np.abs(wb.table.cdf(x) - exact)) < 1e-5
 
 
 def test_the_binned_counts_follow_the_models_bin_masses():
     # Pearson chi-square (scipy.stats.chisquare), bins merged until each expects >= 5.
     wb = Workbench("gearbox-wearout")
     data = wb.histogram_data()
-    expected = data["expected"] * wb.n
+    # Bin masses from scipy's Weibull (shape 2.6, scale 31000), not from the model's own cdf; the
+    # page's expected shares must equal them too.
+    masses = np.diff(stats.weibull_min(2.6, scale=31_000.0).cdf(data["edges"]))
+    np.testing.assert_allclose(data["expected"], masses, rtol=0, atol=1e-12)
+    expected = masses * wb.n
     observed = data["counts"].astype(float)
     keep = expected >= 5
     obs = np.append(observed[keep], observed[~keep].sum() + data["above"] + data["below"])

