@@ -64,6 +64,21 @@ def check_output_buffer(out, n=None) -> np.ndarray:
     return out.reshape(-1)
 
 
+def residual_ages(ages) -> np.ndarray:
+    """Ages of units in service as a float array: finite and >= 0, or ModelError naming "ages"."""
+    try:
+        a = np.atleast_1d(np.asarray(ages, dtype=float))
+    except (TypeError, ValueError):
+        raise ModelError("ages", "must be a number or a list of numbers (ages in service)") from None
+    if a.ndim != 1:
+        raise ModelError("ages", f"must be one age per unit (a flat list), got shape {a.shape}")
+    bad = np.flatnonzero(~np.isfinite(a) | (a < 0))
+    if bad.size:
+        i = int(bad[0])
+        raise ModelError("ages", f"value {i + 1} is {a[i]!r}; ages are finite and >= 0")
+    return a
+
+
 class Sampler:
     """A method bound to a target, with its set-up done.
 
@@ -122,6 +137,38 @@ class Sampler:
             self._fill(out[start:start + CHUNK], rng)
         self.counts["samples"] += n
         return out
+
+    def sample_residual(self, ages, rng=None) -> np.ndarray:
+        """Remaining lives of units that have survived to ``ages`` (one per age), one uniform each.
+
+        Conditional inversion X = F^-1(F(a) + U R(a)) - a, written from the upper tail as
+        X = R^-1(V R(a)) - a with V = 1 - U in (0, 1], so units deep in the tail (R(a) tiny) keep
+        their digits (Devroye 1986, Non-Uniform Random Variate Generation, II.2 on inversion of a
+        truncated law). Each method inverts through ``upper_inverse``; exact for every method.
+        """
+        a = residual_ages(ages)
+        rng = np.random.default_rng(rng)
+        v = 1.0 - rng.random(a.shape)
+        self.counts["uniforms"] += a.size
+        self.counts["samples"] += a.size
+        return self.residual_from_uniforms(a, v)
+
+    def residual_from_uniforms(self, ages: np.ndarray, v: np.ndarray) -> np.ndarray:
+        """X = R^-1(v R(a)) - a for v in (0, 1] (see ``sample_residual``)."""
+        survive = np.asarray(self.target.sf(ages), dtype=float)
+        dead = np.flatnonzero(~(survive > 0))
+        if dead.size:
+            i = int(dead[0])
+            raise ModelError("ages", f"age {float(ages.flat[i]):g} (unit {i + 1}) lies beyond every lifetime "
+                                     "the model allows (reliability 0 there)")
+        x = np.asarray(self.upper_inverse(v * survive, survive), dtype=float) - ages
+        return np.maximum(x, np.maximum(self.target.support[0] - ages, 0.0))
+
+    def upper_inverse(self, w: np.ndarray, survive: np.ndarray) -> np.ndarray:
+        """R^-1(w): the target's inverse survival function (a closed form, or a safeguarded Newton
+        solve of R(t) = w, which keeps the digits of tiny w). ``survive`` = R(a) for each w;
+        methods with their own inverse may use it where R(a) keeps their u-error small."""
+        return self.target.isf(w)
 
     # A method implements one of these two: ``_fill`` if it can draw in place,
     # else ``_draw``; each default is written in terms of the other.

@@ -268,6 +268,18 @@ class NumericalInversion(Inversion):
         x = kernels.pinv_eval(u.ravel(), self._guide32, self.u_start, self._packed)
         return x.reshape(u.shape) if u.ndim else float(x[0])
 
+    def upper_inverse(self, w, survive):
+        """The polynomial at u = 1 - w where R(a) >= 1/2 (the residual's u-error then stays within
+        twice the sampler's); deeper in the tail the target's exact inverse survival function."""
+        w = np.asarray(w, dtype=float)
+        young = np.asarray(survive) >= 0.5
+        out = np.empty(w.shape)
+        if young.any():
+            out[young] = self.quantile(1.0 - w[young])
+        if (~young).any():
+            out[~young] = self.target.isf(w[~young])
+        return out
+
     def _fill(self, out, rng):
         # Uniforms are drawn straight into the output and transformed in place.
         rng.random(out=out)
