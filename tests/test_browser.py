@@ -28,7 +28,7 @@ ARTIFACTS = ROOT / "test-artifacts"
 CHROMIUM = "/usr/bin/chromium"
 ARGS = ["--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
         "--disable-component-update", "--disable-sync"]
-CELLS = 7
+CELLS = 8
 
 # The model's density curve is the only 801-point data source on the page (plots.density_histogram).
 MODEL_CURVE_JS = """() => {
@@ -249,7 +249,7 @@ def test_the_method_comparison_runs(page):
 
 
 def test_the_report_is_written_and_opens_offline(page, browser):
-    cell = page.cell(7)
+    cell = page.cell(8)
     cell.get_by_role("button", name="Write HTML report").click()
     path_text = cell.locator(".ld-path")
     path_text.wait_for(timeout=90_000)
