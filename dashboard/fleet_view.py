@@ -58,7 +58,7 @@ class FleetView:
             "sales": pn.widgets.TextInput.from_param(f.param.sales, name="Units sold per period",
                                                      placeholder="e.g. 60, 90, 120", width=320, margin=(4, 8)),
         }
-        self.run = pn.widgets.Button(name="Simulate the fleet", button_type="primary", width=190,
+        self.run = pn.widgets.Button(label="Simulate the fleet", button_type="primary", width=190,
                                      margin=(22, 8, 0, 8), css_classes=["ld-fleet-run"])
         self.run.on_click(self._run)
         self.bar = pn.indicators.Progress(value=0, max=100, width=260, visible=False, margin=(30, 8, 0, 8),
