@@ -243,10 +243,10 @@ class FleetResult:
                 "runs": n, "mean_demand": float(demand.mean()),
                 "note": "a bound is None where the runs are too few to give it"}
 
-    def summary(self) -> str:
+    def summary(self, time_unit: str = "time units") -> str:
         """Plain text: the fleet, failures per period (simulated and exact), spares, the caution."""
         mean, lo, hi = self.band(0.9)
-        lines = [f"Fleet of {self.units:,} units over {self.horizon:g} time units in {self.periods} periods of "
+        lines = [f"Fleet of {self.units:,} units over {self.horizon:g} {time_unit} in {self.periods} periods of "
                  f"{self.period:g}; {self.runs} runs, seed {self.seed}, method {self.method}.",
                  "Replacement: instant, by a new unit" + (f"; preventive replacement at age {self.preventive_age:g}"
                                                           if self.preventive_age is not None else "") + ".",

@@ -77,7 +77,7 @@ def fleet_study(model, settings: FleetSettings, *, sampler=None, seed: int = 0, 
 def format_study(study: dict, time_unit: str = "hours") -> str:
     """Plain text of a study: what the command line prints."""
     fleet = study["fleet"]
-    lines = [fleet.summary().replace(FLEET_CAUTION, "").rstrip(), f"(times in {time_unit})"]
+    lines = [fleet.summary(time_unit).replace(FLEET_CAUTION, "").rstrip()]
     replacement = study["age_replacement"]
     if replacement is not None:
         lines.append("")
