@@ -19,6 +19,7 @@ from typing import Callable
 import numpy as np
 from scipy import stats
 
+from . import kernels
 from .cautions import FLEET_CAUTION
 from .errors import ModelError, finite_number
 from .generate import ShippedSampler, as_drawable, check_client, chunk_rng, local_threads, whole_number, workers_of
@@ -83,39 +84,32 @@ def renewal_rounds(drawable, ages: np.ndarray, runs: int, horizon: float, period
     bins = runs * n_periods
     failures = np.zeros(bins, dtype=np.int64)
     replacements = np.zeros(bins, dtype=np.int64)
-    run = np.repeat(np.arange(runs, dtype=np.int64) * n_periods, units)   # each entry's first bin
+    # Each entry's first bin (its run's offset); one run needs none.
+    run = np.repeat(np.arange(runs, dtype=np.int64) * n_periods, units) if runs > 1 else None
     age = np.tile(ages, runs)
     limit = None
     if preventive_age is not None:
         due = age >= preventive_age
         if due.any():   # already past the replacement age: replaced at time 0
-            replacements += np.bincount(run[due], minlength=bins)
+            replacements += np.bincount(run[due] if run is not None else np.zeros(int(due.sum()), np.int64),
+                                        minlength=bins)
             age = np.where(due, 0.0, age)
         limit = preventive_age - age
     if not np.any(age > 0):
         life = drawable.sample(age.size, rng)
     else:
         life = residual_draws(drawable, age, rng)
+    in_place = isinstance(drawable, Sampler)
+    buffer = np.empty(age.size) if in_place else None
     clock = np.zeros(age.size)
+    active = age.size
     for _ in range(MAX_ROUNDS):
-        if limit is not None:
-            failed = life <= limit
-            np.minimum(life, limit, out=life)
-        clock += life
-        inside = clock <= horizon
-        clock = clock[inside]
-        run = run[inside]
-        # Period k counts the events in ((k - 1) period, k period], as the renewal function does.
-        slot = run + np.clip(np.ceil(clock / period).astype(np.int64) - 1, 0, n_periods - 1)
-        if limit is None:
-            failures += np.bincount(slot, minlength=bins)
-        else:
-            failed = failed[inside]
-            replacements += np.bincount(slot, minlength=bins)
-            failures += np.bincount(slot[failed], minlength=bins)
-        if clock.size == 0:
+        # One fused pass (engine.kernels.renewal_step): advance, count per period, keep those inside.
+        active = kernels.renewal_step(clock[:active], life[:active], limit, None if run is None else run[:active],
+                                      horizon, period, n_periods, replacements, failures)
+        if active == 0:
             break
-        life = drawable.sample(clock.size, rng)
+        life = drawable.sample(rng=rng, out=buffer[:active]) if in_place else drawable.sample(active, rng)
         limit = preventive_age
     else:
         raise ModelError("horizon", f"more than {MAX_ROUNDS} replacements in one socket: lifetimes are "
