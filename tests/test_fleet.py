@@ -176,10 +176,10 @@ def cluster_client():
 
 @pytest.mark.cluster
 def test_two_worker_processes_give_the_threaded_numbers(cluster_client):
-    # A formula sampler travels as its saved file; 25,000 units x 100 runs make 3 chunks of units.
+    # A formula sampler travels as its saved file; 25,000 units x 50 runs make 2 chunks of units.
     target = lifedraw.hazard_formula("b/s*(t/s)**(b-1)", support=(0, float("inf")), params=dict(b=2.0, s=40.0))
     sampler = lifedraw.fit(target)
-    kwargs = dict(period=10.0, preventive_age=45.0, runs=100, seed=11, exact=False)
+    kwargs = dict(period=10.0, preventive_age=45.0, runs=50, seed=11, exact=False)
     on_cluster = lifedraw.simulate_fleet(sampler, 25_000, 120.0, client=cluster_client, **kwargs)
     threaded = lifedraw.simulate_fleet(sampler, 25_000, 120.0, **kwargs)
     np.testing.assert_array_equal(on_cluster.failures, threaded.failures)
