@@ -36,6 +36,7 @@ MAX_DRAWS = 20_000_000_000
 #: Exact expectations are solved for at most this many distinct ages in service.
 MAX_DISTINCT_AGES = 100
 MAX_ROUNDS = 1_000_000
+PILOT = 2000
 #: Systems draw residual lives by rejection where R(a) is at least this, for at most this many rounds.
 SYSTEM_REJECTION_BELOW = 0.05
 SYSTEM_REJECTION_ROUNDS = 60
@@ -317,7 +318,7 @@ def simulate_fleet(sampler, units, horizon, *, period, ages=0.0, preventive_age=
     workers = check_client(client)
     drawable = as_drawable(sampler)
     target = as_target(drawable if not isinstance(drawable, Sampler) else drawable.target, "sampler")
-    _check_effort(target, units, runs, horizon, preventive_age)
+    _check_effort(drawable, units, runs, horizon, preventive_age)
 
     per_chunk = max(1, ENTRIES_PER_CHUNK // runs)
     starts = list(range(0, units, per_chunk))
@@ -353,14 +354,16 @@ def simulate_fleet(sampler, units, horizon, *, period, ages=0.0, preventive_age=
                        expected_error=None if expected is None else expected[2])
 
 
-def _check_effort(target, units, runs, horizon, preventive_age) -> None:
-    """Refuse a simulation that would draw more than MAX_DRAWS lifetimes (by the renewal rate)."""
-    try:
-        cycle = float(target.mean())
-        if preventive_age is not None:
-            cycle = min(cycle, preventive_age)
-    except ModelError:
-        return
+def _check_effort(drawable, units, runs, horizon, preventive_age) -> None:
+    """Refuse a simulation that would draw more than MAX_DRAWS lifetimes, judged by the mean cycle of a
+    small pilot sample (its own fixed stream, so the simulation's numbers are untouched)."""
+    counts = dict(drawable.counts) if isinstance(drawable, Sampler) else None
+    pilot = drawable.sample(PILOT, np.random.default_rng(0))
+    if counts is not None:       # the pilot is not part of the user's draws
+        drawable.counts = counts
+    if preventive_age is not None:
+        pilot = np.minimum(pilot, preventive_age)
+    cycle = float(np.mean(pilot))
     if not (math.isfinite(cycle) and cycle > 0):
         return
     draws = units * runs * (horizon / cycle + 1.0)
