@@ -60,10 +60,11 @@ def server(tmp_path_factory):
     proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     url = f"http://127.0.0.1:{port}/"
-    deadline = time.time() + 60
+    # Generous on a shared, loaded machine: a short per-request timeout only piles up sessions.
+    deadline = time.time() + 180
     while True:
         try:
-            urllib.request.urlopen(url, timeout=5)
+            urllib.request.urlopen(url, timeout=60)
             break
         except (urllib.error.URLError, OSError):
             if proc.poll() is not None or time.time() > deadline:
@@ -109,7 +110,8 @@ class Page:
             route.abort()
 
     def cell(self, n):
-        return self.page.locator(f".ld-cell-{n}")
+        # Newer sections are called steps (the fleet step is .ld-step-7).
+        return self.page.locator(f".ld-cell-{n}, .ld-step-{n}")
 
     def version(self) -> int:
         return int(self.page.locator(".ld-redraw").get_attribute("data-version"))

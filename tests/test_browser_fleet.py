@@ -44,10 +44,10 @@ def fleet_server(tmp_path_factory):
     proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     url = f"http://127.0.0.1:{port}/"
-    deadline = time.time() + 90
+    deadline = time.time() + 180
     while True:
         try:
-            urllib.request.urlopen(url, timeout=5)
+            urllib.request.urlopen(url, timeout=60)
             break
         except (urllib.error.URLError, OSError):
             if proc.poll() is not None or time.time() > deadline:
