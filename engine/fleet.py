@@ -14,6 +14,7 @@ import math
 import uuid
 from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
+from fractions import Fraction
 from typing import Callable
 
 import numpy as np
@@ -24,7 +25,8 @@ from .cautions import FLEET_CAUTION
 from .errors import ModelError, finite_number
 from .generate import ShippedSampler, as_drawable, check_client, chunk_rng, local_threads, whole_number, workers_of
 from .methods.base import Sampler, residual_ages
-from .renewal import as_target, convolve_on_grid, cycle_law, failure_part, refine, solve_on_grid, steps_for
+from .renewal import (MAX_STEPS, as_target, convolve_on_grid, cycle_law, failure_part, refine, solve_on_grid,
+                      steps_for)
 
 #: Unit x run entries per chunk: big enough to amortise numpy's per-call cost, small enough for cache.
 ENTRIES_PER_CHUNK = 1 << 20
@@ -140,7 +142,11 @@ def expected_counts(target, ages: np.ndarray, edges: np.ndarray, preventive_age:
     period = edges[1] - edges[0]
     cut = math.inf if preventive_age is None else preventive_age
     t_end = n_periods * period
-    n_steps = steps_for(target, t_end, multiple_of=n_periods)
+    # Put the jumps of the replacement count (preventive replacements at cut - a, cut, 2 cut, ...) on
+    # the grid where they are simple fractions of the period: a jump between grid points is smeared.
+    jumps = [] if preventive_age is None else [cut, *(cut - a for a in distinct if 0 < a < cut)]
+    align = _grid_alignment(jumps, period, n_periods)
+    n_steps = steps_for(target, t_end, multiple_of=n_periods * align)
     new_law = cycle_law(target, cut)
     first_cycles = []
     for a in distinct:
@@ -173,6 +179,18 @@ def expected_counts(target, ages: np.ndarray, edges: np.ndarray, preventive_age:
     per_period = np.diff(by_edge, axis=-1)
     error = solution.error_at(edges)
     return per_period[0], per_period[1], float(np.max(error))
+
+
+def _grid_alignment(times, period: float, n_periods: int, limit: int = 64) -> int:
+    """The smallest q such that every time that is a simple fraction p/q' of the period (q' <= limit)
+    falls on a grid of period/q; 1 where that grid would be too fine."""
+    q = 1
+    for x in times:
+        ratio = x / period
+        f = Fraction(ratio).limit_denominator(limit)
+        if abs(float(f) - ratio) <= 1e-12 * max(1.0, ratio):
+            q = math.lcm(q, f.denominator)
+    return q if q <= limit and 2 * n_periods * q <= MAX_STEPS else 1
 
 
 # ---- the result ------------------------------------------------------------------------------------

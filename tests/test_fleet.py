@@ -61,6 +61,11 @@ def test_aged_fleet_with_preventive_replacement_meets_its_exact_expectation():
     assert result.expected_error < 0.05 * result.expected_failures.min()
     # Units aged 95 are past 85: replaced at time 0, so period 1 has at least 100 replacements.
     assert result.replacements[:, 0].min() >= 100
+    # Replacements jump where preventive replacements fall (85 - 65 = 20 = one period, 105, ...):
+    # the exact count puts those jumps on its grid, so it also meets the simulation period by period.
+    repl = result.replacements
+    half = 3.29 * repl.std(axis=0, ddof=1) / np.sqrt(result.runs)
+    assert np.all(np.abs(repl.mean(axis=0) - result.expected_replacements) <= half)
 
 
 @pytest.mark.parametrize("method", ["inversion", "rejection", "ratio-of-uniforms"])
