@@ -17,6 +17,7 @@ from pathlib import Path
 import panel as pn
 
 from .defaults import DEFAULT_ADDRESS, DEFAULT_PORT
+from .fleet_view import FleetView
 from .state import Workbench
 from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveCheckCell, ModelCell, ReportCell,
                     caution_banner)
@@ -75,7 +76,7 @@ def default_report_dir() -> Path:
 
 
 def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
-    """Build one session's page: a fresh ``Workbench`` and the seven cells that present it."""
+    """Build one session's page: a fresh ``Workbench``, the cells that present it and the fleet step."""
     state = Workbench(scenario)
     report_dir = Path(report_dir or default_report_dir())
     # While a slider handle moves the stream yields, so its release finds the server idle.
@@ -87,6 +88,7 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
     model, generator = ModelCell(state, on_drag=dragging), GeneratorCell(state)
     live, geometry, comparison = LiveCheckCell(state), GeometryCell(state), ComparisonCell(state)
     life, report = LifeCell(state), ReportCell(state, report_dir)
+    fleet = FleetView(state)
     geometry.refresh()
     life.refresh()
 
@@ -118,7 +120,7 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         stylesheets=[HEADER_CSS], sizing_mode="stretch_width", margin=(4, 0))
     page = pn.Column(
         header, caution_banner(),
-        *(cell.panel() for cell in (model, generator, live, geometry, comparison, life, report)),
+        *(cell.panel() for cell in (model, generator, live, geometry, comparison, life, fleet, report)),
         caution_banner(),
         sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
     if pn.state.curdoc is not None and pn.state.curdoc.session_context is not None:

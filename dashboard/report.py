@@ -27,6 +27,7 @@ from lifedraw.engine.compare import MethodResult, compare_methods
 from lifedraw.engine.scenarios import Scenario
 
 from . import plots
+from .fleet_report import fleet_section
 from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,
                     qq_payload)
 
@@ -125,12 +126,14 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
     geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300,
                                     view=(float(edges[0]), float(view_right)))
     bars = plots.comparison_bars(rows, width=PLOT_WIDTH // 2 - 10, height=220)
+    fleet_figures, fleet_html = fleet_section(scenario, target, sampler, seed, PLOT_WIDTH)
 
-    figures = [hist, qq, pp, *geometry, *bars]
+    figures = [hist, qq, pp, *geometry, *bars, *fleet_figures]
     script, divs = components([hv.render(f, backend="bokeh") for f in figures])
     d_hist, d_qq, d_pp = divs[:3]
     d_geom = divs[3:3 + len(geometry)]
-    d_bars = divs[3 + len(geometry):]
+    d_bars = divs[3 + len(geometry):3 + len(geometry) + len(bars)]
+    d_fleet = divs[3 + len(geometry) + len(bars):]
 
     inline_assets = _inline_assets()
     now = _dt.datetime.now().astimezone()
@@ -194,6 +197,7 @@ measured it), one process; draws/s is the median of 3 timed batches.</p>
 order-statistic intervals (Hahn &amp; Meeker 1991); R(t): Wilson score intervals. The model's exact
 values come from the model itself.</p>
 </section>
+{fleet_html(d_fleet)}
 
 <section id="versions"><h2>Software</h2>
 {plots.html_table(["package", "version"], [[e(k), e(v)] for k, v in _versions().items()], "ld-table ld-compact")}

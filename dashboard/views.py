@@ -695,10 +695,10 @@ class LifeCell(Cell):
                   "weakened by common causes.</p>")
 
 
-# ---- 7. report -------------------------------------------------------------------------------
+# ---- 8. report (7 is the fleet step, fleet_view.py) -------------------------------------------------------------------------------
 
 class ReportCell(Cell):
-    number = 7
+    number = 8
     title = "Report"
     blurb = ("Save this snapshot as a self-contained HTML report (it opens offline), or save the current "
              "settings as a scenario file.")

@@ -117,7 +117,7 @@ def _without_volatile(value):
     return value
 
 
-class _Shipped:
+class ShippedSampler:
     """A sampler or system packed once as bytes, for every chunk task to reference.
 
     Each chunk draws from a fresh copy of the unpacked object (unpacked once per
@@ -131,7 +131,7 @@ class _Shipped:
         self._base = None
 
     @classmethod
-    def of(cls, obj) -> "_Shipped":
+    def of(cls, obj) -> "ShippedSampler":
         if isinstance(obj, Sampler):
             blob = sampler_to_bytes(obj)
             return cls(blob, "sampler", _blob_fingerprint(blob), obj.target.support)
@@ -147,19 +147,19 @@ class _Shipped:
         return copy.deepcopy(self._base)
 
     def __reduce__(self):
-        return (_Shipped, (self.payload, self.kind, self.fingerprint, self.bounds))
+        return (ShippedSampler, (self.payload, self.kind, self.fingerprint, self.bounds))
 
     def __dask_tokenize__(self):
         return ("lifedraw-sampler", self.fingerprint)
 
 
-def _draw_chunk(shipped: _Shipped, seed: int, index: int, size: int) -> np.ndarray:
+def _draw_chunk(shipped: ShippedSampler, seed: int, index: int, size: int) -> np.ndarray:
     return shipped.fresh().sample(size, chunk_rng(seed, index))
 
 
 # ---- validation ---------------------------------------------------------------------------------
 
-def _whole(field: str, value, minimum: int) -> int:
+def whole_number(field: str, value, minimum: int) -> int:
     if isinstance(value, bool):
         raise ModelError(field, f"must be a whole number, got {value!r}")
     if isinstance(value, (int, np.integer)):
@@ -177,7 +177,7 @@ def _whole(field: str, value, minimum: int) -> int:
     return number
 
 
-def _as_drawable(sampler):
+def as_drawable(sampler):
     from .systems import System
     if isinstance(sampler, Target):
         from .sampling import fit
@@ -195,7 +195,7 @@ def workers_of(client) -> dict:
         return client.scheduler_info()["workers"]
 
 
-def _check_client(client):
+def check_client(client):
     if client is None:
         return None
     if not (hasattr(client, "submit") and hasattr(client, "scatter") and hasattr(client, "scheduler_info")):
@@ -225,7 +225,7 @@ def _check_chunk(chunk: int, n: int, threads: int, workers: dict | None) -> None
                                       f"use a chunk of at most {mem // (8 * 3 * nthreads):.3g}")
 
 
-def _local_threads() -> int:
+def local_threads() -> int:
     import dask
     return int(dask.config.get("num_workers", None) or os.cpu_count() or 1)
 
@@ -252,18 +252,18 @@ def generate(sampler, n, chunk=DEFAULT_CHUNK, seed=0, client=None, out=None,
     import dask.array as da
     from dask.highlevelgraph import HighLevelGraph
 
-    n = _whole("n", n, 1)
-    chunk = _whole("chunk", chunk, 1)
-    seed = _whole("seed", seed, 0)
+    n = whole_number("n", n, 1)
+    chunk = whole_number("chunk", chunk, 1)
+    seed = whole_number("seed", seed, 0)
     sizes = chunk_sizes(n, chunk)
     if len(sizes) > MAX_CHUNKS:
         raise ModelError("chunk", f"{n:.3g} draws in chunks of {chunk:.3g} make {len(sizes):.3g} chunks; "
                                   f"use chunks of at least {math.ceil(n / MAX_CHUNKS):.3g}")
-    workers = _check_client(client)
+    workers = check_client(client)
     # Locally every thread holds a chunk; on a cluster each worker's own limit is checked.
-    _check_chunk(chunk, n, _local_threads() if client is None else 1, workers)
-    drawable = _as_drawable(sampler)
-    shipped = _Shipped.of(drawable)
+    _check_chunk(chunk, n, local_threads() if client is None else 1, workers)
+    drawable = as_drawable(sampler)
+    shipped = ShippedSampler.of(drawable)
 
     if out is not None:
         return _write_shards(drawable, shipped, n, chunk, seed, sizes, Path(out), client, progress)
@@ -371,7 +371,7 @@ def load_shard(path: str, digest: str | None = None, bounds=(-math.inf, math.inf
     return draws
 
 
-def _write_shard(shipped: _Shipped, seed: int, index: int, size: int, path: str) -> dict:
+def _write_shard(shipped: ShippedSampler, seed: int, index: int, size: int, path: str) -> dict:
     """Draw chunk ``index`` and write it under a temporary name, then rename it into place:
     a shard under its final name is always complete."""
     start = time.perf_counter()
@@ -404,7 +404,7 @@ def _versions() -> dict:
     return out
 
 
-def _manifest(drawable, shipped: _Shipped, n: int, chunk: int, seed: int, sizes) -> dict:
+def _manifest(drawable, shipped: ShippedSampler, n: int, chunk: int, seed: int, sizes) -> dict:
     from .storage import jsonable
     if isinstance(drawable, Sampler):
         model = {"method": drawable.method, "class": type(drawable).__name__,
@@ -571,7 +571,7 @@ def _write_shards(drawable, shipped, n, chunk, seed, sizes, folder: Path, client
     try:
         if todo:
             if client is None:
-                _run_threads(shipped, seed, todo, _local_threads(), finished)
+                _run_threads(shipped, seed, todo, local_threads(), finished)
             else:
                 _run_cluster(client, shipped, seed, todo, finished)
     finally:
@@ -674,7 +674,7 @@ def dask_client(scheduler: str | None = None, workers: int | None = None, timeou
     if workers is None:
         yield None
         return
-    workers = _whole("workers", workers, 1)
+    workers = whole_number("workers", workers, 1)
     import logging
 
     import dask

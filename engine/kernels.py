@@ -6,6 +6,7 @@ installed and ``LIFEDRAW_NO_JIT`` is not set. Tests run both and compare.
 """
 from __future__ import annotations
 
+import math
 import os
 
 import numpy as np
@@ -243,3 +244,81 @@ _take_accepted_jit = _jit(_take_accepted_py)
 
 def take_accepted(x, status, out, start):
     return _take_accepted_jit(x, status, out, start)
+
+
+# ---- one renewal round of a fleet (engine.fleet) ----------------------------------------------
+#
+# Every socket still inside the horizon moves its clock on by its new life (cut at its preventive
+# age, if any), the event is counted in its run's period ((k - 1) p, k p] (as the renewal function
+# counts), and the sockets still inside are packed to the front of ``clock`` and ``run``.
+
+def _renewal_step_py(clock, life, limit, per_unit_limit, has_limit, run, has_run, horizon, inv_period,
+                     n_periods, replacements, failures):
+    k = 0
+    for i in range(clock.shape[0]):
+        step = life[i]
+        failed = True
+        if has_limit:
+            cut = limit[i] if per_unit_limit else limit[0]
+            if step > cut:
+                step = cut
+                failed = False
+        c = clock[i] + step
+        if c <= horizon:
+            slot = int(math.ceil(c * inv_period)) - 1
+            if slot < 0:
+                slot = 0
+            elif slot > n_periods - 1:
+                slot = n_periods - 1
+            if has_run:
+                slot += run[i]
+                run[k] = run[i]
+            replacements[slot] += 1
+            if failed:
+                failures[slot] += 1
+            clock[k] = c
+            k += 1
+    return k
+
+
+_renewal_step_jit = _jit(_renewal_step_py)
+
+
+def _renewal_step_numpy(clock, life, limit, per_unit_limit, has_limit, run, has_run, horizon, inv_period,
+                        n_periods, replacements, failures):
+    n = clock.shape[0]
+    failed = np.ones(n, dtype=bool)
+    step = life
+    if has_limit:
+        cut = limit if per_unit_limit else limit[0]
+        failed = life <= cut
+        step = np.minimum(life, cut)
+    c = clock + step
+    inside = c <= horizon
+    c = c[inside]
+    slot = np.clip(np.ceil(c * inv_period).astype(np.int64) - 1, 0, n_periods - 1)
+    if has_run:
+        kept = run[inside]
+        slot += kept
+        run[:c.size] = kept
+    replacements += np.bincount(slot, minlength=replacements.size)
+    failures += np.bincount(slot[failed[inside]], minlength=failures.size)
+    clock[:c.size] = c
+    return int(c.size)
+
+
+def renewal_step(clock, life, limit, run, horizon, period, n_periods, replacements, failures, *, use_jit=True):
+    """One round for the sockets in ``clock`` (their clocks) with new lives ``life``: counts into
+    ``replacements``/``failures`` (int64, one per run x period), packs the sockets still inside the
+    horizon to the front of ``clock`` (and ``run``, each socket's first bin; None for one run) and
+    returns how many they are. ``limit``: None, a number, or one cut per socket."""
+    has_limit = limit is not None
+    limit_arr = np.ascontiguousarray(np.atleast_1d(np.asarray(limit if has_limit else 0.0, dtype=np.float64)))
+    per_unit = has_limit and limit_arr.size == clock.shape[0] and np.ndim(limit) > 0
+    has_run = run is not None
+    run_arr = run if has_run else np.zeros(1, dtype=np.int64)
+    args = (clock, life, limit_arr, per_unit, has_limit, run_arr, has_run, float(horizon), 1.0 / float(period),
+            int(n_periods), replacements, failures)
+    if use_jit and _renewal_step_jit is not None:
+        return int(_renewal_step_jit(*args))
+    return _renewal_step_numpy(*args)

@@ -18,6 +18,7 @@ from typing import Any, Mapping
 import tomli_w
 
 from .errors import ModelError, finite_number
+from .fleet_settings import FleetSettings, fleet_settings
 from .output_files import check_destination, write_atomically
 from .specs import target_from_spec
 from .target import Target
@@ -62,6 +63,8 @@ class Scenario:
     tolerance: float = 1e-10
     system: dict | None = None
     path: Path | None = None
+    #: The optional [fleet] table (engine.fleet_settings), validated.
+    fleet: FleetSettings | None = None
 
     # ---- the model -----------------------------------------------------------------
     def values(self, **overrides) -> dict[str, float]:
@@ -101,6 +104,8 @@ class Scenario:
         out["model"] = self.model
         if self.system:
             out["system"] = self.system
+        if self.fleet is not None:
+            out["fleet"] = self.fleet.to_table()
         return out
 
     def to_toml(self) -> str:
@@ -162,7 +167,7 @@ def _parameter(name: str, raw, path: str) -> Parameter:
 
 
 # The keys a scenario file may use; any other key is named with the closest known one.
-_TOP_KEYS = ("title", "story", "time_unit", "run", "parameters", "model", "system")
+_TOP_KEYS = ("title", "story", "time_unit", "run", "parameters", "model", "system", "fleet")
 _RUN_KEYS = ("method", "seed", "sample_size", "mission_times", "tolerance")
 # Deeper than this, a scenario table is not a reliability model but a denial of service.
 MAX_NESTING = 64
@@ -247,7 +252,8 @@ def scenario_from_dict(data: Mapping, name: str, path: Path | None = None) -> Sc
                   method=_text("run.method", run.get("method", "auto"), 100),
                   seed=seed, sample_size=size, mission_times=missions,
                   tolerance=finite_number("run.tolerance", run.get("tolerance", 1e-10), positive=True),
-                  system=system, path=path)
+                  system=system, path=path,
+                  fleet=fleet_settings(data["fleet"]) if "fleet" in data else None)
     sc.target()  # fail early, with the field named, if the model is invalid
     return sc
 

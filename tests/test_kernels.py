@@ -52,3 +52,29 @@ def test_rejection_compiled_pass_gives_the_same_draws_and_counts(target, monkeyp
     # Same uniforms, same verdicts; positions agree to rounding (numba's log1p may
     # differ from numpy's in the last bit).
     np.testing.assert_allclose(a, b, rtol=1e-12, atol=0)
+
+
+@pytest.mark.parametrize("limit", [None, 0.7, "per socket"])
+@pytest.mark.parametrize("runs", [1, 3])
+def test_renewal_round_kernel_matches_its_numpy_twin(limit, runs):
+    # Same counts per (run, period) and the same sockets kept, in the same order, by both paths.
+    rng = np.random.default_rng(5)
+    n, periods = 30_000, 7
+    clock = rng.random(n) * 1.5
+    life = rng.exponential(0.5, n)
+    life[:4] = [0.0, 2.0, 0.7, 1e-300]                 # a zero life, one past the horizon, one at the cut
+    cut = rng.random(n) + 0.2 if limit == "per socket" else limit
+    run = np.repeat(np.arange(runs, dtype=np.int64) * periods, n // runs) if runs > 1 else None
+    out = []
+    for use_jit in (True, False):
+        c, r = clock.copy(), None if run is None else run.copy()
+        repl, fail = np.zeros(runs * periods, np.int64), np.zeros(runs * periods, np.int64)
+        k = kernels.renewal_step(c, life, cut, r, 2.0, 2.0 / periods, periods, repl, fail, use_jit=use_jit)
+        out.append((k, c[:k], None if r is None else r[:k], repl, fail))
+    (k1, c1, r1, p1, f1), (k2, c2, r2, p2, f2) = out
+    assert k1 == k2 and 0 < k1 < n
+    np.testing.assert_array_equal(c1, c2)
+    np.testing.assert_array_equal(p1, p2)
+    np.testing.assert_array_equal(f1, f2)
+    if r1 is not None:
+        np.testing.assert_array_equal(r1, r2)

@@ -18,6 +18,11 @@ from ..target import Target
 # numpy's per-call overhead, small enough to keep the temporaries in cache.
 CHUNK = 1 << 16
 
+# Residual lives by rejection from the whole law where R(age) is at least this, for at most this
+# many rounds (about 90 tries at R = 0.05 leave one unit in 100 to the exact inverse).
+REJECTION_ABOVE = 0.05
+REJECTION_ROUNDS = 90
+
 COUNTER_NAMES = ("samples", "uniforms", "density_evals", "candidates", "accepted", "squeezed", "log_evals")
 
 
@@ -62,6 +67,21 @@ def check_output_buffer(out, n=None) -> np.ndarray:
     if n is not None and sample_size("n", n) != out.size:
         raise ModelError("out", f"holds {out.size} values but n = {n} draws were asked for")
     return out.reshape(-1)
+
+
+def residual_ages(ages) -> np.ndarray:
+    """Ages of units in service as a float array: finite and >= 0, or ModelError naming "ages"."""
+    try:
+        a = np.atleast_1d(np.asarray(ages, dtype=float))
+    except (TypeError, ValueError):
+        raise ModelError("ages", "must be a number or a list of numbers (ages in service)") from None
+    if a.ndim != 1:
+        raise ModelError("ages", f"must be one age per unit (a flat list), got shape {a.shape}")
+    bad = np.flatnonzero(~np.isfinite(a) | (a < 0))
+    if bad.size:
+        i = int(bad[0])
+        raise ModelError("ages", f"value {i + 1} is {a[i]!r}; ages are finite and >= 0")
+    return a
 
 
 class Sampler:
@@ -122,6 +142,72 @@ class Sampler:
             self._fill(out[start:start + CHUNK], rng)
         self.counts["samples"] += n
         return out
+
+    #: Can this method invert the conditional law itself (one uniform per residual life)? Methods
+    #: with their own inverse say so; otherwise a closed-form quantile of the target is enough.
+    own_inverse: ClassVar[bool] = False
+
+    def sample_residual(self, ages, rng=None) -> np.ndarray:
+        """Remaining lives of units that have survived to ``ages`` (one per age).
+
+        Where the method inverts (its own inverse, or a closed-form quantile of the target):
+        conditional inversion X = F^-1(F(a) + U R(a)) - a, written from the upper tail as
+        X = R^-1(V R(a)) - a with V = 1 - U in (0, 1], so units deep in the tail (R(a) tiny) keep
+        their digits (Devroye 1986, Non-Uniform Random Variate Generation, II.2). Other methods
+        draw from the whole law until a life exceeds the age (exact conditioning by rejection,
+        Devroye 1986, II.3) where R(a) >= 0.05, and invert the target's exact R for the rest.
+        """
+        a = residual_ages(ages)
+        rng = np.random.default_rng(rng)
+        # A fleet repeats each age once per run: R is evaluated once per distinct age.
+        distinct, where = np.unique(a, return_inverse=True)
+        survive = np.asarray(self.target.sf(distinct), dtype=float).reshape(-1)[where]
+        dead = np.flatnonzero(~(survive > 0))
+        if dead.size:
+            i = int(dead[0])
+            raise ModelError("ages", f"age {float(a[i]):g} (unit {i + 1}) lies beyond every lifetime "
+                                     "the model allows (reliability 0 there)")
+        if self.own_inverse or self.target.exact_quantile:
+            v = 1.0 - rng.random(a.shape)
+            self.counts["uniforms"] += a.size
+            self.counts["samples"] += a.size
+            return self.residual_from_uniforms(a, v, survive)
+        return self._residual_by_rejection(a, survive, rng)
+
+    def _residual_by_rejection(self, a, survive, rng) -> np.ndarray:
+        out = np.empty(a.shape)
+        fresh = a <= self.target.support[0]
+        if fresh.any():
+            out[fresh] = self.sample(int(fresh.sum()), rng) - a[fresh]
+        pending = np.flatnonzero(~fresh & (survive >= REJECTION_ABOVE))
+        for _ in range(REJECTION_ROUNDS):
+            if pending.size == 0:
+                break
+            life = self.sample(pending.size, rng)
+            ok = life > a[pending]
+            out[pending[ok]] = life[ok] - a[pending[ok]]
+            pending = pending[~ok]
+        rest = np.union1d(pending, np.flatnonzero(~fresh & (survive < REJECTION_ABOVE)))
+        if rest.size:
+            v = 1.0 - rng.random(rest.size)
+            self.counts["uniforms"] += rest.size
+            out[rest] = self.residual_from_uniforms(a[rest], v, survive[rest])
+        return out
+
+    def residual_from_uniforms(self, ages: np.ndarray, v: np.ndarray, survive: np.ndarray) -> np.ndarray:
+        """X = R^-1(v R(a)) - a for v in (0, 1] (see ``sample_residual``); ``survive`` = R(a)."""
+        x = np.asarray(self.upper_inverse(v * survive, survive), dtype=float) - ages
+        return np.maximum(x, np.maximum(self.target.support[0] - ages, 0.0))
+
+    def upper_inverse(self, w: np.ndarray, survive: np.ndarray) -> np.ndarray:
+        """R^-1(w): the target's inverse survival function (a closed form, or a safeguarded Newton
+        solve of R(t) = w, which keeps the digits of tiny w). ``survive`` = R(a) for each w;
+        methods with their own inverse may use it where R(a) keeps their u-error small. A law with
+        atoms (failure records) is inverted by its exact generalised inverse F^-1(1 - w), which lands
+        on the atoms themselves."""
+        if self.target.atoms.size and self.target.exact_quantile:
+            return self.target.quantile(1.0 - np.asarray(w, dtype=float))
+        return self.target.isf(w)
 
     # A method implements one of these two: ``_fill`` if it can draw in place,
     # else ``_draw``; each default is written in terms of the other.

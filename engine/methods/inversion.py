@@ -268,6 +268,35 @@ class NumericalInversion(Inversion):
         x = kernels.pinv_eval(u.ravel(), self._guide32, self.u_start, self._packed)
         return x.reshape(u.shape) if u.ndim else float(x[0])
 
+    own_inverse = True
+
+    def upper_inverse(self, w, survive):
+        """The polynomial at u = 1 - w where R(a) >= 1/2 (the residual's u-error then stays within
+        twice the sampler's). Deeper, the polynomial's value polished by a Newton step on the
+        target's exact R (its relative error then falls to about (u-error / R(a))^2); in the far tail
+        (w < 1e-6, beyond the polynomial's digits) the target's exact inverse survival function."""
+        w = np.asarray(w, dtype=float)
+        survive = np.asarray(survive, dtype=float)
+        young = survive >= 0.5
+        far = ~young & (w < 1e-6)
+        mid = ~young & ~far
+        out = np.empty(w.shape)
+        if young.any():
+            out[young] = self.quantile(1.0 - w[young])
+        if mid.any():
+            x = np.asarray(self.quantile(1.0 - w[mid]), dtype=float)
+            lo, hi = self.target.support
+            for _ in range(1):
+                f = np.asarray(self.target.pdf(x), dtype=float)
+                with np.errstate(all="ignore"):
+                    step = (np.asarray(self.target.sf(x), dtype=float) - w[mid]) / f
+                nxt = x + step
+                x = np.where(np.isfinite(nxt) & (f > 0) & (nxt > lo) & (nxt < hi), nxt, x)
+            out[mid] = x
+        if far.any():
+            out[far] = self.target.isf(w[far])
+        return out
+
     def _fill(self, out, rng):
         # Uniforms are drawn straight into the output and transformed in place.
         rng.random(out=out)

@@ -16,6 +16,7 @@ from ..engine.cautions import CAUTION
 from ..engine.errors import ModelError
 from .compare_command import add_compare_parser
 from .dashboard_commands import add_report_parser, add_serve_parser
+from .fleet_command import add_fleet_parser
 from .generate_command import add_generate_parser
 from .numbers import seed_number, whole_number
 
@@ -106,7 +107,7 @@ def build_parser() -> argparse.ArgumentParser:
     common(s)
     s.set_defaults(func=cmd_check)
 
-    for add in (add_compare_parser, add_serve_parser, add_report_parser, add_generate_parser):
+    for add in (add_compare_parser, add_serve_parser, add_report_parser, add_generate_parser, add_fleet_parser):
         add(sub)
     return p
 
