@@ -26,6 +26,8 @@ from lifedraw.engine.families import FAMILIES
 from lifedraw.engine.scenarios import scenario_files
 
 from . import plots
+from .escaping import css_token, file_stem
+from .notices import error_box, show_error
 from .state import FORMULA_KINDS, TOLERANCES, Workbench
 
 log = logging.getLogger("lifedraw.dashboard")
@@ -66,23 +68,8 @@ def _html(text="", css=TEXT_CSS, **kw) -> pn.pane.HTML:
                         margin=kw.pop("margin", (0, 10)), **kw)
 
 
-def _alert() -> pn.pane.Alert:
-    return pn.pane.Alert("", alert_type="danger", visible=False, sizing_mode="stretch_width", margin=(4, 10))
-
-
-def _show(alert: pn.pane.Alert, message: str | None) -> None:
-    """Put a field's message in its alert: one line per bad row of a file, and a formula's
-    caret line in a fixed-width font so it points at the right column."""
-    if message:
-        first, _, rest = str(message).partition("\n")
-        rows = first.split("; row ")
-        text = "<br>".join([html.escape(rows[0]), *(f"row {html.escape(r)}" for r in rows[1:])])
-        if rest:
-            text += (f'<pre style="margin:6px 0 0 0;font-size:12.5px;background:none;border:none;'
-                     f'padding:0">{html.escape(rest).replace(" ", "&nbsp;")}</pre>')
-            # (non-breaking spaces: the alert's Markdown would strip the caret line's indent)
-        alert.object = text
-    alert.visible = bool(message)
+_alert = error_box     # the error box next to a field (escaped HTML, see notices.py)
+_show = show_error
 
 
 def scenario_titles() -> dict[str, str]:
@@ -237,7 +224,7 @@ class ModelCell(Cell):
             fmt = "%.3g" if (abs(p.high) < 0.01 or abs(p.high) >= 1e5 or p.step < 1e-3) else "%.4g"
             w = pn.widgets.FloatSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
                                        format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
-                                       css_classes=[f"ld-slider-{name}"])
+                                       css_classes=[css_token(name, "ld-slider")])
             w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new), "value_throttled")
             w.param.watch(lambda e: self.on_drag(), "value")     # arrives while the handle moves
             widgets[name] = w
@@ -712,7 +699,7 @@ class ReportCell(Cell):
         self.error = _alert()
         self.download = pn.widgets.FileDownload(label="Download the report", visible=False, width=220,
                                                 button_type="success")
-        self.toml = pn.widgets.FileDownload(callback=self._toml, filename=f"{state.scenario.name}.toml",
+        self.toml = pn.widgets.FileDownload(callback=self._toml, filename=f"{file_stem(state.scenario.name)}.toml",
                                             label="Download scenario file (.toml)", width=260,
                                             button_type="default")
         state.param.watch(lambda e: self._renamed(), "version")
@@ -722,7 +709,7 @@ class ReportCell(Cell):
         return [pn.Row(self.write, self.download, self.toml, margin=0), self.path, self.error]
 
     def _renamed(self):
-        self.toml.filename = f"{self.state.scenario.name}.toml"
+        self.toml.filename = f"{file_stem(self.state.scenario.name)}.toml"
 
     def _toml(self):
         return io.StringIO(self.state.scenario_toml())
