@@ -6,7 +6,6 @@ user action or a batch causes is grouped with ``pn.io.hold`` into one message.
 """
 from __future__ import annotations
 
-import asyncio
 import html
 import io
 import logging
@@ -26,9 +25,11 @@ from lifedraw.engine.families import FAMILIES
 from lifedraw.engine.scenarios import scenario_files
 
 from . import plots
+from .background import off_loop
 from .escaping import css_token, file_stem
 from .notices import error_box, show_error
 from .state import FORMULA_KINDS, TOLERANCES, Workbench
+from .uploads import UPLOAD_LIMIT_HTML, check_size, latest_file, upload_widget
 
 log = logging.getLogger("lifedraw.dashboard")
 
@@ -165,8 +166,9 @@ class ModelCell(Cell):
             "exp, log, sqrt, the functions the formula language lists, and the parameters you name; a "
             "density need not be normalised. Each parameter gets a slider around its value.</p>")
 
-        self.upload = pn.widgets.FileInput(accept=".csv,text/csv", multiple=False, width=300)
-        self.upload.param.watch(lambda e: self.act(self._uploaded), "value")
+        self.upload = upload_widget()
+        self.upload.param.watch(self._uploaded, "value")
+        self.upload_status = _html(css_classes=["ld-upload-status"])
         self.upload_error = _alert()
         self.upload_help = _html(
             '<p class="ld-small ld-muted"><b>Failure times</b>: a header row with <code>time</code> and '
@@ -193,7 +195,8 @@ class ModelCell(Cell):
                 pn.Column(pn.pane.HTML("<h3>Edit the model</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
                           editor, sizing_mode="stretch_width"),
                 pn.Column(pn.pane.HTML("<h3>Field data (CSV)</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
-                          self.upload, self.upload_help, self.upload_error, width=380),
+                          self.upload, self.upload_status, self.upload_error, self.upload_help,
+                          _html(UPLOAD_LIMIT_HTML), width=380),
                 sizing_mode="stretch_width"),
         ]
 
@@ -285,10 +288,29 @@ class ModelCell(Cell):
         else:
             self.state.apply_formula(self.kind.value, self.expr.value, self.support.value, self.params.value)
 
-    def _uploaded(self):
-        if self.upload.value is None:
+    async def _uploaded(self, event):
+        """Parse and fit the uploaded file in a worker thread (a large file takes seconds), then adopt it."""
+        arrived = latest_file(self.upload.value)
+        if arrived is None:
             return
-        self.state.load_field_data(self.upload.value, self.upload.filename or "field-data.csv")
+        name, data = arrived
+        s = self.state
+        log.info("upload %s received (%d bytes)", file_stem(name), len(data))
+        self.upload_status.object = (f'<p class="ld-muted">Reading {html.escape(name)} '
+                                     f"({len(data) / 1e6:.1f} MB)…</p>")
+
+        def prepare():
+            check_size(data, name)
+            sc = s.field_data_scenario(data, name)
+            return sc, s.fit_model(sc, "auto")
+
+        result = await off_loop(prepare)
+        log.info("upload %s processed", file_stem(name))
+        self.upload_status.object = ""
+        if isinstance(result, Exception):
+            self.act(s.file_error, "upload", result)
+        else:
+            self.act(s.adopt_field_data, *result)
 
 
 # ---- 2. generator ----------------------------------------------------------------------------
@@ -584,8 +606,7 @@ class ComparisonCell(Cell):
         try:
             n, version = int(self.size.value), s.version
             target, seed, tol = s.target, int(s.seed), float(s.tolerance)
-            loop = asyncio.get_running_loop()
-            result = await loop.run_in_executor(None, _measure, target, n, seed, tol)
+            result = await off_loop(_measure, target, n, seed, tol)
             with pn.io.hold(freeze=True):
                 if s.version == version:
                     s.set_comparison(result, n)
@@ -726,8 +747,7 @@ class ReportCell(Cell):
             scenario = s.current_scenario()
             path = default_report_path(self.report_dir, scenario)
             rows = list(s.comparison) or None
-            loop = asyncio.get_running_loop()
-            result = await loop.run_in_executor(None, _write_report, write_report, scenario, path, rows)
+            result = await off_loop(_write_report, write_report, scenario, path, rows)
             with pn.io.hold(freeze=True):
                 if isinstance(result, Exception):
                     s.file_error("report", result)
