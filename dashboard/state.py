@@ -392,12 +392,10 @@ class Workbench(param.Parameterized):
         self._system_life = None
         self._geometry = None
         self._model_curve = None
-        # Success settles the input that caused the refit; a new model source
-        # also settles the other sources, whose messages no longer apply.
-        settled = {field, "method"}
-        if field in ("scenario", "model", "upload"):
-            settled |= {"scenario", "model", "upload", "parameters"}
-        for f in settled:
+        # A working model settles every message about the inputs: the editor and the sliders now
+        # show this model, the stream and the comparison start afresh. Only a failed report
+        # (a folder, not the model) keeps its message.
+        for f in [f for f in self.errors if f != "report"]:
             self._set_error(f, None)
         with self._quiet():
             self.values = {k: p.value for k, p in sc.parameters.items()}
