@@ -7,10 +7,13 @@ batch, the geometry after a refit, then the next batch while the stream runs.
 A change of the state (a batch, a refit, a start) wakes the callback; the first
 tick that finds nothing to do removes it again. Each tick's updates go out as
 one message (``pn.io.hold``), whose end recomputes the document's model graph:
-the cost an idle tab used to pay four times a second.
+the cost an idle tab used to pay four times a second. While several tabs stream,
+their batches together take at most half of the loop (``LoopBudget``), so a new
+page opens and a slider answers between them.
 """
 from __future__ import annotations
 
+import collections
 import logging
 import time
 
@@ -24,11 +27,37 @@ TICK_MS = 250
 DRAG_GRACE_S = 0.6
 
 
+class LoopBudget:
+    """The share of the event loop that the streams of all sessions together may take, over a sliding
+    window: beyond it a stream skips its turn, so a new page or a user action finds the loop free."""
+
+    def __init__(self, share: float = 0.5, window: float = 2.0, clock=time.perf_counter):
+        self.share, self.window, self.clock = float(share), float(window), clock
+        self._spent: collections.deque = collections.deque()     # (when it ended, seconds)
+
+    def _used(self) -> float:
+        horizon = self.clock() - self.window
+        while self._spent and self._spent[0][0] < horizon:
+            self._spent.popleft()
+        return sum(seconds for _, seconds in self._spent)
+
+    def allows(self) -> bool:
+        return self._used() < self.share * self.window
+
+    def record(self, seconds: float) -> None:
+        self._spent.append((self.clock(), float(seconds)))
+
+
+#: One budget for the whole server: the streams share one event loop (one per process).
+STREAMS = LoopBudget()
+
+
 class PageUpdates:
     """Drive the stale cells and the stream of one session's page."""
 
-    def __init__(self, state, live, geometry, life):
+    def __init__(self, state, live, geometry, life, budget: LoopBudget = STREAMS):
         self.state, self.live, self.geometry, self.life = state, live, geometry, life
+        self.budget = budget
         self.yield_until = 0.0
         self.updates = 0          # ticks that changed the page (each one recomputes the document)
         self._doc = None
@@ -49,6 +78,9 @@ class PageUpdates:
         if not self.pending():
             self.sleep()
             return False
+        follow_up = self.live.stale or self.geometry.stale or self.life.stale
+        if not follow_up and not self.budget.allows():
+            return False              # the streams have had their share of the loop: skip this turn
         try:
             start = time.perf_counter()
             with pn.io.hold(freeze=True):
@@ -61,8 +93,10 @@ class PageUpdates:
                     self.life.refresh()
                 elif self.state.running:
                     self.state.step()
+            seconds = time.perf_counter() - start
+            self.budget.record(seconds)
             self.updates += 1
-            log.debug("tick took %.0f ms", 1e3 * (time.perf_counter() - start))
+            log.debug("tick took %.0f ms", 1e3 * seconds)
             return True
         except Exception:
             log.exception("unexpected error in the periodic update")

@@ -42,8 +42,8 @@ def workbench_server(env: dict | None = None, serve_args: str = "", attempts: in
         deadline = time.time() + 90
         try:
             while proc.poll() is None and time.time() < deadline:
-                try:
-                    urllib.request.urlopen(url, timeout=10).close()
+                try:      # the icon, not the page: a page request would build a session each time
+                    urllib.request.urlopen(url + "favicon.ico", timeout=10).close()
                     break
                 except (urllib.error.URLError, OSError):
                     time.sleep(0.3)

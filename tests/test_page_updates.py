@@ -12,7 +12,7 @@ import collections
 import pytest
 from bokeh.document import Document
 
-from lifedraw.dashboard.page_updates import PageUpdates
+from lifedraw.dashboard.page_updates import LoopBudget, PageUpdates
 from lifedraw.dashboard.state import Workbench
 from lifedraw.dashboard.views import GeometryCell, LifeCell, LiveCheckCell
 
@@ -24,7 +24,7 @@ def page():
     live, geometry, life = LiveCheckCell(state), GeometryCell(state), LifeCell(state)
     geometry.refresh()
     life.refresh()
-    updates = PageUpdates(state, live, geometry, life)
+    updates = PageUpdates(state, live, geometry, life, budget=LoopBudget(share=1e9))   # (the server's is shared)
     calls = collections.Counter()
     for owner, name in ((live, "refresh_secondary"), (geometry, "refresh"), (life, "refresh"), (state, "step")):
         original = getattr(owner, name)
@@ -92,3 +92,26 @@ def test_a_released_session_lets_go_of_its_draws(page):
     updates.detach()
     state.release()
     assert state.acc is None and state.table is None and not state.running
+
+
+def test_the_streams_share_of_the_loop_is_bounded():
+    now = [0.0]
+    budget = LoopBudget(share=0.5, window=2.0, clock=lambda: now[0])
+    assert budget.allows()
+    budget.record(0.6)
+    now[0] += 0.1
+    budget.record(0.5)
+    assert not budget.allows()            # 1.1 s of the last 2 s: more than half
+    now[0] += 1.95                        # the first entry leaves the window
+    assert budget.allows()
+
+
+def test_a_stream_waits_its_turn_when_the_budget_is_spent(page):
+    state, updates, calls = page
+    _settle(updates)
+    updates.budget = LoopBudget(share=0.5, window=3600.0)
+    updates.budget.record(3600.0)
+    state.start()
+    steps = calls["Workbench.step"]
+    assert updates.tick() is False and calls["Workbench.step"] == steps
+    assert updates.pending()              # still due: it runs once the budget allows
