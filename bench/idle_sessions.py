@@ -77,6 +77,12 @@ def cpu_percent(proc: psutil.Process, seconds: float) -> float:
     return 100.0 * (total() - before) / (time.perf_counter() - t0)
 
 
+def draws_so_far(page) -> int:
+    """The draw count the page shows on its batch marker ("... · N draws")."""
+    text = page.locator(".ld-redraw").inner_text()
+    return int(re.search(r"([\d,]+) draws", text).group(1).replace(",", ""))
+
+
 def stream(page) -> None:
     """Let the tab stream for a long time: the largest stop, then Start."""
     stop = page.locator(".ld-cell-2 input").nth(1)
@@ -140,8 +146,11 @@ def main(argv=None) -> int:
                 stream(page)
                 streaming.append(page)
             time.sleep(5)
+            draws = [draws_so_far(page) for page in streaming]
             results["streaming_cpu"] = cpu_percent(server, min(args.window, 10))
-            say(f"{args.streaming_tabs} streaming tabs: server CPU {results['streaming_cpu']:.1f} %")
+            rates = [(draws_so_far(page) - d) / min(args.window, 10) for page, d in zip(streaming, draws)]
+            say(f"{args.streaming_tabs} streaming tabs: server CPU {results['streaming_cpu']:.1f} %; "
+                f"{sum(rates):,.0f} draws/s in all ({min(rates):,.0f}-{max(rates):,.0f} per tab)")
             newcomers = []
             for _ in range(3):
                 page, seconds = open_page(browser, url)
