@@ -29,23 +29,31 @@ DRAG_GRACE_S = 0.6
 
 class LoopBudget:
     """The share of the event loop that the streams of all sessions together may take, over a sliding
-    window: beyond it a stream skips its turn, so a new page or a user action finds the loop free."""
+    window, split evenly between the streams that run: beyond its part a stream skips its turn, so a
+    new page or a user action finds the loop free, and no stream starves the others."""
 
     def __init__(self, share: float = 0.5, window: float = 2.0, clock=time.perf_counter):
         self.share, self.window, self.clock = float(share), float(window), clock
-        self._spent: collections.deque = collections.deque()     # (when it ended, seconds)
+        self._spent: collections.deque = collections.deque()     # (when it ended, seconds, whose)
 
-    def _used(self) -> float:
+    def _recent(self):
         horizon = self.clock() - self.window
         while self._spent and self._spent[0][0] < horizon:
             self._spent.popleft()
-        return sum(seconds for _, seconds in self._spent)
+        return self._spent
 
-    def allows(self) -> bool:
-        return self._used() < self.share * self.window
+    def allows(self, owner=None) -> bool:
+        recent = self._recent()
+        recent.append((self.clock(), 0.0, owner))       # asking counts the stream among those sharing
+        allowance = self.share * self.window
+        if sum(seconds for _, seconds, _ in recent) >= allowance:
+            return False
+        owners = {who for _, _, who in recent} | {owner}
+        mine = sum(seconds for _, seconds, who in recent if who == owner)
+        return mine < allowance / len(owners)
 
-    def record(self, seconds: float) -> None:
-        self._spent.append((self.clock(), float(seconds)))
+    def record(self, seconds: float, owner=None) -> None:
+        self._spent.append((self.clock(), float(seconds), owner))
 
 
 #: One budget for the whole server: the streams share one event loop (one per process).
@@ -79,7 +87,7 @@ class PageUpdates:
             self.sleep()
             return False
         follow_up = self.live.stale or self.geometry.stale or self.life.stale
-        if not follow_up and not self.budget.allows():
+        if not follow_up and not self.budget.allows(id(self)):
             return False              # the streams have had their share of the loop: skip this turn
         try:
             start = time.perf_counter()
@@ -94,7 +102,7 @@ class PageUpdates:
                 elif self.state.running:
                     self.state.step()
             seconds = time.perf_counter() - start
-            self.budget.record(seconds)
+            self.budget.record(seconds, id(self))
             self.updates += 1
             log.debug("tick took %.0f ms", 1e3 * seconds)
             return True

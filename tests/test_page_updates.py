@@ -115,3 +115,13 @@ def test_a_stream_waits_its_turn_when_the_budget_is_spent(page):
     steps = calls["Workbench.step"]
     assert updates.tick() is False and calls["Workbench.step"] == steps
     assert updates.pending()              # still due: it runs once the budget allows
+
+
+def test_each_stream_gets_an_even_part_of_the_budget():
+    now = [0.0]
+    budget = LoopBudget(share=0.5, window=2.0, clock=lambda: now[0])
+    budget.record(0.6, "busy")               # one stream took 0.6 s of the 1 s allowance
+    assert budget.allows("quiet")             # another has had nothing: its turn
+    assert not budget.allows("busy")          # more than its half (0.5 s) of the allowance
+    budget.record(0.1, "quiet")
+    assert budget.allows("quiet")
