@@ -12,9 +12,12 @@ from __future__ import annotations
 FLAG = "__pwned"
 
 
-def payload(tag: str) -> str:
-    """Markup that records ``tag`` in window.__pwned if it ever runs."""
+def payload(tag: str, short: bool = False) -> str:
+    """Markup that records ``tag`` in window.__pwned if it ever runs; ``short`` (under 100 characters,
+    the scenario loader's limit for a time unit) keeps the image and the ``</script>`` break-out only."""
     push = f'(window.{FLAG}=window.{FLAG}||[]).push("{tag}")'
+    if short:
+        return f"</script><img src=x onerror={push}>"
     return (f"<img src=x onerror={push}><svg onload={push}></svg><script>{push}</script>"
             f"</script><script>{push}</script>[link](javascript:{push})\"'>")
 
@@ -29,7 +32,7 @@ def hostile_scenario_toml() -> str:
     return f"""
 title = {lit("Hostile " + payload("title"))}
 story = {lit("First paragraph " + payload("story") + chr(10) + chr(10) + "Second & last.")}
-time_unit = {lit(payload("unit"))}
+time_unit = {lit(payload("unit", short=True))}
 
 [run]
 method = "auto"

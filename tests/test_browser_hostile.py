@@ -58,7 +58,7 @@ def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, brow
     cell1, cell6 = page.locator(".ld-cell-1"), page.locator(".ld-cell-6")
     # The text is there, literally: the title, the unit in the life table, the slider's label.
     _wait_for(lambda: "<img src=x onerror=" in cell1.locator("h3").first.inner_text(), what="the title")
-    _wait_for(lambda: cell6.locator("table").count() > 0 and "MTTF (<img src=x" in cell6.locator("table").first.inner_text(),
+    _wait_for(lambda: cell6.locator("table").count() > 0 and "MTTF (</script><img src=x" in cell6.locator("table").first.inner_text(),
               what="the life table")
     assert "[link](javascript:" in cell1.locator(".ld-description p").first.inner_text()
     assert any('push("label")' in t for t in cell1.locator(".bk-slider-title").all_inner_texts())
@@ -102,7 +102,7 @@ def test_hostile_scenario_text_is_shown_not_run_in_the_saved_report(hostile_serv
     _wait_for(lambda: report.locator("canvas").count() >= 5, timeout=60, what="the report's plots")
     report.wait_for_timeout(500)
     assert "<img src=x onerror=" in report.locator("h1").inner_text()
-    assert "MTTF (<img src=x" in report.locator("#life").inner_text()
+    assert "MTTF (</script><img src=x" in report.locator("#life").inner_text()
     assert 'push("label")' in report.locator("#model").inner_text()
     assert _flag(report) is None, f"markup ran in the report: {_flag(report)}"
     assert r_dialogs == [] and dialogs == []

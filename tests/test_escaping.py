@@ -61,7 +61,7 @@ def test_life_table_escapes_the_time_unit(hostile):
                "n": 0, "total": 0}
     out = plots.life_table(figures, hostile.time_unit)
     assert not TAG.search(out)
-    assert "MTTF (&lt;img src=x" in out
+    assert "MTTF (&lt;/script&gt;&lt;img src=x" in out
 
 
 def test_parameters_table_escapes_names_and_labels(hostile):
