@@ -62,7 +62,7 @@ def open_page(browser, url: str) -> tuple:
         ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:")) else r.abort())
     start = time.perf_counter()
     page.goto(url)
-    page.wait_for_selector(".ld-cell-7", timeout=180_000)
+    page.wait_for_selector(".ld-cell-8", timeout=180_000)
     page.wait_for_selector(".ld-redraw", timeout=180_000)
     return page, time.perf_counter() - start
 

@@ -54,7 +54,7 @@ def _wait_for(condition, timeout=30.0, what="the page"):
 def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, browser):
     url, _ = hostile_server
     page, dialogs, outside, errors = offline_page(browser, url)
-    page.wait_for_selector(".ld-cell-7", timeout=90_000)
+    page.wait_for_selector(".ld-cell-8", timeout=90_000)
     cell1, cell6 = page.locator(".ld-cell-1"), page.locator(".ld-cell-6")
     # The text is there, literally: the title, the unit in the life table, the slider's label.
     _wait_for(lambda: "<img src=x onerror=" in cell1.locator("h3").first.inner_text(), what="the title")
@@ -90,9 +90,9 @@ def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, brow
 def test_hostile_scenario_text_is_shown_not_run_in_the_saved_report(hostile_server, browser):
     url, reports = hostile_server
     page, dialogs, outside, errors = offline_page(browser, url)
-    page.wait_for_selector(".ld-cell-7", timeout=90_000)
-    page.locator(".ld-cell-7 button", has_text="Write HTML report").click()
-    page.wait_for_selector(".ld-cell-7 .ld-path", timeout=120_000)
+    page.wait_for_selector(".ld-cell-8", timeout=90_000)
+    page.locator(".ld-cell-8 button", has_text="Write HTML report").click()
+    page.wait_for_selector(".ld-cell-8 .ld-path", timeout=120_000)
     assert _flag(page) is None
     written = sorted(reports.glob("*.html"))
     assert len(written) == 1 and written[0].name.startswith("lifedraw-hostile-")

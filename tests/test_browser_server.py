@@ -54,7 +54,7 @@ def _log_time(log, pattern, timeout=180.0) -> float:
 
 
 def _loaded(page):
-    page.wait_for_selector(".ld-cell-7", timeout=180_000)
+    page.wait_for_selector(".ld-cell-8", timeout=180_000)
     page.wait_for_selector(".ld-redraw", timeout=180_000)
 
 
