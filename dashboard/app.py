@@ -1,8 +1,9 @@
 """Compose the workbench page, one state per browser session, and serve it on loopback.
 Panel/Bokeh server (Tornado); every script and stylesheet is served by the app itself, none from a CDN.
 
-``create_app`` is called once per session; the periodic callback draws one
-bounded batch per tick, so the page never freezes and each tab has its own stream.
+``create_app`` is called once per session; its ``PageUpdates`` draws one bounded
+batch per tick while the stream runs, so the page never freezes, each tab has its
+own stream, and an idle tab costs nothing.
 """
 from __future__ import annotations
 
@@ -18,6 +19,8 @@ import panel as pn
 
 from .defaults import DEFAULT_ADDRESS, DEFAULT_PORT
 from .fleet_view import FleetView
+from .host_guard import guard
+from .page_updates import PageUpdates
 from .state import Workbench
 from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveCheckCell, ModelCell, ReportCell,
                     caution_banner)
@@ -25,8 +28,11 @@ from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveC
 log = logging.getLogger("lifedraw.dashboard")
 
 TITLE = "lifedraw — lifetime sampler workbench"
-TICK_MS = 250
-DRAG_GRACE_S = 0.6
+# A closed tab's session is destroyed (and its state released) once it has had no connection for
+# SESSION_LIFETIME_MS, checked every SESSION_CHECK_MS: within about 10 s, not Bokeh's default ~30 s.
+# The lifetime also bounds the time between a page's arrival and its WebSocket connection.
+SESSION_CHECK_MS = 2_000
+SESSION_LIFETIME_MS = 8_000
 PAGE_CSS = """
 body { background: #f3f4f6; font-family: -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif; }
 """
@@ -79,40 +85,13 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
     """Build one session's page: a fresh ``Workbench``, the cells that present it and the fleet step."""
     state = Workbench(scenario)
     report_dir = Path(report_dir or default_report_dir())
-    # While a slider handle moves the stream yields, so its release finds the server idle.
-    yield_until = [0.0]
-
-    def dragging():
-        yield_until[0] = time.monotonic() + DRAG_GRACE_S
-
-    model, generator = ModelCell(state, on_drag=dragging), GeneratorCell(state)
+    model, generator = ModelCell(state, on_drag=lambda: updates.dragging()), GeneratorCell(state)
     live, geometry, comparison = LiveCheckCell(state), GeometryCell(state), ComparisonCell(state)
     life, report = LifeCell(state), ReportCell(state, report_dir)
     fleet = FleetView(state)
     geometry.refresh()
     life.refresh()
-
-    def tick():
-        # One bounded piece of work per tick, so the server answers the next user action
-        # quickly: a batch (histogram), then the live check's other plots and the life
-        # figures, then, after a refit, the geometry; nothing while a slider moves.
-        if time.monotonic() < yield_until[0]:
-            return
-        try:
-            start = time.perf_counter()
-            with pn.io.hold(freeze=True):
-                if live.stale:
-                    live.refresh_secondary()
-                    life.refresh()
-                elif geometry.stale:
-                    geometry.refresh()
-                elif life.stale:
-                    life.refresh()
-                elif state.running:
-                    state.step()
-            log.debug("tick took %.0f ms", 1e3 * (time.perf_counter() - start))
-        except Exception:
-            log.exception("unexpected error in the periodic update")
+    updates = PageUpdates(state, live, geometry, life)
 
     header = pn.pane.HTML(
         f"<h1>{html.escape(TITLE)}</h1><p>Reproduce a reliability model with exact, fast random lifetimes, "
@@ -123,10 +102,19 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         *(cell.panel() for cell in (model, generator, live, geometry, comparison, life, fleet, report)),
         caution_banner(),
         sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
-    if pn.state.curdoc is not None and pn.state.curdoc.session_context is not None:
-        callback = pn.state.add_periodic_callback(tick, period=TICK_MS)
+    doc = pn.state.curdoc
+    if doc is not None and doc.session_context is not None:
+        updates.attach(doc)
         pn.state.onload(_settle_memory)
-        pn.state.on_session_destroyed(lambda ctx: (callback.stop(), gc.unfreeze()))
+        log.info("session %s opened", doc.session_context.id)
+
+        def release(context):
+            updates.detach()
+            state.release()
+            gc.unfreeze()
+            log.info("session %s released", context.id)
+
+        pn.state.on_session_destroyed(release)
     return page
 
 
@@ -147,7 +135,16 @@ def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: st
         origins |= {f"{socket.gethostname()}:{port}", f"{socket.getfqdn()}:{port}"}
     url = f"http://{address}:{port}/"
     print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
-    pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
-             websocket_origin=sorted(origins), show=show, threaded=False, title=TITLE, verbose=False)
+    server = pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
+                      websocket_origin=sorted(origins), show=show, start=False, threaded=False, title=TITLE,
+                      verbose=False, location=False,  # (the page reads no URL; Panel's reader fails on "[::1]") check_unused_sessions_milliseconds=SESSION_CHECK_MS,
+                      unused_session_lifetime_milliseconds=SESSION_LIFETIME_MS)
+    # Bokeh keeps its tornado application private; tornado's public add_handlers puts the guard in front.
+    guard(server._tornado, address)
+    server.start()
+    try:
+        server.io_loop.start()
+    except RuntimeError:    # the loop was stopped by Ctrl-C (Panel's signal handler)
+        pass
     print("lifedraw workbench: stopped", flush=True)
     return 0

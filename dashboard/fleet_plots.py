@@ -6,7 +6,6 @@ expectation, the age-replacement cost rate of Barlow & Proschan 1965, the warran
 """
 from __future__ import annotations
 
-import html
 
 import holoviews as hv
 import numpy as np
@@ -104,7 +103,7 @@ def warranty_plot(data: dict, unit: str, width=None, height=300) -> hv.Overlay:
 
 def fleet_summary_html(data: dict, unit: str) -> str:
     """The key numbers: fleet, totals with their exact references, spares, optimum, warranty."""
-    e = html.escape
+    e = str       # plain text: html_table escapes every cell (escaping here too would show "&lt;")
     rows = [["fleet", f"{data['units']:,} units, {data['runs']:,} runs, seed {data['seed']}, method {e(data['method'])}"],
             ["horizon", f"{fmt(data['horizon'])} {e(unit)} in {len(data['edges']) - 1} periods of {fmt(data['period'])}"],
             ["failures over the horizon", f"simulated mean {fmt(data['total_mean'])}"

@@ -7,7 +7,6 @@ pictures from the same data.
 """
 from __future__ import annotations
 
-import html
 import math
 
 import holoviews as hv
@@ -15,6 +14,8 @@ import numpy as np
 from bokeh.models import NumeralTickFormatter
 
 from lifedraw.engine.life import inside_interval, verdict_legend
+
+from .escaping import text
 
 if "bokeh" not in hv.Store.renderers:
     hv.extension("bokeh", logo=False)
@@ -418,13 +419,15 @@ def fmt(value, digits: int = 4) -> str:
         if abs(v) >= 1000:
             return f"{v:,.0f}"
         return f"{v:.{digits}g}"
-    return html.escape(str(value))
+    return text(value)
 
 
 def html_table(header: list[str], rows: list[list], css_class: str = "ld-table") -> str:
-    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
-    body = "".join("<tr>" + "".join(f"<td>{c}</td>" for c in row) + "</tr>" for row in rows)
-    return f'<table class="{css_class}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+    """An HTML table (a plain string: Panel's HTML pane shows a ``Markup`` object as text); every
+    header and cell is escaped unless it is ``Markup`` already."""
+    head = "".join(f"<th>{text(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{text(c)}</td>" for c in row) + "</tr>" for row in rows)
+    return f'<table class="{text(css_class)}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
 
 
 _COUNTER_LABELS = {
@@ -441,11 +444,11 @@ def counters_table(stats: dict, columns: int = 1) -> str:
     rows = []
     for key, label in _COUNTER_LABELS.items():
         if key in stats:
-            rows.append([html.escape(label), fmt(stats[key])])
+            rows.append([label, fmt(stats[key])])
     for key, value in stats.items():
         if key in _COUNTER_LABELS or isinstance(value, (dict, list, tuple)):
             continue
-        rows.append([html.escape(key.replace("_", " ")), fmt(value)])
+        rows.append([key.replace("_", " "), fmt(value)])
     per = max(1, -(-len(rows) // max(1, columns)))
     tables = [html_table(["counter", "value"], rows[i:i + per], "ld-table ld-compact")
               for i in range(0, len(rows), per)]
@@ -458,15 +461,15 @@ def counters_table(stats: dict, columns: int = 1) -> str:
 def comparison_table(rows: list[dict]) -> str:
     header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
               "squeeze share", "table bytes", "u-error (estimate)"]
-    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
+    head = "".join(f"<th>{text(h)}</th>" for h in header)
     body = []
     for r in rows:
-        name = f"<td><b>{html.escape(r['method'])}</b></td>"
+        name = f"<td><b>{text(r['method'])}</b></td>"
         if not r.get("applicable"):
             body.append(f'<tr class="ld-na">{name}<td colspan="{len(header) - 1}" class="ld-muted">'
-                        f"not applicable: {html.escape(r.get('reason', ''))}</td></tr>")
+                        f"not applicable: {text(r.get('reason', ''))}</td></tr>")
             continue
-        cells = [html.escape(str(r.get("variant") or "")), fmt(r.get("setup_ms"), 3),
+        cells = [text(r.get("variant") or ""), fmt(r.get("setup_ms"), 3),
                  fmt(r.get("draws_per_second"), 3), fmt(r.get("acceptance_rate")),
                  fmt(r.get("uniforms_per_sample")), fmt(r.get("density_evals_per_sample")),
                  fmt(r.get("squeeze_rate")), fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)]
@@ -499,12 +502,12 @@ def life_table(figures: dict, unit: str) -> str:
     for i, r in enumerate(exact["reliability"]):
         s = sample["reliability"][i] if sample else {}
         row(f"R({fmt(r['time'])} {unit})", s.get("estimate"), s.get("lower"), s.get("upper"), r["value"], pct=True)
-    legend = (f'<p class="ld-small ld-muted ld-verdict-legend">{html.escape(verdict_legend(conf))}</p>'
+    legend = (f'<p class="ld-small ld-muted ld-verdict-legend">{text(verdict_legend(conf))}</p>'
               if sample else "")
     return html_table(header, rows) + legend
 
 
 def parameters_table(parameters: dict) -> str:
-    rows = [[html.escape(p.name), html.escape(p.label or ""), fmt(p.value), f"{fmt(p.low)} to {fmt(p.high)}"]
+    rows = [[p.name, p.label or "", fmt(p.value), f"{fmt(p.low)} to {fmt(p.high)}"]
             for p in parameters.values()]
     return html_table(["parameter", "meaning", "value", "slider range"], rows)

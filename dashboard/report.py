@@ -8,10 +8,8 @@ Report cell. Plots are HoloViews elements rendered to plain Bokeh models
 from __future__ import annotations
 
 import datetime as _dt
-import html
 import importlib.metadata
 import platform
-import re
 import time
 from pathlib import Path
 
@@ -27,6 +25,7 @@ from lifedraw.engine.compare import MethodResult, compare_methods
 from lifedraw.engine.scenarios import Scenario
 
 from . import plots
+from .escaping import file_stem, paragraphs, text
 from .fleet_report import fleet_section
 from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,
                     qq_payload)
@@ -62,7 +61,7 @@ table.ld-compact { width: auto; }
 def default_report_path(directory, scenario: Scenario) -> Path:
     """``DIR/lifedraw-<scenario>-<date>-<time>.html``."""
     stamp = time.strftime("%Y%m%d-%H%M%S")
-    safe = re.sub(r"[^A-Za-z0-9_-]+", "-", scenario.name).strip("-") or "scenario"
+    safe = file_stem(scenario.name, "scenario")
     return Path(directory) / f"lifedraw-{safe}-{stamp}.html"
 
 
@@ -137,8 +136,8 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 
     inline_assets = _inline_assets()
     now = _dt.datetime.now().astimezone()
-    e = html.escape
-    story = e(scenario.story).replace("\n\n", "</p><p>").replace("\n", " ")
+    e = text     # every piece of the scenario's text is escaped where it enters the page
+    story = paragraphs(scenario.story)
     gof = _goodness_table(checked)
     params = plots.parameters_table(scenario.parameters) if scenario.parameters else \
         '<p class="muted">No parameters: the model is the recorded field data.</p>'
@@ -164,11 +163,11 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 
 <section id="run"><h2>Run</h2>
 {plots.html_table(["setting", "value"], [
-    ["method", f"{e(sampler.method)}{' (' + e(str(stats['variant'])) + ')' if stats.get('variant') else ''}"],
-    ["why", e(sampler.reason)], ["published method", e(type(sampler).reference)],
+    ["method", f"{sampler.method}{' (' + str(stats['variant']) + ')' if stats.get('variant') else ''}"],
+    ["why", sampler.reason], ["published method", type(sampler).reference],
     ["seed", str(seed)], ["sample size", f"{n:,}"], ["tolerance (u-error)", f"{tolerance:g}"],
     ["set-up", f"{1e3 * stats['setup_seconds']:.1f} ms"], ["drawing time", f"{seconds:.3f} s"],
-    ["mission times", ", ".join(f"{plots.fmt(t)} {e(unit)}" for t in scenario.mission_times) or "none"]],
+    ["mission times", ", ".join(f"{plots.fmt(t)} {unit}" for t in scenario.mission_times) or "none"]],
     "ld-table ld-compact")}
 </section>
 
@@ -200,7 +199,7 @@ values come from the model itself.</p>
 {fleet_html(d_fleet)}
 
 <section id="versions"><h2>Software</h2>
-{plots.html_table(["package", "version"], [[e(k), e(v)] for k, v in _versions().items()], "ld-table ld-compact")}
+{plots.html_table(["package", "version"], [[k, v] for k, v in _versions().items()], "ld-table ld-compact")}
 </section>
 
 <div class="caution"><b>Caution.</b> {e(CAUTION)} The draws are simulated from the stated model;
@@ -240,7 +239,7 @@ def _goodness_table(rep) -> str:
              plots.fmt(rep.chi2_pvalue)]]
     verdict = "no test rejects the model at alpha = 0.001" if rep.passed() else \
         "at least one test rejects the model at alpha = 0.001"
-    notes = "".join(f"<li>{html.escape(n)}</li>" for n in rep.notes)
+    notes = "".join(f"<li>{text(n)}</li>" for n in rep.notes)
     return (f"<h3>Goodness of fit ({rep.n:,} draws): {verdict}</h3>"
             + plots.html_table(["test", "statistic", "p-value"], rows, "ld-table ld-compact")
             + '<p class="muted">A test rejects when its p-value is below 0.001; a correct sampler is still '

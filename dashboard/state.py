@@ -365,18 +365,22 @@ class Workbench(param.Parameterized):
             self.param.update(method=method, tolerance=tol, seed=int(sc.seed),
                               stop_at=int(min(max(sc.sample_size, 1_000), 50_000_000)))
 
-    def _rebuild(self, sc: Scenario, field: str) -> bool:
-        """Fit a sampler to ``sc``'s model; adopt it and restart the stream only if that works."""
-        def build():
-            start = time.perf_counter()
-            target = sc.target()
-            sampler = fit(target, self.method, float(self.tolerance))
-            probe = sampler.sample(min(20_000, max(self.batch_size, 2_000)), self._probe_seed())
-            sampler.reset_counters()
-            table = CdfTable(target, probe)
-            return target, sampler, table, time.perf_counter() - start
+    def fit_model(self, sc: Scenario, method: str | None = None) -> tuple:
+        """Target, fitted sampler and cdf table of ``sc``'s model, and the seconds it took.
+        Changes nothing in the state, so it may run in a worker thread (see ``background``)."""
+        start = time.perf_counter()
+        target = sc.target()
+        sampler = fit(target, method or self.method, float(self.tolerance))
+        probe = sampler.sample(min(20_000, max(self.batch_size, 2_000)), self._probe_seed())
+        sampler.reset_counters()
+        table = CdfTable(target, probe)
+        return target, sampler, table, time.perf_counter() - start
 
-        built = self._guard(field, build)
+    def _rebuild(self, sc: Scenario, field: str, built: tuple | None = None) -> bool:
+        """Fit a sampler to ``sc``'s model (or take ``built``, fitted elsewhere); adopt it and
+        restart the stream only if that works."""
+        if built is None:
+            built = self._guard(field, self.fit_model, sc)
         if built is None:
             return False
         self.target, self.sampler, self.table, seconds = built
@@ -388,12 +392,10 @@ class Workbench(param.Parameterized):
         self._system_life = None
         self._geometry = None
         self._model_curve = None
-        # Success settles the input that caused the refit; a new model source
-        # also settles the other sources, whose messages no longer apply.
-        settled = {field, "method"}
-        if field in ("scenario", "model", "upload"):
-            settled |= {"scenario", "model", "upload", "parameters"}
-        for f in settled:
+        # A working model settles every message about the inputs: the editor and the sliders now
+        # show this model, the stream and the comparison start afresh. Only a failed report
+        # (a folder, not the model) keeps its message.
+        for f in [f for f in self.errors if f != "report"]:
             self._set_error(f, None)
         with self._quiet():
             self.values = {k: p.value for k, p in sc.parameters.items()}
@@ -499,40 +501,44 @@ class Workbench(param.Parameterized):
         return sc is not None and self._adopt_custom(sc, "model")
 
     def load_field_data(self, data, filename: str = "field data.csv") -> bool:
-        """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model."""
-        def build():
-            from lifedraw.engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
-            if sniff_layout(data) == "binned":
-                edges, counts = read_binned_csv(data)
-                model = {"kind": "histogram", "edges": edges.tolist(), "counts": counts.tolist(),
-                         "smooth": False}
-                what = f"{counts.size} bins, {counts.sum():g} failures"
-            else:
-                times, censored = read_failure_csv(data)
-                model = {"kind": "failures", "times": times.tolist(), "censored": censored.tolist()}
-                what = f"{int((~censored).sum())} failures, {int(censored.sum())} suspensions"
-            base = self.scenario
-            data_dict = {"title": f"Field data from {filename}",
-                         "story": f"Uploaded field data ({what}).",
-                         "time_unit": base.time_unit, "model": model,
-                         "run": {"method": "auto", "seed": self.seed, "sample_size": self.stop_at,
-                                 "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
-            stem = re.sub(r"[^A-Za-z0-9_-]+", "-", str(filename).rsplit(".", 1)[0]).strip("-") or "field-data"
-            return scenario_from_dict(data_dict, stem)
+        """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model.
+        The page runs the two steps before ``adopt_field_data`` in a worker thread instead."""
+        sc = self._guard("upload", self.field_data_scenario, data, filename)
+        built = sc and self._guard("upload", self.fit_model, sc, "auto")
+        return built is not None and self.adopt_field_data(sc, built)
 
-        sc = self._guard("upload", build)
-        if sc is None:
-            return False
+    def field_data_scenario(self, data, filename: str) -> Scenario:
+        """The scenario of uploaded field data (parsed and checked; raises ModelError). Changes nothing."""
+        from lifedraw.engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
+        if sniff_layout(data) == "binned":
+            edges, counts = read_binned_csv(data)
+            model = {"kind": "histogram", "edges": edges.tolist(), "counts": counts.tolist(), "smooth": False}
+            what = f"{counts.size} bins, {counts.sum():g} failures"
+        else:
+            times, censored = read_failure_csv(data)
+            model = {"kind": "failures", "times": times.tolist(), "censored": censored.tolist()}
+            what = f"{int((~censored).sum())} failures, {int(censored.sum())} suspensions"
+        base = self.scenario
+        data_dict = {"title": f"Field data from {filename}",
+                     "story": f"Uploaded field data ({what}).",
+                     "time_unit": base.time_unit, "model": model,
+                     "run": {"method": "auto", "seed": self.seed, "sample_size": self.stop_at,
+                             "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
+        stem = re.sub(r"[^A-Za-z0-9_-]+", "-", str(filename).rsplit(".", 1)[0]).strip("-") or "field-data"
+        return scenario_from_dict(data_dict, stem)
+
+    def adopt_field_data(self, sc: Scenario, built: tuple) -> bool:
+        """Make the uploaded field data (``sc``, fitted as ``built`` by ``fit_model(sc, "auto")``) the model."""
         saved = self.method
         with self._quiet():
             self.method = "auto"
-        if self._adopt_custom(sc, "upload"):
+        if self._adopt_custom(sc, "upload", built):
             return True
         with self._quiet():
             self.method = saved
         return False
 
-    def _adopt_custom(self, sc: Scenario, field: str) -> bool:
+    def _adopt_custom(self, sc: Scenario, field: str, built: tuple | None = None) -> bool:
         """Use a scenario made in this session, and offer it in the scenario picker."""
         previous, known = self.scenario_name, self.custom.get(sc.name)
         self.custom[sc.name] = sc
@@ -540,7 +546,7 @@ class Workbench(param.Parameterized):
             self.param.scenario_name.objects = [*self.param.scenario_name.objects, sc.name]
         with self._quiet():
             self.scenario_name = sc.name
-        if self._rebuild(sc, field):
+        if self._rebuild(sc, field, built):
             return True
         with self._quiet():
             self.scenario_name = previous
@@ -688,6 +694,15 @@ class Workbench(param.Parameterized):
                                 "machine in one process; draws/s is the median of 3 timed batches")
         self.comparison = list(result)
         return self.comparison
+
+    def release(self) -> None:
+        """The session has ended: stop, and let go of the draws and the tables derived from the model."""
+        with self._quiet():
+            self.running = False
+        self.acc = self.table = self._geometry = self._model_curve = self._rng = None
+        self._exact_life = self._system_life = None
+        self.custom = {}
+        self.trace = {"n": [], "ks_p": [], "acceptance": []}
 
     def current_scenario(self) -> Scenario:
         """The scenario as it stands now: current values, method, seed, tolerance and sample size."""

@@ -6,7 +6,6 @@ user action or a batch causes is grouped with ``pn.io.hold`` into one message.
 """
 from __future__ import annotations
 
-import asyncio
 import html
 import io
 import logging
@@ -26,7 +25,11 @@ from lifedraw.engine.families import FAMILIES
 from lifedraw.engine.scenarios import scenario_files
 
 from . import plots
+from .background import off_loop
+from .escaping import css_token, file_stem
+from .notices import error_box, show_error
 from .state import FORMULA_KINDS, TOLERANCES, Workbench
+from .uploads import UPLOAD_LIMIT_HTML, check_size, latest_file, upload_widget
 
 log = logging.getLogger("lifedraw.dashboard")
 
@@ -66,23 +69,8 @@ def _html(text="", css=TEXT_CSS, **kw) -> pn.pane.HTML:
                         margin=kw.pop("margin", (0, 10)), **kw)
 
 
-def _alert() -> pn.pane.Alert:
-    return pn.pane.Alert("", alert_type="danger", visible=False, sizing_mode="stretch_width", margin=(4, 10))
-
-
-def _show(alert: pn.pane.Alert, message: str | None) -> None:
-    """Put a field's message in its alert: one line per bad row of a file, and a formula's
-    caret line in a fixed-width font so it points at the right column."""
-    if message:
-        first, _, rest = str(message).partition("\n")
-        rows = first.split("; row ")
-        text = "<br>".join([html.escape(rows[0]), *(f"row {html.escape(r)}" for r in rows[1:])])
-        if rest:
-            text += (f'<pre style="margin:6px 0 0 0;font-size:12.5px;background:none;border:none;'
-                     f'padding:0">{html.escape(rest).replace(" ", "&nbsp;")}</pre>')
-            # (non-breaking spaces: the alert's Markdown would strip the caret line's indent)
-        alert.object = text
-    alert.visible = bool(message)
+_alert = error_box     # the error box next to a field (escaped HTML, see notices.py)
+_show = show_error
 
 
 def scenario_titles() -> dict[str, str]:
@@ -178,8 +166,9 @@ class ModelCell(Cell):
             "exp, log, sqrt, the functions the formula language lists, and the parameters you name; a "
             "density need not be normalised. Each parameter gets a slider around its value.</p>")
 
-        self.upload = pn.widgets.FileInput(accept=".csv,text/csv", multiple=False, width=300)
-        self.upload.param.watch(lambda e: self.act(self._uploaded), "value")
+        self.upload = upload_widget()
+        self.upload.param.watch(self._uploaded, "value")
+        self.upload_status = _html(css_classes=["ld-upload-status"])
         self.upload_error = _alert()
         self.upload_help = _html(
             '<p class="ld-small ld-muted"><b>Failure times</b>: a header row with <code>time</code> and '
@@ -206,7 +195,8 @@ class ModelCell(Cell):
                 pn.Column(pn.pane.HTML("<h3>Edit the model</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
                           editor, sizing_mode="stretch_width"),
                 pn.Column(pn.pane.HTML("<h3>Field data (CSV)</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
-                          self.upload, self.upload_help, self.upload_error, width=380),
+                          self.upload, self.upload_status, self.upload_error, self.upload_help,
+                          _html(UPLOAD_LIMIT_HTML), width=380),
                 sizing_mode="stretch_width"),
         ]
 
@@ -237,7 +227,7 @@ class ModelCell(Cell):
             fmt = "%.3g" if (abs(p.high) < 0.01 or abs(p.high) >= 1e5 or p.step < 1e-3) else "%.4g"
             w = pn.widgets.FloatSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
                                        format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
-                                       css_classes=[f"ld-slider-{name}"])
+                                       css_classes=[css_token(name, "ld-slider")])
             w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new), "value_throttled")
             w.param.watch(lambda e: self.on_drag(), "value")     # arrives while the handle moves
             widgets[name] = w
@@ -298,10 +288,29 @@ class ModelCell(Cell):
         else:
             self.state.apply_formula(self.kind.value, self.expr.value, self.support.value, self.params.value)
 
-    def _uploaded(self):
-        if self.upload.value is None:
+    async def _uploaded(self, event):
+        """Parse and fit the uploaded file in a worker thread (a large file takes seconds), then adopt it."""
+        arrived = latest_file(self.upload.value)
+        if arrived is None:
             return
-        self.state.load_field_data(self.upload.value, self.upload.filename or "field-data.csv")
+        name, data = arrived
+        s = self.state
+        log.info("upload %s received (%d bytes)", file_stem(name), len(data))
+        self.upload_status.object = (f'<p class="ld-muted">Reading {html.escape(name)} '
+                                     f"({len(data) / 1e6:.1f} MB)…</p>")
+
+        def prepare():
+            check_size(data, name)
+            sc = s.field_data_scenario(data, name)
+            return sc, s.fit_model(sc, "auto")
+
+        result = await off_loop(prepare)
+        log.info("upload %s processed", file_stem(name))
+        self.upload_status.object = ""
+        if isinstance(result, Exception):
+            self.act(s.file_error, "upload", result)
+        else:
+            self.act(s.adopt_field_data, *result)
 
 
 # ---- 2. generator ----------------------------------------------------------------------------
@@ -597,8 +606,7 @@ class ComparisonCell(Cell):
         try:
             n, version = int(self.size.value), s.version
             target, seed, tol = s.target, int(s.seed), float(s.tolerance)
-            loop = asyncio.get_running_loop()
-            result = await loop.run_in_executor(None, _measure, target, n, seed, tol)
+            result = await off_loop(_measure, target, n, seed, tol)
             with pn.io.hold(freeze=True):
                 if s.version == version:
                     s.set_comparison(result, n)
@@ -712,7 +720,7 @@ class ReportCell(Cell):
         self.error = _alert()
         self.download = pn.widgets.FileDownload(label="Download the report", visible=False, width=220,
                                                 button_type="success")
-        self.toml = pn.widgets.FileDownload(callback=self._toml, filename=f"{state.scenario.name}.toml",
+        self.toml = pn.widgets.FileDownload(callback=self._toml, filename=f"{file_stem(state.scenario.name)}.toml",
                                             label="Download scenario file (.toml)", width=260,
                                             button_type="default")
         state.param.watch(lambda e: self._renamed(), "version")
@@ -722,7 +730,7 @@ class ReportCell(Cell):
         return [pn.Row(self.write, self.download, self.toml, margin=0), self.path, self.error]
 
     def _renamed(self):
-        self.toml.filename = f"{self.state.scenario.name}.toml"
+        self.toml.filename = f"{file_stem(self.state.scenario.name)}.toml"
 
     def _toml(self):
         return io.StringIO(self.state.scenario_toml())
@@ -739,8 +747,7 @@ class ReportCell(Cell):
             scenario = s.current_scenario()
             path = default_report_path(self.report_dir, scenario)
             rows = list(s.comparison) or None
-            loop = asyncio.get_running_loop()
-            result = await loop.run_in_executor(None, _write_report, write_report, scenario, path, rows)
+            result = await off_loop(_write_report, write_report, scenario, path, rows)
             with pn.io.hold(freeze=True):
                 if isinstance(result, Exception):
                     s.file_error("report", result)

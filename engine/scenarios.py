@@ -10,6 +10,7 @@ import difflib
 import math
 import os
 import tomllib
+import unicodedata
 from importlib import resources
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -109,7 +110,10 @@ class Scenario:
         return out
 
     def to_toml(self) -> str:
-        header = f"# lifedraw scenario: {self.title}\n"
+        # A comment line ends at a new line and TOML allows no control characters in it: a title
+        # with either would break the file or smuggle in keys of its own.
+        title = " ".join("".join(" " if unicodedata.category(c)[0] == "C" else c for c in self.title).split())
+        header = f"# lifedraw scenario: {title}\n"
         return header + tomli_w.dumps(_toml_safe(self.to_dict()))
 
     def save(self, path, *, overwrite: bool = False) -> Path:

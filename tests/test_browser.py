@@ -64,7 +64,7 @@ def server(tmp_path_factory):
     deadline = time.time() + 180
     while True:
         try:
-            urllib.request.urlopen(url, timeout=60)
+            urllib.request.urlopen(url + "favicon.ico", timeout=60)   # the icon: a page would build a session
             break
         except (urllib.error.URLError, OSError):
             if proc.poll() is not None or time.time() > deadline:

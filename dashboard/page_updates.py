@@ -1,0 +1,138 @@
+"""The page's follow-up updates (after a batch or a refit), run only while there is something to do.
+An idle tab costs the server nothing: the periodic callback exists only while the stream runs or a cell is stale.
+
+One bounded piece of work per tick keeps the server answering the next user
+action quickly: the live check's secondary plots and the life figures after a
+batch, the geometry after a refit, then the next batch while the stream runs.
+A change of the state (a batch, a refit, a start) wakes the callback; the first
+tick that finds nothing to do removes it again. Each tick's updates go out as
+one message (``pn.io.hold``), whose end recomputes the document's model graph:
+the cost an idle tab used to pay four times a second. While several tabs stream,
+their batches together take at most half of the loop (``LoopBudget``), so a new
+page opens and a slider answers between them.
+"""
+from __future__ import annotations
+
+import collections
+import logging
+import time
+
+import panel as pn
+
+log = logging.getLogger("lifedraw.dashboard")
+
+#: Period of the follow-up updates while there is work.
+TICK_MS = 250
+#: While a slider handle moves the stream yields, so its release finds the server idle.
+DRAG_GRACE_S = 0.6
+
+
+class LoopBudget:
+    """The share of the event loop that the streams of all sessions together may take, over a sliding
+    window, split evenly between the streams that run: beyond its part a stream skips its turn, so a
+    new page or a user action finds the loop free, and no stream starves the others."""
+
+    def __init__(self, share: float = 0.5, window: float = 2.0, clock=time.perf_counter):
+        self.share, self.window, self.clock = float(share), float(window), clock
+        self._spent: collections.deque = collections.deque()     # (when it ended, seconds, whose)
+
+    def _recent(self):
+        horizon = self.clock() - self.window
+        while self._spent and self._spent[0][0] < horizon:
+            self._spent.popleft()
+        return self._spent
+
+    def allows(self, owner=None) -> bool:
+        recent = self._recent()
+        recent.append((self.clock(), 0.0, owner))       # asking counts the stream among those sharing
+        allowance = self.share * self.window
+        if sum(seconds for _, seconds, _ in recent) >= allowance:
+            return False
+        owners = {who for _, _, who in recent} | {owner}
+        mine = sum(seconds for _, seconds, who in recent if who == owner)
+        return mine < allowance / len(owners)
+
+    def record(self, seconds: float, owner=None) -> None:
+        self._spent.append((self.clock(), float(seconds), owner))
+
+
+#: One budget for the whole server: the streams share one event loop (one per process).
+STREAMS = LoopBudget()
+
+
+class PageUpdates:
+    """Drive the stale cells and the stream of one session's page."""
+
+    def __init__(self, state, live, geometry, life, budget: LoopBudget = STREAMS):
+        self.state, self.live, self.geometry, self.life = state, live, geometry, life
+        self.budget = budget
+        self.yield_until = 0.0
+        self.updates = 0          # ticks that changed the page (each one recomputes the document)
+        self._doc = None
+        self._callback = None
+        state.param.watch(lambda e: self.wake(), ["batch", "version", "running"])
+
+    # ---- what there is to do -------------------------------------------------------------
+    def dragging(self) -> None:
+        self.yield_until = time.monotonic() + DRAG_GRACE_S
+
+    def pending(self) -> bool:
+        return bool(self.live.stale or self.geometry.stale or self.life.stale or self.state.running)
+
+    def tick(self) -> bool:
+        """Do one piece of work; returns whether the page changed."""
+        if time.monotonic() < self.yield_until:
+            return False
+        if not self.pending():
+            self.sleep()
+            return False
+        follow_up = self.live.stale or self.geometry.stale or self.life.stale
+        if not follow_up and not self.budget.allows(id(self)):
+            return False              # the streams have had their share of the loop: skip this turn
+        try:
+            start = time.perf_counter()
+            with pn.io.hold(freeze=True):
+                if self.live.stale:
+                    self.live.refresh_secondary()
+                    self.life.refresh()
+                elif self.geometry.stale:
+                    self.geometry.refresh()
+                elif self.life.stale:
+                    self.life.refresh()
+                elif self.state.running:
+                    self.state.step()
+            seconds = time.perf_counter() - start
+            self.budget.record(seconds, id(self))
+            self.updates += 1
+            log.debug("tick took %.0f ms", 1e3 * seconds)
+            return True
+        except Exception:
+            log.exception("unexpected error in the periodic update")
+            return False
+
+    # ---- the periodic callback (server sessions only) -----------------------------------------
+    @property
+    def awake(self) -> bool:
+        return self._callback is not None
+
+    def attach(self, doc) -> None:
+        """Run the ticks on ``doc`` (a Bokeh document of a server session) while there is work."""
+        self._doc = doc
+        self.wake()
+
+    def wake(self) -> None:
+        if self._doc is not None and self._callback is None:
+            self._callback = self._doc.add_periodic_callback(self.tick, TICK_MS)
+
+    def sleep(self) -> None:
+        if self._callback is not None:
+            callback, self._callback = self._callback, None
+            try:
+                self._doc.remove_periodic_callback(callback)
+            except ValueError:       # already removed with the session
+                pass
+
+    def detach(self) -> None:
+        """The session has ended: stop for good."""
+        self.sleep()
+        self._doc = None
