@@ -163,3 +163,15 @@ def test_compare_honours_seed_0_and_the_tolerance(monkeypatch, capsys):
     seen.clear()
     assert cli("compare", "gearbox-wearout", "-n", "1000") == 0
     assert seen["rng"] == 4101 and seen["tolerance"] == 1e-10          # the scenario's own
+
+
+@pytest.mark.parametrize("unit, column", [
+    ("hours", "lifetime_hours"),
+    ("h\n1e9", "lifetime_h_1e9"),                 # a new line would add a row of data
+    ("=HYPERLINK(\"x\")", "lifetime_HYPERLINK_x"),  # a leading = would be a spreadsheet formula
+    ("d,ays", "lifetime_d_ays"),                  # a comma would split the column
+])
+def test_the_csv_header_carries_the_unit_as_one_safe_cell(unit, column):
+    # Reference for the hazard: OWASP's "CSV injection" note (cells starting with = + - @ run as formulas).
+    from lifedraw.cli.main import csv_column_name
+    assert csv_column_name("lifetime", unit) == column

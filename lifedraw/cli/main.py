@@ -7,6 +7,7 @@ the engine alone, ``serve`` and ``report`` load the dashboard only when called.
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 from pathlib import Path
 
@@ -19,6 +20,13 @@ from .dashboard_commands import add_report_parser, add_serve_parser
 from .fleet_command import add_fleet_parser
 from .generate_command import add_generate_parser
 from .numbers import seed_number, whole_number
+
+
+def csv_column_name(prefix: str, unit: str) -> str:
+    """A CSV header cell from user text: letters, digits, '_' and '-' only, so a unit can neither add
+    rows (new lines), split columns (commas, quotes) nor start a spreadsheet formula (=, +, -, @)."""
+    safe = re.sub(r"[^0-9A-Za-z_-]+", "_", unit).strip("_-") or "unit"
+    return f"{prefix}_{safe}"
 
 
 def cmd_scenarios(args) -> int:
@@ -58,7 +66,7 @@ def cmd_sample(args) -> int:
         if suffix == ".npy":
             np.save(fh, x)
         elif suffix == ".csv":
-            np.savetxt(fh, x, fmt="%.17g", header=f"lifetime_{sc.time_unit}", comments="")
+            np.savetxt(fh, x, fmt="%.17g", header=csv_column_name("lifetime", sc.time_unit), comments="")
         else:
             np.savetxt(fh, x, fmt="%.17g")
 
