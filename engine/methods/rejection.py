@@ -143,9 +143,10 @@ class Rejection(HatDrawing, HatPictures, HatConstruction, LogDensityScan, Sample
         self.FL, self.SR = number(meta, "FL", low=0.0, high=1.0), number(meta, "SR", low=0.0, high=1.0)
         if np.any(np.isinf(self.seg_qa) & (self.seg_qa > 0)):
             raise ModelError("path", "the sampler file's 'seg_qa' table holds +inf; the file is damaged")
-        self._tabulate()
         # The hat's area is at least the density's (1); a smaller or non-finite one is not a hat.
-        if not (1.0 - 1e-6 <= self.total < 1e6):
-            raise ModelError("path", f"the sampler file's hat has area {self.total:g}, which cannot cover a "
+        segment_total = self.FL + float(np.sum(self.seg_area)) + self.SR
+        self._tabulate()
+        if not (1.0 - 1e-6 <= min(self.total, segment_total) and max(self.total, segment_total) < 1e6):
+            raise ModelError("path", f"the sampler file's hat has area {min(self.total, segment_total):g}, which cannot cover a "
                                      "density of area 1; the file is damaged")
         self.extra_stats.update(table_checks.mapping(meta, "stats"))

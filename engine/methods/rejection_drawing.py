@@ -1,8 +1,8 @@
-"""Drawing from the hat: the table of pieces, a guide table to pick one, inversion of its
-exponential segment, the squeeze and density tests, exact inversion beyond the hat's ends.
+"""Drawing from the hat: flat steps and exponential rows picked by a guide table, one uniform
+per candidate with immediate acceptance below each row's squeeze floor, exact inversion beyond.
 
-Rejection with a squeeze (Hörmann, Leydold & Derflinger 2004, Automatic Nonuniform Random
-Variate Generation, ch. 4 and sec. 2.3 for the recycled uniform); guide table: Chen & Asau (1974).
+Rejection with a squeeze and recycled uniforms (Hörmann, Leydold & Derflinger 2004, Automatic
+Nonuniform Random Variate Generation, sec. 2.3 and ch. 4); guide table: Chen & Asau (1974).
 """
 from __future__ import annotations
 
@@ -16,20 +16,81 @@ from ..errors import sample_size
 from .base import check_output_buffer
 
 
+# A flat step of the hat may drop log f by at most this (its area then exceeds the
+# exponential segment's under it by at most a factor y / (1 - exp(-y)) ~ 1 + y/2).
+STEP_LOG_DROP = 0.02
+MAX_STEPS = 64            # per segment; a steeper segment keeps its exponential row
+
+
+def drawing_rows(x0, x1, xa, ya, slope, qa, qslope, seg_area, outside_mass, goal):
+    """The hat as drawn: each exponential segment either cut into equal flat steps (a
+    constant hat at the segment's higher end of each step, so a candidate's position is
+    a linear function of its uniform and no logarithm is needed: immediate acceptance
+    below the squeeze then costs a multiply and two compares; cf. the step hats of
+    ziggurat methods, Marsaglia & Tsang 2000, J. Stat. Softw. 5(8)), or kept whole.
+
+    A constant hat above the exponential one is still a hat, so draws stay exact. The
+    steps may cost acceptance only while the goal stays met: the drop per step is the
+    smaller of STEP_LOG_DROP and what the slack between 1/goal and the exponential hat's
+    area allows; with no slack (a budget stopped the construction) no segment is cut.
+    Rows: width, xa (anchor), dir (+1 or -1 from the anchor), ya (log hat at the
+    anchor), g (log-hat slope away from the anchor, <= 0), qa/qslope (log squeeze at
+    the anchor, slope in x), area.
+    """
+    width = x1 - x0
+    drop = np.abs(slope) * width
+    hat_mass = float(np.sum(seg_area))
+    slack = 1.0 / goal - (outside_mass + hat_mass)
+    allowed = 0.9 * 2.0 * slack / hat_mass if hat_mass > 0 else 0.0
+    step = min(STEP_LOG_DROP, allowed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        m = np.where(step > 0, np.ceil(drop / step), np.inf)
+    cut = np.isfinite(m) & (m <= MAX_STEPS) & (width > 0) & np.isfinite(drop)
+    m = np.where(cut, np.maximum(m, 1.0), 1.0).astype(np.int64)
+    seg = np.repeat(np.arange(width.size), m)
+    first = np.repeat(np.cumsum(m) - m, m)
+    i = np.arange(seg.size) - first
+    mm = m[seg]
+    left = x0[seg] + width[seg] * (i / mm)
+    right = np.where(i + 1 == mm, x1[seg], x0[seg] + width[seg] * ((i + 1) / mm))
+    s, a = slope[seg], xa[seg]
+    with np.errstate(invalid="ignore", over="ignore"):
+        # The constant is the exponential hat at the step's higher end (a line's maximum
+        # over an interval sits at an end), so it lies on or above the hat everywhere in it.
+        top = ya[seg] + np.maximum(s * (left - a), s * (right - a))
+        q_left = qa[seg] + qslope[seg] * (left - a)
+    flat = cut[seg]
+    row_width = np.where(flat, right - left, width[seg])
+    with np.errstate(over="ignore"):
+        flat_area = np.exp(top) * row_width
+    return {
+        "width": row_width,
+        "xa": np.where(flat, left, a),
+        "dir": np.where(flat, 1.0, np.where(s <= 0, 1.0, -1.0)),
+        "ya": np.where(flat, top, ya[seg]),
+        "g": np.where(flat, 0.0, -np.abs(s)),
+        "qa": np.where(flat, np.where(np.isfinite(q_left), q_left, -np.inf), qa[seg]),
+        "qslope": qslope[seg],
+        "area": np.where(flat, flat_area, seg_area[seg]),
+    }
+
+
 class HatDrawing:
     """The drawing half of ``Rejection`` (mixed in): needs the segment tables ``seg_*``,
     ``FL``/``SR`` and ``target``; ``_tabulate`` derives what the drawing loop reads."""
 
     def _tabulate(self) -> None:
-        """The drawing table: one row per piece, [left inversion, hat segments..., right
+        """The drawing table: one row per piece, [left inversion, hat rows..., right
         inversion], with the cumulative areas that pick a piece and the constants that
-        invert its exponential hat."""
-        area = np.concatenate([[self.FL], self.seg_area, [self.SR]])
+        invert its hat (see ``drawing_rows`` for the flat steps that replace most segments)."""
+        rows = drawing_rows(self.seg_x0, self.seg_x1, self.seg_xa, self.seg_ya, self.seg_slope, self.seg_qa,
+                            self.seg_qslope, self.seg_area, self.FL + self.SR, self.acceptance)
+        area = np.concatenate([[self.FL], rows["area"], [self.SR]])
         self.cum = np.cumsum(area)
         self.total = float(self.cum[-1])
+        self.flat_share = float(np.sum(rows["area"][rows["g"] == 0.0]) / self.total)
         pad = lambda a, fill=0.0: np.concatenate([[fill], a, [fill]])  # noqa: E731
-        width = self.seg_x1 - self.seg_x0
-        g = -np.abs(self.seg_slope)
+        width, g = rows["width"], rows["g"]
         y = g * width
         small = y > -1e-12
         table = np.column_stack([
@@ -39,59 +100,103 @@ class HatDrawing:
             pad(np.where(small, 0.0, np.expm1(y))),                 # 3 expm1(g w)
             pad(np.where(small, 0.0, 1.0 / np.where(small, 1.0, g))),  # 4 1/g
             pad(small.astype(float), 1.0),                          # 5
-            pad(self.seg_xa),                                       # 6
-            pad(np.where(self.seg_slope <= 0, 1.0, -1.0)),          # 7 direction from the anchor
-            pad(self.seg_ya),                                       # 8
+            pad(rows["xa"]),                                        # 6
+            pad(rows["dir"]),                                       # 7 direction from the anchor
+            pad(rows["ya"]),                                        # 8
             pad(g),                                                 # 9
-            pad(self.seg_qa, -np.inf),                              # 10
-            pad(self.seg_qslope),                                   # 11
+            pad(rows["qa"], -np.inf),                               # 10
+            pad(rows["qslope"]),                                    # 11
         ])
-        # 12: the least squeeze/hat ratio on each segment. log(squeeze/hat) is linear
+        # 12: the least squeeze/hat ratio on each row. log(squeeze/hat) is linear
         # in x there, so the least value sits at an end; v below it is accepted by the
         # squeeze without evaluating exp (a squeeze of the squeeze, exact by linearity).
         D = np.stack([np.zeros_like(width), width])
-        xs = self.seg_xa + np.where(self.seg_slope <= 0, 1.0, -1.0) * D
+        xs = rows["xa"] + rows["dir"] * D
         with np.errstate(invalid="ignore", over="ignore"):
-            gap = (self.seg_qa + self.seg_qslope * (xs - self.seg_xa)) - (self.seg_ya + g * D)
+            gap = (rows["qa"] + rows["qslope"] * (xs - rows["xa"])) - (rows["ya"] + g * D)
             floor_ratio = np.exp(np.minimum(np.min(gap, axis=0), 0.0))
         floor_ratio = np.where(np.isfinite(floor_ratio), floor_ratio, 0.0) * (1.0 - 1e-12)
-        table = np.column_stack([table, pad(floor_ratio)])
+        # 13, 14: 1/r and 1/(1 - r), to split the position's uniform at the floor r.
+        with np.errstate(divide="ignore"):
+            inv_floor = np.where(floor_ratio > 0, 1.0 / np.where(floor_ratio > 0, floor_ratio, 1.0), 0.0)
+        table = np.column_stack([table, pad(floor_ratio), pad(inv_floor), pad(1.0 / (1.0 - floor_ratio), 1.0)])
         self._table = np.ascontiguousarray(table)
         # The last piece with mass (u * total can round up to total), and a guide
         # table over the cumulative areas: guide[j] = first piece whose end exceeds
         # j/G of the total (Chen & Asau 1974). Derived here, not saved.
         self._last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
-        levels = np.arange(2 * self.cum.size) / (2 * self.cum.size) * self.total
+        levels = np.arange(4 * self.cum.size) / (4 * self.cum.size) * self.total
         self._guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
 
     # ---- drawing ----------------------------------------------------------------------------------
-    def _propose(self, n, rng):
-        """n candidates: (x, v, log hat, log squeeze, exact) where ``exact`` marks draws made
-        by inversion beyond the hat; plus the number of uniforms used."""
-        u = rng.random(n)
-        v = rng.random(n)
-        used = 2 * n
+    def _candidate_pass(self, u, v, x, loghat, status):
+        """The numpy twin of ``kernels.hat_propose``: the same arithmetic, array by array
+        (see the kernel for what each output holds); returns the counts of statuses 0..3."""
+        n = u.size
         uA = u * self.total
         k = np.minimum(np.searchsorted(self.cum, uA, side="right"), self._last)
         row = self._table[k]
-        # The position's uniform is recycled from the one that chose the piece (Hörmann,
-        # Leydold & Derflinger 2004, Automatic Nonuniform Random Variate Generation, sec. 2.3).
+        # The position's uniform is recycled from the one that chose the row (Hörmann,
+        # Leydold & Derflinger 2004, sec. 2.3), and split once more at the row's squeeze
+        # floor r: below it the candidate is accepted at once (immediate acceptance).
         w = np.minimum(np.maximum((uA - row[:, 0]) * row[:, 1], 0.0), 1.0)
-        width = row[:, 2]
+        r = row[:, 12]
+        at_once = w < r
         with np.errstate(all="ignore"):
+            w = np.where(at_once, w * row[:, 13], (w - r) * row[:, 14])
+            w = np.minimum(np.maximum(w, 0.0), 1.0)
+            width = row[:, 2]
             # Inverse cdf of exp(g * D) on [0, width], D measured from the hat's higher end.
             D = np.where(row[:, 5] > 0, w * width, np.log1p(w * row[:, 3]) * row[:, 4])
-        D = np.minimum(np.maximum(D, 0.0), width)
-        x = row[:, 6] + row[:, 7] * D
-        loghat = row[:, 8] + row[:, 9] * D
-        logsq = row[:, 10] + row[:, 11] * (x - row[:, 6])
-        exact = (k == 0) | (k == self.cum.size - 1)
-        if np.any(exact):
-            for side, mask in ((0, k == 0), (1, k == self.cum.size - 1)):
-                if np.any(mask):
-                    x[mask], extra = self._end_draws(side, int(mask.sum()), rng)
-                    used += extra
-        return x, v, loghat, logsq, exact, used
+            D = np.minimum(np.maximum(D, 0.0), width)
+            x[:] = row[:, 6] + row[:, 7] * D
+            loghat[:] = row[:, 8] + row[:, 9] * D
+            ratio = np.minimum(row[:, 10] + row[:, 11] * (x - row[:, 6]) - loghat, 0.0)
+        status[:] = np.where(k == 0, 2, np.where(k == self.cum.size - 1, 3, np.where(at_once, 0, 1)))
+        undecided = status == 1
+        u[undecided] = ratio[undecided]
+        v[undecided] = r[undecided]
+        return np.bincount(status, minlength=4)[:4].astype(np.int64) if n else np.zeros(4, np.int64)
+
+    def _round(self, n, rng, out, got):
+        """One round of n candidates: each costs one uniform; the few above their row's
+        squeeze floor take a second for the height, then the squeeze, then the density.
+        Accepted draws go straight into ``out`` (from ``got`` on); returns the count."""
+        u, v, x, loghat, status = self._scratch(n)
+        rng.random(out=u)
+        used = n
+        if kernels.HAVE_JIT:
+            counts = kernels.hat_propose(u, v, self.cum, self._guide, self.total, self._last, self._table,
+                                         x, loghat, status)
+        else:
+            counts = self._candidate_pass(u, v, x, loghat, status)
+        for side, code in ((0, 2), (1, 3)):
+            if counts[code]:
+                mask = status == code
+                x[mask], extra = self._end_draws(side, int(counts[code]), rng)
+                used += extra
+        idx = np.flatnonzero(status == 1)
+        # The height of an undecided candidate is uniform on [r h(x), h(x)].
+        height = v[idx] + rng.random(idx.size) * (1.0 - v[idx])
+        used += idx.size
+        with np.errstate(over="ignore", invalid="ignore"):
+            squeezed = height <= np.exp(u[idx])
+        test = idx[~squeezed]
+        with np.errstate(over="ignore", invalid="ignore"):
+            ok = height[~squeezed] * np.exp(loghat[test]) <= self.target.pdf(x[test])
+        status[idx[squeezed]] = 0
+        status[test[ok]] = 4                          # accepted after the density test
+        c = self.counts
+        c["uniforms"] += used
+        c["candidates"] += n
+        c["accepted"] += n - idx.size + int(squeezed.sum()) + int(ok.sum())
+        c["squeezed"] += int(counts[0]) + int(squeezed.sum())
+        c["density_evals"] += int(test.size)
+        if kernels.HAVE_JIT:
+            return kernels.take_accepted(x, status, out, got)
+        keep = x[status != 1][:out.size - got]
+        out[got:got + keep.size] = keep
+        return int(keep.size)
 
     def _end_draws(self, side, count, rng):
         """``count`` exact draws beyond the hat (side 0: below cL by quantile, 1: above cR by
@@ -120,46 +225,6 @@ class HatDrawing:
         finally:
             self._reserve = None
 
-    def _decide(self, x, v, loghat, logsq, exact):
-        """Accepted mask, squeeze-accepted mask and density-evaluated mask."""
-        with np.errstate(invalid="ignore", over="ignore"):
-            squeezed = ~exact & (v <= np.exp(np.minimum(logsq - loghat, 0.0)))
-        test = ~exact & ~squeezed
-        accepted = exact | squeezed
-        if np.any(test):
-            f = self.target.pdf(x[test])
-            accepted[test] = v[test] * np.exp(loghat[test]) <= f
-        return accepted, squeezed, test
-
-    def _compiled_round(self, n, rng, out, got):
-        """One round of n candidates through the compiled pass (engine.kernels): the
-        verdicts are the numpy pass's, written straight into ``out``; returns the count."""
-        u, v, x, loghat, status = self._scratch(n)
-        rng.random(out=u)
-        rng.random(out=v)
-        used = 2 * n
-        counts = kernels.hat_propose(u, v, self.cum, self._guide, self.total, self._last, self._table,
-                                     x, loghat, status)
-        for side, code in ((0, 2), (1, 3)):
-            if counts[code]:
-                mask = status == code
-                x[mask], extra = self._end_draws(side, int(counts[code]), rng)
-                used += extra
-        tested = int(counts[1])
-        passed = 0
-        if tested:
-            idx = np.flatnonzero(status == 1)
-            ok = v[idx] * np.exp(loghat[idx]) <= self.target.pdf(x[idx])
-            status[idx[ok]] = 4                      # accepted after the density test
-            passed = int(ok.sum())
-        c = self.counts
-        c["uniforms"] += used
-        c["candidates"] += n
-        c["accepted"] += n - tested + passed
-        c["squeezed"] += int(counts[0])
-        c["density_evals"] += tested
-        return kernels.take_accepted(x, status, out, got)
-
     def _scratch(self, n):
         """Work arrays reused across rounds (fresh large arrays cost page faults on
         every round); one set per thread, so a sampler shared by threads stays safe."""
@@ -175,22 +240,7 @@ class HatDrawing:
         m = out.size
         got = 0
         while got < m:
-            need = m - got
-            n = int(need * self.total * 1.02) + 16
-            if kernels.HAVE_JIT:
-                got += self._compiled_round(n, rng, out, got)
-                continue
-            x, v, loghat, logsq, exact, used = self._propose(n, rng)
-            accepted, squeezed, tested = self._decide(x, v, loghat, logsq, exact)
-            c = self.counts
-            c["uniforms"] += used
-            c["candidates"] += n
-            c["accepted"] += int(accepted.sum())
-            c["squeezed"] += int(squeezed.sum())
-            c["density_evals"] += int(tested.sum())
-            keep = x[accepted][:need]
-            out[got:got + keep.size] = keep
-            got += keep.size
+            n = int((m - got) * self.total * 1.02) + 16
+            got += self._round(n, rng, out, got)
         if getattr(self, "_reserve", None) is not None:
             self._remaining -= m
-

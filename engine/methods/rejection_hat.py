@@ -287,6 +287,7 @@ class HatConstruction:
             "expected_acceptance": 1.0 / self.total,
             "acceptance_goal": self.acceptance,
             "squeeze_share": (squeeze_area + self.FL + self.SR) / self.total,
+            "flat_step_share": self.flat_share,
             "construction_points": int(self.points_x.size),
             "pieces": int(pieces.shape[0]),
             "concave_pieces": int(np.sum(pieces[:, 2] < 0)),

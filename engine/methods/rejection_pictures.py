@@ -15,23 +15,27 @@ class HatPictures:
     """Hat and squeeze functions and the geometry of ``Rejection`` (mixed in)."""
 
     def _lookup(self, x):
+        """The drawing table's hat row that holds each x (rows run left to right)."""
         x = np.asarray(x, dtype=float)
-        j = np.clip(np.searchsorted(self.seg_x0, x, side="right") - 1, 0, self.seg_x0.size - 1)
+        rows = self._table[1:-1]
+        left = np.where(rows[:, 7] > 0, rows[:, 6], rows[:, 6] - rows[:, 2])
+        j = np.clip(np.searchsorted(left, x, side="right") - 1, 0, left.size - 1)
         inside = (x >= self.cL) & (x <= self.cR)
-        return x, j, inside
+        return x, rows[j], inside
 
     def hat(self, x):
-        """The hat h(x) >= f(x) on the hat's domain [cL, cR]; f itself where inversion draws."""
-        x, j, inside = self._lookup(x)
+        """The hat h(x) >= f(x) the draws use on [cL, cR] (flat steps where the exponential
+        segments were cut, see rejection_drawing.drawing_rows); f itself where inversion draws."""
+        x, row, inside = self._lookup(x)
         with np.errstate(over="ignore", invalid="ignore"):
-            h = np.exp(self.seg_ya[j] + self.seg_slope[j] * (x - self.seg_xa[j]))
+            h = np.exp(row[:, 8] + row[:, 9] * (x - row[:, 6]) * row[:, 7])
         return np.where(inside, h, self.target.pdf(x))
 
     def squeeze(self, x):
         """The squeeze s(x) <= f(x) on [cL, cR] (0 where an interval has none); f outside."""
-        x, j, inside = self._lookup(x)
+        x, row, inside = self._lookup(x)
         with np.errstate(over="ignore", invalid="ignore"):
-            s = np.exp(self.seg_qa[j] + self.seg_qslope[j] * (x - self.seg_xa[j]))
+            s = np.exp(row[:, 10] + row[:, 11] * (x - row[:, 6]))
         return np.where(inside, s, self.target.pdf(x))
 
     @property
@@ -47,11 +51,7 @@ class HatPictures:
         xq = t.quantile(np.clip(self.FL + p * (1 - self.FL - self.SR), 0.0, 1.0))
         x = np.unique(np.concatenate([np.linspace(lo, hi, n_points), xq, self.points_x]))
         x = x[(x >= lo) & (x <= hi)]
-        gen = np.random.default_rng(rng)
-        cx, cv, loghat, logsq, exact, _ = self._propose(max(n_points, 1), gen)
-        accepted, squeezed, _ = self._decide(cx, cv, loghat, logsq, exact)
-        on_hat = ~exact
-        label = np.where(squeezed, "squeeze", np.where(accepted, "accepted", "rejected"))[on_hat]
+        cx, cy, label = self._labelled_candidates(max(n_points, 1), np.random.default_rng(rng))
         return {
             "method": self.method,
             "x": x, "f": t.pdf(x), "hat": self.hat(x), "squeeze": self.squeeze(x),
@@ -59,6 +59,26 @@ class HatPictures:
             "interval_convex": self.interval_labels > 0,
             "piece_edges": self.piece_edges.copy(), "piece_convex": self.piece_convex.copy(),
             "domain": (lo, hi), "inversion_mass_left": self.FL, "inversion_mass_right": self.SR,
-            "candidates": {"x": cx[on_hat], "y": (cv * np.exp(loghat))[on_hat], "label": label},
+            "candidates": {"x": cx, "y": cy, "label": label},
             "expected_acceptance": 1.0 / self.total,
         }
+
+    def _labelled_candidates(self, n, gen):
+        """Candidates on the hat, as the drawing loop decides them: (x, height, label).
+        A candidate accepted at once below its row's squeeze floor r has no height of its
+        own (that is the saving); the picture gives it one, uniform on [0, r h(x)]."""
+        u = gen.random(n)
+        k = np.minimum(np.searchsorted(self.cum, u * self.total, side="right"), self._last)
+        floor = self._table[k, 12]
+        v, x, loghat = np.empty(n), np.empty(n), np.empty(n)
+        status = np.empty(n, dtype=np.int8)
+        self._candidate_pass(u, v, x, loghat, status)
+        on_hat = (status == 0) | (status == 1)
+        with np.errstate(over="ignore", invalid="ignore"):
+            hat = np.exp(loghat)
+            height = np.where(status == 1, v + gen.random(n) * (1.0 - v), floor * gen.random(n)) * hat
+            squeezed = (status == 0) | (height <= np.exp(u) * hat)
+        label = np.where(squeezed, "squeeze", "rejected").astype(object)
+        test = (status == 1) & ~squeezed
+        label[test] = np.where(height[test] <= self.target.pdf(x[test]), "accepted", "rejected")
+        return x[on_hat], height[on_hat], label[on_hat].astype(str)
