@@ -359,18 +359,27 @@ def _verdict(row) -> str:
 
 # What limits each goal when it is missed (measured and reasoned, kept beside the numbers).
 GAPS = {
-    "1b": ("set-up is Python driving vectorised numpy passes over all pieces at once (about 8-11 ms: "
-           "building the model from its formula, fitting every piece, then verifying each on 24 points and "
-           "measuring the drift of the cumulative starts); UNU.RAN's set-up is compiled C (2-4 ms). lifedraw "
-           "sets up faster only next to a pole, where UNU.RAN needs many more intervals; everywhere it stays "
-           "about ten times under the 100 ms refit goal."),
-    "2": ("the compiled candidate pass pays a log1p per candidate to invert the exponential hat piece, plus "
-          "numpy work per batch of 65,536 candidates; acceptance (0.995) and density evaluations per draw "
-          "(0.016) are already near their optimum, so the remaining gap is per-candidate arithmetic. "
-          "UNU.RAN's TDR runs wholly in C; its immediate-acceptance variant would be the next step here."),
-    "6": ("two threads draw in parallel (the compiled kernels release the GIL), but every chunk is written to "
-          "fresh memory and on this virtual machine first-touch page faults cost about 10 ns per draw and do not "
-          "scale with threads; the ratio moves between 1.6 and 1.8 from run to run."),
+    "1": ("the compiled loop is a guide-table look-up plus a degree-5 Horner step per draw (the "
+          "order that keeps the u-error under 1e-10 with about 170-200 pieces, engine/methods/inversion.py); the 2x goal "
+          "needs either fewer operations per draw (a lower order with many more pieces, which costs "
+          "set-up time, the row below) or a wider vector loop than Numba emits here. Not attempted in this "
+          "round: set-up time and rejection came first."),
+    "1b": ("set-up is Python driving vectorised numpy passes over all pieces at once (building the model "
+           "from its formula, fitting every piece, then verifying each on 24 points and measuring the drift of "
+           "the cumulative starts: a few hundred numpy calls of a few microseconds each); UNU.RAN's set-up is "
+           "compiled C. lifedraw sets up faster only next to a pole, where UNU.RAN needs many more intervals; "
+           "everywhere it stays about ten times under the 100 ms refit goal. Compiling the piece fitting (one "
+           "kernel with a numpy twin) is the next step; not done in this round."),
+    "2": ("after this round each candidate costs one uniform (immediate acceptance below its row's squeeze "
+          "floor) and no logarithm in the bulk (flat steps), so what is left per draw is the guide-table "
+          "look-up and the numpy work per batch of 65,536 candidates: the settling of the ~3% undecided "
+          "candidates, the density formula for ~2.4% of them, and two passes to gather the accepted ones."),
+    "3": ("Leva's method needs two uniforms per candidate and accepts 73% of them (2.7 uniforms per draw, "
+          "Leva 1992), while numpy's ziggurat needs about one 64-bit draw per deviate; moving the candidate "
+          "transformation into the compiled loop was measured and gave no clear gain, so it was not kept."),
+    "6": ("the machine's second core was shared with other processes during the run (see the load average "
+          "below); two threads draw in parallel (the compiled kernels release the GIL), so the ratio is bounded "
+          "by the idle capacity of the second core, not by the sampler."),
 }
 
 
