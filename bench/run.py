@@ -364,6 +364,8 @@ GAPS = {
           "needs either fewer operations per draw (a lower order with many more pieces, which costs "
           "set-up time, the row below) or a wider vector loop than Numba emits here. Not attempted in this "
           "round: set-up time and rejection came first."),
+    "1c": ("each draw is one uniform plus the inversion loop (guide look-up and Horner step, about 9-10 ns "
+           "against numpy's ~3 ns per uniform); see row 1."),
     "1b": ("set-up is Python driving vectorised numpy passes over all pieces at once (building the model "
            "from its formula, fitting every piece, then verifying each on 24 points and measuring the drift of "
            "the cumulative starts: a few hundred numpy calls of a few microseconds each); UNU.RAN's set-up is "
@@ -380,6 +382,9 @@ GAPS = {
     "6": ("the machine's second core was shared with other processes during the run (see the load average "
           "below); two threads draw in parallel (the compiled kernels release the GIL), so the ratio is bounded "
           "by the idle capacity of the second core, not by the sampler."),
+    "7": ("measured while other processes shared the 2 cores (see the load averages below): the page's "
+          "server and the headless browser compete for the same cores as the draws; the earlier run on a quiet "
+          "machine met both goals (p95 176 and 234 ms)."),
 }
 
 
