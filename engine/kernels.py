@@ -154,21 +154,28 @@ def leva_take(u, v, out, start, constants):
 # ---- rejection from a piecewise-exponential hat (engine.methods.rejection) ---------------
 
 def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, counts):
-    """Candidates from the hat and their squeeze test, one pass.
+    """Candidates from the hat, one uniform each, one pass.
 
-    status[i]: 0 accepted by the squeeze, 1 needs the density, 2 / 3 drawn by
-    inversion below / above the hat (x left for the caller).
-    The arithmetic follows Rejection._propose term by term.
+    status[i]: 0 accepted at once (its position's uniform fell below the row's squeeze
+    floor r: immediate acceptance), 1 undecided: the caller draws its height uniform on
+    [r h, h] and tests the squeeze, then the density; for these u[i] is overwritten with
+    log(squeeze / hat) at x (<= 0) and v[i] with r. 2 / 3: drawn by inversion below /
+    above the hat (x left for the caller). loghat[i] = log h(x[i]) for 0 and 1.
+    The arithmetic follows HatDrawing._candidate_pass term by term.
     """
     n = u.shape[0]
     top = min(cum.shape[0], table.shape[0]) - 1
     g_size = guide.shape[0]
-    counts[:] = 0
+    c0 = 0
+    c1 = 0
+    c2 = 0
+    c3 = 0
     for i in range(n):
-        uA = u[i] * total
+        ui = u[i]
+        uA = ui * total
         # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
         # Indices are clamped into the tables: a damaged table cannot reach outside them.
-        g = int(u[i] * g_size) if u[i] > 0.0 else 0
+        g = int(ui * g_size) if ui > 0.0 else 0
         if g >= g_size:
             g = g_size - 1
         k = guide[g]
@@ -182,13 +189,20 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, cou
             k = last
         if k == 0:
             status[i] = 2
-            counts[2] += 1
+            c2 += 1
             continue
         if k == top:
             status[i] = 3
-            counts[3] += 1
+            c3 += 1
             continue
         w = (uA - table[k, 0]) * table[k, 1]
+        w = min(max(w, 0.0), 1.0)
+        r = table[k, 12]
+        at_once = w < r
+        if at_once:
+            w = w * table[k, 13]
+        else:
+            w = (w - r) * table[k, 14]
         w = min(max(w, 0.0), 1.0)
         width = table[k, 2]
         if table[k, 5] > 0:
@@ -200,26 +214,26 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, cou
         lh = table[k, 8] + table[k, 9] * d
         x[i] = xi
         loghat[i] = lh
-        if v[i] <= table[k, 12]:
-            # Below the segment's least squeeze/hat ratio: accepted with no exp.
+        if at_once:
             status[i] = 0
-            counts[0] += 1
+            c0 += 1
             continue
-        ls = table[k, 10] + table[k, 11] * (xi - table[k, 6])
-        if v[i] <= np.exp(min(ls - lh, 0.0)):
-            status[i] = 0
-            counts[0] += 1
-        else:
-            status[i] = 1
-            counts[1] += 1
+        u[i] = min(table[k, 10] + table[k, 11] * (xi - table[k, 6]) - lh, 0.0)
+        v[i] = r
+        status[i] = 1
+        c1 += 1
+    counts[0] = c0
+    counts[1] = c1
+    counts[2] = c2
+    counts[3] = c3
 
 
 _hat_propose_jit = _jit(_hat_propose_py)
 
 
 def hat_propose(u, v, cum, guide, total, last, table, x, loghat, status):
-    """Compiled candidate pass for rejection, into the given output arrays; returns
-    the number of candidates with each status 0..3."""
+    """Compiled candidate pass for rejection, into the given output arrays (u and v are
+    overwritten for undecided candidates, see the twin); returns the count of each status 0..3."""
     counts = np.zeros(4, dtype=np.int64)
     _hat_propose_jit(u, v, cum, guide, float(total), int(last), table, x, loghat, status, counts)
     return counts

@@ -24,6 +24,7 @@ from scipy import stats
 import lifedraw
 from lifedraw import engine
 from lifedraw.engine.methods import composition as composition_module
+from lifedraw.engine.methods.base import Sampler
 from lifedraw.engine.methods.composition import Composition
 from lifedraw.engine.methods.inversion import Inversion, NumericalInversion
 from lifedraw.engine.methods.leva import LevaNormal
@@ -39,8 +40,9 @@ SEED = 20261203
 
 def _wrap_output(monkeypatch, cls, transform):
     """Make every draw of ``cls`` pass through ``transform`` (in place), whichever of
-    ``_fill``/``_draw`` the class implements (methods/base.Sampler draws through one of them)."""
-    if "_fill" in vars(cls):
+    ``_fill``/``_draw`` the class implements or inherits from a mixin (methods/base.Sampler
+    draws through one of them; Rejection's ``_fill`` lives in rejection_drawing.HatDrawing)."""
+    if cls._fill is not Sampler._fill:
         original = cls._fill
 
         def _fill(self, out, rng):
