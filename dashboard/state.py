@@ -1,9 +1,9 @@
-"""Per-session state of the workbench: what the user chose, and what the engine derived from it.
+"""Per-session state of the drawing board: what the user chose, and what the engine derived from it.
 Draws are kept in bounded memory: a fixed-bin histogram and a reservoir sample (Vitter 1985, algorithm R).
 
 No user-interface imports here: the classes are plain ``param.Parameterized``
 objects, tested without a browser. Every engine call that can fail on user input
-goes through ``Workbench._guard``, which keeps the last valid model running and
+goes through ``DrawingBoard._guard``, which keeps the last valid model running and
 files a short message under the field that caused it.
 """
 from __future__ import annotations
@@ -14,6 +14,7 @@ import logging
 import math
 import re
 import time
+import warnings
 
 import numpy as np
 import param
@@ -23,6 +24,8 @@ from lifedraw.engine import ModelError, fit
 from lifedraw.engine.errors import MethodNotApplicable
 from lifedraw.engine.methods import method_names
 from lifedraw.engine.scenarios import DEFAULT_SCENARIO, Scenario, load_scenario, scenario_from_dict, scenario_names
+
+from .life_curves import hazard_payload, model_hazard, model_weibull, weibull_payload
 
 log = logging.getLogger("lifedraw.dashboard")
 
@@ -35,6 +38,10 @@ TRACE_LIMIT = 5_000
 # The histogram spans the model's (LOW_Q, FAR_Q) quantiles; the linear view crops at VIEW_Q.
 LOW_Q, VIEW_Q, FAR_Q = 5e-4, 0.9995, 1 - 1e-5
 TOLERANCES = (1e-6, 1e-8, 1e-10, 1e-12)
+#: Start streams until Pause (or this many draws): far above any first batch.
+STREAM_LIMIT = 50_000_000
+#: The number of draws a user means to take, which decides the method comparison's winner.
+PLANNED_DRAWS = (10_000, 100_000, 1_000_000, 10_000_000, 100_000_000, 1_000_000_000)
 FORMULA_KINDS = ("density", "hazard", "cdf")
 
 # Errors are filed by group ("scenario", "model", "upload", "parameters", "method", "run",
@@ -246,10 +253,10 @@ def pp_payload(acc: DrawAccumulator, table: CdfTable) -> dict:
     return {"empirical": p, "model": model_p, "n": int(acc.x.size)}
 
 
-# ---- the workbench -----------------------------------------------------------------------
+# ---- the drawing board -----------------------------------------------------------------------
 
-class Workbench(param.Parameterized):
-    """One user's workbench: the chosen scenario, model, generator settings and the live stream.
+class DrawingBoard(param.Parameterized):
+    """One user's drawing board: the chosen scenario, model, generator settings and the live stream.
 
     User choices are parameters; derived data (``scenario``, ``target``,
     ``sampler``, the accumulated draws) is replaced only when a rebuild
@@ -263,8 +270,11 @@ class Workbench(param.Parameterized):
     tolerance = param.Selector(default=1e-10, objects=list(TOLERANCES), doc="u-error tolerance.")
     seed = param.Integer(default=20261201, bounds=(0, 2**63 - 1), doc="Seed of the stream.")
     batch_size = param.Integer(default=50_000, bounds=(1_000, 500_000), doc="Draws per batch.")
-    stop_at = param.Integer(default=100_000, bounds=(1_000, 50_000_000), doc="The stream stops here.")
+    stop_at = param.Integer(default=STREAM_LIMIT, bounds=(1_000, STREAM_LIMIT), doc="The stream stops here.")
     log_scale = param.Boolean(default=False, doc="Log density axis and the far tail in view.")
+    hazard_log = param.Boolean(default=False, doc="Hazard rate and cumulative hazard on log-log axes.")
+    planned_draws = param.Selector(default=1_000_000, objects=list(PLANNED_DRAWS),
+                                   doc="Draws the user means to take: decides the comparison's winner.")
     running = param.Boolean(default=False, doc="Is the stream drawing batches?")
 
     values = param.Dict(default={}, doc="Current value of each scenario parameter.")
@@ -293,6 +303,8 @@ class Workbench(param.Parameterized):
         self._model_curve = None
         self.trace = {"n": [], "ks_p": [], "acceptance": []}
         self.last_refit_ms = 0.0
+        self._availability = None
+        self._curves: dict = {}         # model-only curves of the pictures, cached per refit
         self.custom: dict[str, Scenario] = {}      # edited models and uploads of this session, by name
         if isinstance(scenario, Scenario):
             sc = scenario
@@ -340,7 +352,8 @@ class Workbench(param.Parameterized):
         server log, never to the page.
         """
         if isinstance(err, MethodNotApplicable):
-            self._set_error("method", f"{self.method}: {err.reason}")
+            running = f" Still running: {self.sampler.method}." if self.sampler is not None else ""
+            self._set_error("method", f"{self.method}: {err.reason}.{running}")
         elif isinstance(err, ModelError):
             self._set_error(field, str(err))
         else:
@@ -362,8 +375,7 @@ class Workbench(param.Parameterized):
         tol = min(TOLERANCES, key=lambda t: abs(math.log10(t) - math.log10(sc.tolerance)))
         method = sc.method if sc.method in self.param.method.objects else "auto"
         with self._quiet():
-            self.param.update(method=method, tolerance=tol, seed=int(sc.seed),
-                              stop_at=int(min(max(sc.sample_size, 1_000), 50_000_000)))
+            self.param.update(method=method, tolerance=tol, seed=int(sc.seed), stop_at=STREAM_LIMIT)
 
     def fit_model(self, sc: Scenario, method: str | None = None) -> tuple:
         """Target, fitted sampler and cdf table of ``sc``'s model, and the seconds it took.
@@ -382,6 +394,7 @@ class Workbench(param.Parameterized):
         if built is None:
             built = self._guard(field, self.fit_model, sc)
         if built is None:
+            self._show_running_method()
             return False
         self.target, self.sampler, self.table, seconds = built
         self.scenario = sc
@@ -392,6 +405,8 @@ class Workbench(param.Parameterized):
         self._system_life = None
         self._geometry = None
         self._model_curve = None
+        self._availability = None
+        self._running_method = self.method
         # A working model settles every message about the inputs: the editor and the sliders now
         # show this model, the stream and the comparison start afresh. Only a failed report
         # (a folder, not the model) keeps its message.
@@ -404,6 +419,30 @@ class Workbench(param.Parameterized):
         self.version += 1      # before the first batch, so views redrawing on that batch see the new version
         self._restart()
         return True
+
+    def _show_running_method(self) -> None:
+        """After a refusal the method menu shows the method that actually runs (or auto)."""
+        running = getattr(self, "_running_method", None)
+        if running is not None and running != self.method:
+            with self._quiet():
+                self.method = running
+
+    def method_availability(self) -> dict[str, str | None]:
+        """Method name -> None if it can serve the current model, else the reason it cannot
+        (each method's own applicability check; cached per model)."""
+        if self._availability is None:
+            from lifedraw.engine.methods import METHODS
+            out: dict[str, str | None] = {"auto": None}
+            for name, cls in METHODS.items():
+                try:
+                    cls.check_applicable(self.target)
+                    out[name] = None
+                except MethodNotApplicable as err:
+                    out[name] = err.reason
+                except ModelError as err:
+                    out[name] = str(err)
+            self._availability = out
+        return self._availability
 
     def _probe_seed(self):
         # A stream of its own, so the probe that places the cdf nodes leaves the
@@ -485,7 +524,9 @@ class Workbench(param.Parameterized):
         """Replace the model by a textbook family; each of its parameters gets a slider."""
         def build():
             from lifedraw.engine.families import FAMILIES
-            key = str(family).strip().lower().replace("-", "_").replace(" ", "_")
+            key = str(family or "").strip().lower().replace("-", "_").replace(" ", "_")
+            if not key:
+                raise ModelError("family", "choose a family from the menu")
             if key not in FAMILIES:
                 raise ModelError("family", f"unknown family {family!r}; known: {', '.join(sorted(FAMILIES))}")
             values = parse_assignments(params)
@@ -500,16 +541,23 @@ class Workbench(param.Parameterized):
         sc = self._guard("model", build)
         return sc is not None and self._adopt_custom(sc, "model")
 
-    def load_field_data(self, data, filename: str = "field data.csv") -> bool:
-        """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model.
+    def load_field_data(self, data, filename: str = "field data.csv", time_unit: str | None = None,
+                        mission_times: str | None = None) -> bool:
+        """Use uploaded CSV field data (failure times with suspensions, or binned counts) as the model,
+        with the time unit and mission times the user gives for it (else the current ones).
         The page runs the two steps before ``adopt_field_data`` in a worker thread instead."""
-        sc = self._guard("upload", self.field_data_scenario, data, filename)
+        sc = self._guard("upload", self.field_data_scenario, data, filename, time_unit, mission_times)
         built = sc and self._guard("upload", self.fit_model, sc, "auto")
         return built is not None and self.adopt_field_data(sc, built)
 
-    def field_data_scenario(self, data, filename: str) -> Scenario:
-        """The scenario of uploaded field data (parsed and checked; raises ModelError). Changes nothing."""
+    def field_data_scenario(self, data, filename: str, time_unit: str | None = None,
+                            mission_times: str | None = None) -> Scenario:
+        """The scenario of uploaded field data (parsed and checked; raises ModelError). Changes nothing.
+        ``time_unit`` and ``mission_times`` are what the user typed in the upload area."""
         from lifedraw.engine.field_io import read_binned_csv, read_failure_csv, sniff_layout
+        unit = parse_time_unit(time_unit) if time_unit is not None else self.scenario.time_unit
+        missions = (parse_mission_times(mission_times) if mission_times is not None
+                    else list(self.scenario.mission_times))
         if sniff_layout(data) == "binned":
             edges, counts = read_binned_csv(data)
             model = {"kind": "histogram", "edges": edges.tolist(), "counts": counts.tolist(), "smooth": False}
@@ -518,12 +566,11 @@ class Workbench(param.Parameterized):
             times, censored = read_failure_csv(data)
             model = {"kind": "failures", "times": times.tolist(), "censored": censored.tolist()}
             what = f"{int((~censored).sum())} failures, {int(censored.sum())} suspensions"
-        base = self.scenario
         data_dict = {"title": f"Field data from {filename}",
-                     "story": f"Uploaded field data ({what}).",
-                     "time_unit": base.time_unit, "model": model,
-                     "run": {"method": "auto", "seed": self.seed, "sample_size": self.stop_at,
-                             "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
+                     "story": f"Uploaded field data ({what}), ages in {unit}.",
+                     "time_unit": unit, "model": model,
+                     "run": {"method": "auto", "seed": self.seed, "sample_size": self.scenario.sample_size,
+                             "mission_times": missions, "tolerance": float(self.tolerance)}}
         stem = re.sub(r"[^A-Za-z0-9_-]+", "-", str(filename).rsplit(".", 1)[0]).strip("-") or "field-data"
         return scenario_from_dict(data_dict, stem)
 
@@ -566,9 +613,15 @@ class Workbench(param.Parameterized):
                                 **({"label": old.label} if old.label else {})}
             else:
                 params[name] = v   # the scenario loader gives it a range around the value
-        data = {"title": f"{base.title.split(' — ')[0]} — edited model ({what})",
-                "story": base.story, "time_unit": base.time_unit, "parameters": params, "model": model,
-                "run": {"method": self.method, "seed": self.seed, "sample_size": self.stop_at,
+        original = base.title.split(" — ")[0]
+        # Say the model was edited; keep the original scenario's story, marked as such.
+        marker = "The story of the original scenario: "
+        original_story = base.story.split(marker, 1)[1] if marker in base.story else base.story.strip()
+        story = (f"Edited in this session: the model is now a {what} typed in the editor, not the scenario's "
+                 f"own model. {marker}{original_story}")
+        data = {"title": f"{original} — edited model ({what})",
+                "story": story, "time_unit": base.time_unit, "parameters": params, "model": model,
+                "run": {"method": self.method, "seed": self.seed, "sample_size": base.sample_size,
                         "mission_times": list(base.mission_times), "tolerance": float(self.tolerance)}}
         name = base.name if base.name.endswith("-edited") else f"{base.name}-edited"
         return scenario_from_dict(data, name)
@@ -637,6 +690,46 @@ class Workbench(param.Parameterized):
     def ks(self) -> tuple[float, float]:
         return self.acc.ks()
 
+    def hazard_data(self) -> dict:
+        """h(t) and H(t) of the model beside their estimates from all draws (dashboard.life_curves)."""
+        acc, log = self.acc, bool(self.hazard_log)
+        key = ("hazard", self.version, id(acc.edges), log)
+        if self._curves.get("hazard", (None,))[0] != key:
+            self._curves["hazard"] = (key, model_hazard(self.target, acc.edges, self.view_right, log))
+        return hazard_payload(self.target, acc.edges, acc.counts, acc.below, acc.n, self.view_right, log,
+                              self.scenario.time_unit, model=self._curves["hazard"][1])
+
+    def weibull_data(self) -> dict:
+        """The probability plot on Weibull scales: model, draws (reservoir quantiles), field data."""
+        key = ("weibull", self.version, id(self.target))
+        if self._curves.get("weibull", (None,))[0] != key:
+            self._curves["weibull"] = (key, model_weibull(self.target))
+        return weibull_payload(self.target, self.acc.sample_quantiles, int(self.acc.x.size), self.n,
+                               self.scenario.time_unit, model=self._curves["weibull"][1])
+
+    def effective_weights(self) -> list[dict]:
+        """For a mixture: each weight as set (slider or fixed number) and as used, rescaled to add up to 1."""
+        model = self.scenario.model
+        if model.get("kind") != "mixture" or not hasattr(self.target, "weights"):
+            return []
+        out = []
+        for i, (raw, used) in enumerate(zip(model.get("weights", []), self.target.weights)):
+            if isinstance(raw, str) and raw in self.scenario.parameters:
+                p = self.scenario.parameters[raw]
+                out.append({"name": raw, "label": p.label or raw, "set": float(self.values.get(raw, p.value)),
+                            "used": float(used)})
+            else:
+                out.append({"name": None, "label": f"component {i + 1} (fixed)", "set": float(raw),
+                            "used": float(used)})
+        return out
+
+    def decision(self):
+        """The method comparison's verdict for the planned number of draws (engine.compare.decide)."""
+        from lifedraw.engine.compare import decide
+        if not self.comparison:
+            return None
+        return decide(self.comparison, int(self.planned_draws), float(self.tolerance))
+
     def counters(self) -> dict:
         return dict(self.sampler.stats)
 
@@ -690,8 +783,10 @@ class Workbench(param.Parameterized):
             self.file_error("comparison", result)
             return []
         self._set_error("comparison", None)
+        repeats = max((int(getattr(r, "repeats", 0) or 0) for r in result), default=0)
         self.comparison_note = (f"{n:,} draws per method, measured at {time.strftime('%H:%M:%S')} on this "
-                                "machine in one process; draws/s is the median of 3 timed batches")
+                                f"machine in one process: one untimed warm-up batch, then {repeats} timed "
+                                "batches; the cost per draw is their median, the range their fastest and slowest")
         self.comparison = list(result)
         return self.comparison
 
@@ -701,13 +796,14 @@ class Workbench(param.Parameterized):
             self.running = False
         self.acc = self.table = self._geometry = self._model_curve = self._rng = None
         self._exact_life = self._system_life = None
+        self._curves, self._availability = {}, None
         self.custom = {}
         self.trace = {"n": [], "ks_p": [], "acceptance": []}
 
     def current_scenario(self) -> Scenario:
         """The scenario as it stands now: current values, method, seed, tolerance and sample size."""
         return dataclasses.replace(self.scenario, method=self.method, seed=int(self.seed),
-                                   tolerance=float(self.tolerance), sample_size=int(self.stop_at))
+                                   tolerance=float(self.tolerance))
 
     def scenario_toml(self) -> str:
         return self.current_scenario().to_toml()
@@ -740,6 +836,34 @@ def parse_assignments(text: str) -> dict[str, float]:
     return out
 
 
+def parse_time_unit(text: str) -> str:
+    """The time unit of uploaded data: a short word such as hours, days, cycles, km."""
+    unit = str(text or "").strip()
+    if not unit:
+        raise ModelError("time unit", "say in which unit the ages are recorded, e.g. hours, days or cycles")
+    if len(unit) > 24 or not re.fullmatch(r"[A-Za-z][A-Za-z0-9 ._/-]*", unit):
+        raise ModelError("time unit", f"use a short word of letters (at most 24 characters), got {unit[:30]!r}")
+    return unit
+
+
+def parse_mission_times(text: str) -> list[float]:
+    """``"8760, 17520"`` -> [8760.0, 17520.0]: positive ages, at most 10, empty for none."""
+    out = []
+    for part in re.split(r"[,;\s]+", str(text or "").strip()):
+        if not part:
+            continue
+        try:
+            value = float(part)
+        except ValueError:
+            raise ModelError("mission times", f"{part[:30]!r} is not a number") from None
+        if not (math.isfinite(value) and value > 0):
+            raise ModelError("mission times", f"each mission time must be a positive age, got {part}")
+        out.append(value)
+    if len(out) > 10:
+        raise ModelError("mission times", f"give at most 10 mission times, got {len(out)}")
+    return sorted(set(out))
+
+
 def parse_support(text: str) -> list:
     """``"0, inf"`` -> [0.0, "inf"] (the scenario file's spelling of an open end)."""
     parts = [p.strip() for p in re.split(r"[,;]", str(text or "")) if p.strip()]
@@ -758,3 +882,14 @@ def parse_support(text: str) -> list:
             except ValueError:
                 raise ModelError("support", f"{p!r} is not a number (use inf for an open end)") from None
     return out
+
+
+# ---- renamed names ------------------------------------------------------------------------------
+
+def __getattr__(name: str):
+    """``Workbench`` was this class's old name: it still works for one release, with a warning."""
+    if name == "Workbench":
+        warnings.warn("lifedraw.dashboard.state.Workbench is deprecated; use DrawingBoard",
+                      DeprecationWarning, stacklevel=2)
+        return DrawingBoard
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

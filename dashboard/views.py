@@ -1,4 +1,4 @@
-"""The numbered cells of the workbench page; each only presents a ``Workbench`` and forwards
+"""The numbered steps of the drawing board page; each only presents a ``DrawingBoard`` and forwards
 the user's actions to it (Panel's "DataStore + Views" structure).
 
 Live plots are HoloViews DynamicMaps fed by ``hv.streams.Pipe``; every update a
@@ -11,6 +11,7 @@ import io
 import logging
 import math
 import time
+import warnings
 import tomllib
 from pathlib import Path
 
@@ -25,10 +26,11 @@ from lifedraw.engine.families import FAMILIES
 from lifedraw.engine.scenarios import scenario_files
 
 from . import plots
+from . import reliability_plots
 from .background import off_loop
 from .escaping import css_token, file_stem
 from .notices import error_box, show_error
-from .state import FORMULA_KINDS, TOLERANCES, Workbench
+from .state import FORMULA_KINDS, PLANNED_DRAWS, STREAM_LIMIT, TOLERANCES, DrawingBoard
 from .uploads import UPLOAD_LIMIT_HTML, check_size, latest_file, upload_widget
 
 log = logging.getLogger("lifedraw.dashboard")
@@ -58,7 +60,7 @@ pre { background: #f4f6f8; border: 1px solid #e3e6ea; border-radius: 4px; paddin
 .ld-small { font-size: 12.5px; }
 code { background: #f4f6f8; padding: 0 3px; border-radius: 3px; }
 """
-CELL_STYLES = {"background": "#ffffff", "border": "1px solid #dfe3e8", "border-radius": "8px",
+STEP_STYLES = {"background": "#ffffff", "border": "1px solid #dfe3e8", "border-radius": "8px",
                "padding": "10px 18px 14px 18px", "box-shadow": "0 1px 2px rgba(0,0,0,0.04)"}
 BATCH_SIZES = {"10,000": 10_000, "20,000": 20_000, "50,000": 50_000, "100,000": 100_000, "200,000": 200_000}
 COMPARE_SIZES = {"50,000": 50_000, "100,000": 100_000, "300,000": 300_000}
@@ -85,14 +87,14 @@ def scenario_titles() -> dict[str, str]:
     return out
 
 
-class Cell:
-    """A numbered cell: heading, one sentence, then controls and outputs."""
+class Step:
+    """A numbered step: heading, one sentence, then controls and outputs."""
 
     number = 0
     title = ""
     blurb = ""
 
-    def __init__(self, state: Workbench):
+    def __init__(self, state: DrawingBoard):
         self.state = state
 
     def heading(self) -> pn.pane.HTML:
@@ -104,8 +106,8 @@ class Cell:
         raise NotImplementedError
 
     def panel(self) -> pn.Column:
-        return pn.Column(self.heading(), *self.body(), sizing_mode="stretch_width", styles=CELL_STYLES,
-                         margin=(8, 0), css_classes=[f"ld-cell-{self.number}"], name=self.title)
+        return pn.Column(self.heading(), *self.body(), sizing_mode="stretch_width", styles=STEP_STYLES,
+                         margin=(8, 0), css_classes=[f"ld-step-{self.number}"], name=self.title)
 
     def act(self, fn, *args, **kwargs):
         """Run a user action with all the page updates it causes sent as one message."""
@@ -124,7 +126,7 @@ class Cell:
 
 # ---- 1. model --------------------------------------------------------------------------------
 
-class ModelCell(Cell):
+class ModelStep(Step):
     number = 1
     title = "Model"
     blurb = ("Pick a scenario, move its parameters, write your own formula or family, "
@@ -149,8 +151,9 @@ class ModelCell(Cell):
             name="Model written as", options={"family": "family", "density f(t)": "density",
                                               "hazard h(t)": "hazard", "CDF F(t)": "cdf"},
             value="family", button_type="default", width=420)
-        self.family = pn.widgets.Select(name="Family", options={f.title: k for k, f in sorted(FAMILIES.items())},
-                                        value="weibull", width=260)
+        self.family = pn.widgets.Select(name="Family", options={"(choose a family)": "",
+                                                                **{f.title: k for k, f in sorted(FAMILIES.items())}},
+                                        value="", width=260)
         self.expr = pn.widgets.TextAreaInput(name="Formula in t", value="", height=64,
                                              sizing_mode="stretch_width", placeholder="e.g. t**(k - 1)*exp(-(t/s)**p)")
         self.support = pn.widgets.TextInput(name="Support (from, to)", value="0, inf", width=160)
@@ -163,18 +166,30 @@ class ModelCell(Cell):
         self.model_error = _alert()
         self.editor_help = _html(
             '<p class="ld-small ld-muted">A formula is a function of <code>t</code> using + − * / **, '
-            "exp, log, sqrt, the functions the formula language lists, and the parameters you name; a "
-            "density need not be normalised. Each parameter gets a slider around its value.</p>")
+            "exp, log, sqrt, the functions the formula language lists, <code>when(condition, then, otherwise)</code> "
+            "and the parameters you name; a density need not be normalised. Each parameter gets a slider "
+            "around its value.</p>")
 
         self.upload = upload_widget()
         self.upload.param.watch(self._uploaded, "value")
         self.upload_status = _html(css_classes=["ld-upload-status"])
+        self.unit = pn.widgets.TextInput(name="Ages recorded in (time unit)", value="", width=170,
+                                         placeholder="e.g. hours, days, cycles", css_classes=["ld-upload-unit"])
+        self.missions = pn.widgets.TextInput(name="Mission times (ages, comma separated)", value="", width=230,
+                                             placeholder="e.g. 8760, 17520", css_classes=["ld-upload-missions"])
+        self.use_upload = pn.widgets.Button(name="Use this field data", button_type="primary", width=170,
+                                            disabled=True)
+        self.use_upload.on_click(self._use_upload)
+        self._pending = None
         self.upload_error = _alert()
         self.upload_help = _html(
             '<p class="ld-small ld-muted"><b>Failure times</b>: a header row with <code>time</code> and '
             "<code>suspended</code> (flags 1/0, true/false, yes/no or F/S; without the column every row is a "
             "failure). <b>Binned counts</b>: <code>lower</code>, <code>upper</code>, <code>count</code>, one "
-            "contiguous bin per row. Problems are listed by line number.</p>")
+            "contiguous bin per row. Problems are listed by line number. Say in which unit the ages are "
+            "recorded and which mission times matter; the data is used once both are set.</p>")
+        self.weights = _html(css_classes=["ld-weights"])
+        self._prefilling = False
         self._source = None
         s.param.watch(lambda e: self.refresh(), "version")
         s.param.watch(lambda e: self.show_errors(), "errors")
@@ -182,22 +197,26 @@ class ModelCell(Cell):
         self._kind_changed()
 
     def body(self):
+        # FlexBoxes wrap: at narrow widths the editor's controls and the upload area move onto new
+        # lines instead of overlapping.
         editor = pn.Column(
-            pn.Row(self.kind, self.family, self.support, margin=0),
+            pn.FlexBox(self.kind, self.family, self.support, margin=0, sizing_mode="stretch_width"),
             self.expr, self.params, pn.Row(self.apply, margin=0), self.editor_help, self.model_error,
             sizing_mode="stretch_width", margin=0)
+        upload = pn.Column(pn.pane.HTML("<h3>Field data (CSV)</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
+                           self.upload, pn.Row(self.unit, self.missions, margin=0), self.use_upload,
+                           self.upload_status, self.upload_error, self.upload_help, _html(UPLOAD_LIMIT_HTML),
+                           width=440, css_classes=["ld-upload-area"])
         return [
             pn.Row(self.picker, margin=(0, 0)), self.scenario_error,
             self.description,
             pn.pane.HTML("<h3>Parameters</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
-            self.sliders, self.parameters_error,
-            pn.Row(
+            self.sliders, self.weights, self.parameters_error,
+            pn.FlexBox(
                 pn.Column(pn.pane.HTML("<h3>Edit the model</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
-                          editor, sizing_mode="stretch_width"),
-                pn.Column(pn.pane.HTML("<h3>Field data (CSV)</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
-                          self.upload, self.upload_status, self.upload_error, self.upload_help,
-                          _html(UPLOAD_LIMIT_HTML), width=380),
-                sizing_mode="stretch_width"),
+                          editor, sizing_mode="stretch_width", min_width=520, styles={"flex": "1 1 520px"},
+                          css_classes=["ld-editor"]),
+                upload, sizing_mode="stretch_width", margin=0),
         ]
 
     # -- presenting --
@@ -211,6 +230,7 @@ class ModelCell(Cell):
             f'<p class="ld-small ld-muted">Ages in {html.escape(sc.time_unit)}. Mission times: '
             f'{", ".join(plots.fmt(t) for t in sc.mission_times) or "none"}.</p>')
         self._prefill_editor()          # the editor always shows the model that runs now
+        self.weights.object = self._weights_html()
         source = (sc.name, tuple(sc.parameters), sc.model.get("kind"))
         if source != self._source:
             self._source = source
@@ -238,7 +258,25 @@ class ModelCell(Cell):
             self.sliders[:] = [_html('<p class="ld-muted ld-small">This model has no parameters to vary '
                                      "(field data is used as recorded).</p>")]
 
+    def _weights_html(self) -> str:
+        """A mixture's weights as they are used: the sliders' values rescaled to add up to 1."""
+        rows = self.state.effective_weights()
+        if not rows:
+            return ""
+        total = sum(r["set"] for r in rows)
+        items = "; ".join(f"{html.escape(r['label'])}: set {r['set']:.3g} → <b>{100 * r['used']:.1f} %</b>"
+                          for r in rows)
+        return (f'<p class="ld-small">Mixture weights as used (the set values add up to {total:.3g} and are '
+                f"rescaled to add up to 1): {items}.</p>")
+
     def _prefill_editor(self):
+        self._prefilling = True
+        try:
+            self._prefill()
+        finally:
+            self._prefilling = False
+
+    def _prefill(self):
         s = self.state
         model = s.scenario.model
         kind = model.get("kind")
@@ -254,9 +292,12 @@ class ModelCell(Cell):
             self.params.value = ", ".join(f"{k} = {v:g}" for k, v in s.target.params.items()
                                           if not (k == "location" and v == 0))
         else:
+            # A mixture, competing modes, field data...: no single family or formula shows it, so the
+            # editor starts empty rather than showing a model unrelated to the one on screen.
             self.kind.value = "family"
-            self.family.value = "weibull"
-            self.params.value = f"shape = 1.5, scale = {float(s.target.quantile(0.632)):.4g}"
+            self.family.value = ""
+            self.expr.value = ""
+            self.params.value = ""
 
     def _kind_changed(self):
         family = self.kind.value == "family"
@@ -265,6 +306,11 @@ class ModelCell(Cell):
         self.support.visible = not family
 
     def _family_changed(self):
+        if self._prefilling:
+            return
+        if not self.family.value:
+            self.params.value = ""
+            return
         fam = FAMILIES[self.family.value]
         if self.state.scenario.model.get("kind") == "family" and self.state.target.fam.name == fam.name:
             return
@@ -289,19 +335,27 @@ class ModelCell(Cell):
             self.state.apply_formula(self.kind.value, self.expr.value, self.support.value, self.params.value)
 
     async def _uploaded(self, event):
-        """Parse and fit the uploaded file in a worker thread (a large file takes seconds), then adopt it."""
-        arrived = latest_file(self.upload.value)
-        if arrived is None:
+        """A file arrived: keep it, and use it at once if its time unit is already given."""
+        self._pending = latest_file(self.upload.value)
+        self.use_upload.disabled = self._pending is None
+        if self._pending is not None and self.unit.value.strip():
+            await self._use_upload()
+
+    async def _use_upload(self, event=None):
+        """Parse and fit the uploaded file in a worker thread (a large file takes seconds), with the
+        time unit and mission times typed beside it, then adopt it."""
+        if self._pending is None:
             return
-        name, data = arrived
+        name, data = self._pending
         s = self.state
+        unit, missions = self.unit.value, self.missions.value
         log.info("upload %s received (%d bytes)", file_stem(name), len(data))
         self.upload_status.object = (f'<p class="ld-muted">Reading {html.escape(name)} '
                                      f"({len(data) / 1e6:.1f} MB)…</p>")
 
         def prepare():
             check_size(data, name)
-            sc = s.field_data_scenario(data, name)
+            sc = s.field_data_scenario(data, name, unit, missions)
             return sc, s.fit_model(sc, "auto")
 
         result = await off_loop(prepare)
@@ -315,7 +369,7 @@ class ModelCell(Cell):
 
 # ---- 2. generator ----------------------------------------------------------------------------
 
-class GeneratorCell(Cell):
+class GeneratorStep(Step):
     number = 2
     title = "Generator"
     blurb = ("Choose the sampling method (auto picks one and says why), its tolerance, the batch size and "
@@ -334,7 +388,8 @@ class GeneratorCell(Cell):
         self.batch = pn.widgets.Select(name="Batch size", options=batch_options, value=s.batch_size, width=120)
         self.seed = pn.widgets.IntInput(name="Seed", value=int(s.seed), start=0, width=140)
         self.stop_at = pn.widgets.IntInput(name="Stop after (draws)", value=int(s.stop_at), start=1_000,
-                                           end=50_000_000, step=10_000, width=160)
+                                           end=STREAM_LIMIT, step=10_000, width=160)
+        self.availability = _html(css_classes=["ld-method-availability"])
         self.start = pn.widgets.Button(name="▶ Start", button_type="primary", width=100)
         self.pause = pn.widgets.Button(name="❚❚ Pause", button_type="default", width=100)
         self.reset = pn.widgets.Button(name="↺ Reset", button_type="default", width=100)
@@ -355,8 +410,9 @@ class GeneratorCell(Cell):
         self.sync()
 
     def body(self):
-        return [pn.Row(self.method, self.tolerance, self.batch, self.seed, self.stop_at, margin=0),
-                self.method_error,
+        return [pn.FlexBox(self.method, self.tolerance, self.batch, self.seed, self.stop_at, margin=0,
+                           sizing_mode="stretch_width"),
+                self.availability, self.method_error,
                 pn.Row(self.start, self.pause, self.reset, margin=(4, 0)),
                 self.status, self.run_error]
 
@@ -376,11 +432,26 @@ class GeneratorCell(Cell):
 
     def sync(self):
         s = self.state
+        self._offer_methods()
         for w, v in ((self.method, s.method), (self.tolerance, s.tolerance), (self.seed, int(s.seed)),
                      (self.stop_at, int(s.stop_at))):
             if w.value != v:
                 w.value = v
         self.refresh_status()
+
+    def _offer_methods(self):
+        """Offer only the methods that can serve the current model; grey the others, with their reason."""
+        s = self.state
+        reasons = s.method_availability()
+        refused = [m for m, why in reasons.items() if why]
+        if self.method.disabled_options != refused:
+            self.method.disabled_options = refused
+        if refused:
+            items = "".join(f"<li><b>{html.escape(m)}</b>: {html.escape(reasons[m])}</li>" for m in refused)
+            self.availability.object = (f'<div class="ld-small ld-muted">Not offered for this model:'
+                                        f'<ul style="margin:2px 0 0 0">{items}</ul></div>')
+        else:
+            self.availability.object = '<p class="ld-small ld-muted">Every method can serve this model.</p>'
 
     def refresh_status(self):
         s = self.state
@@ -392,7 +463,8 @@ class GeneratorCell(Cell):
         self.status.object = (
             f"<p><b>{html.escape(s.sampler.method)}{html.escape(variant)}</b>: {html.escape(s.sampler.reason)}."
             f"</p><p class=\"ld-small ld-muted\">{html.escape(type(s.sampler).reference)}</p>"
-            f'<p><span class="ld-run-state">{state_word}</span> · {s.n:,} of {s.stop_at:,} draws · '
+            f'<p><span class="ld-run-state">{state_word}</span> · <b class="ld-draw-count">{s.n:,} draws</b> · '
+            f"{'draws until Pause' if s.stop_at >= STREAM_LIMIT else f'stops at {s.stop_at:,} draws'} · "
             f"batches of {s.batch_size:,} · set-up {1e3 * st['setup_seconds']:.1f} ms · "
             f"last refit {s.last_refit_ms:.0f} ms</p>")
 
@@ -403,29 +475,36 @@ class GeneratorCell(Cell):
 
 # ---- 3. live check ---------------------------------------------------------------------------
 
-class LiveCheckCell(Cell):
+class LiveCheckStep(Step):
     number = 3
     title = "Live check"
-    blurb = ("The draws so far against the model, batch by batch: histogram, QQ and PP plots, the running "
-             "Kolmogorov-Smirnov p-value and acceptance rate, and the sampler's own counters.")
+    blurb = ("The draws so far against the model, batch by batch: histogram, hazard rate and cumulative hazard, "
+             "probability plot on Weibull scales, QQ and PP plots, the running Kolmogorov-Smirnov p-value and "
+             "acceptance rate, and the sampler's own counters.")
 
     def __init__(self, state):
         super().__init__(state)
         s = state
         self.log = pn.widgets.Checkbox(name="log density axis (shows the far tail)", value=s.log_scale)
         self.log.param.watch(lambda e: self.act(self._set_log, e.new), "value")
-        self.pipes = {k: hv.streams.Pipe(data=None) for k in ("hist", "qq", "pp", "trace")}
+        self.hazard_log = pn.widgets.Checkbox(name="log-log axes for the hazard (a Weibull is a straight line)",
+                                              value=s.hazard_log, css_classes=["ld-hazard-log"])
+        self.hazard_log.param.watch(lambda e: self.act(self._set_hazard_log, e.new), "value")
+        self.pipes = {k: hv.streams.Pipe(data=None) for k in ("hist", "qq", "pp", "trace", "hazard", "weibull")}
         self._push_all()
         self.hist = self._histogram_map()
+        self.weibull = hv.DynamicMap(lambda data: reliability_plots.weibull_plot(data), streams=[self.pipes["weibull"]])
         self.qq = hv.DynamicMap(lambda data: plots.qq_plot(data), streams=[self.pipes["qq"]])
         self.pp = hv.DynamicMap(lambda data: plots.pp_plot(data), streams=[self.pipes["pp"]])
         self.ks_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "ks_p"), streams=[self.pipes["trace"]])
         self.acc_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "acceptance"),
                                        streams=[self.pipes["trace"]])
-        for dm in (self.qq, self.pp, self.ks_trace, self.acc_trace):
+        for dm in (self.qq, self.pp, self.ks_trace, self.acc_trace, self.weibull):
             dm.opts(framewise=True, axiswise=True)
         pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
         self.hist_pane = pane(self.hist, 330)
+        self.hazard_panes = [pane(dm, 300) for dm in self._hazard_maps()]
+        self.weibull_pane = pane(self.weibull, 340)
         self.panes = [pane(self.qq, 290), pane(self.pp, 290), pane(self.ks_trace, 250), pane(self.acc_trace, 250)]
         self.counters = _html()
         self.summary = _html()
@@ -438,10 +517,27 @@ class LiveCheckCell(Cell):
         return hv.DynamicMap(lambda data: plots.density_histogram(data), streams=[self.pipes["hist"]]).opts(
             framewise=True, axiswise=True)
 
+    def _hazard_maps(self) -> list:
+        pipe = self.pipes["hazard"]
+        return [hv.DynamicMap(lambda data: reliability_plots.hazard_plot(data), streams=[pipe]).opts(
+                    framewise=True, axiswise=True),
+                hv.DynamicMap(lambda data: reliability_plots.cumulative_hazard_plot(data), streams=[pipe]).opts(
+                    framewise=True, axiswise=True)]
+
+    def _set_hazard_log(self, value):
+        # As for the histogram: a Bokeh axis cannot switch between linear and log in place.
+        self.state.hazard_log = bool(value)
+        self.pipes["hazard"].update(data=self.state.hazard_data())
+        for pane_, dm in zip(self.hazard_panes, self._hazard_maps()):
+            pane_.object = dm
+
     def body(self):
         qq, pp, ks, acc = self.panes
         return [pn.Row(self.log, self.marker, margin=0),
                 self.hist_pane,
+                self.hazard_log,
+                pn.Row(*self.hazard_panes, sizing_mode="stretch_width", margin=0),
+                self.weibull_pane,
                 pn.Row(qq, pp, sizing_mode="stretch_width", margin=0),
                 pn.Row(ks, acc, sizing_mode="stretch_width", margin=0),
                 pn.pane.HTML("<h3>What the check says</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
@@ -465,6 +561,8 @@ class LiveCheckCell(Cell):
         s = self.state
         self.pipes["qq"].send(s.qq_data())
         self.pipes["pp"].send(s.pp_data())
+        self.pipes["hazard"].send(s.hazard_data())
+        self.pipes["weibull"].send(s.weibull_data())
         self.pipes["trace"].send({k: list(v) for k, v in s.trace.items()})
 
     def refresh(self, push=True):
@@ -475,8 +573,8 @@ class LiveCheckCell(Cell):
         if push:
             self.pipes["hist"].send(s.histogram_data())
             self._stale = True
-        self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}">'
-                              f"model v{s.version} · batch {s.batch} · {s.n:,} draws</span>")
+        self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}" '
+                              f'data-draws="{s.n}">{s.n:,} draws so far</span>')
         if not push:
             self._texts()
 
@@ -511,7 +609,7 @@ class LiveCheckCell(Cell):
 
 # ---- 4. geometry -----------------------------------------------------------------------------
 
-class GeometryCell(Cell):
+class GeometryStep(Step):
     number = 4
     title = "Method geometry"
     blurb = "How the chosen method turns uniform numbers into lifetimes, drawn from the sampler's own tables."
@@ -574,11 +672,11 @@ def _signature(element) -> tuple:
 
 # ---- 5. comparison ---------------------------------------------------------------------------
 
-class ComparisonCell(Cell):
+class ComparisonStep(Step):
     number = 5
     title = "Method comparison"
-    blurb = ("Every method that can serve this model, measured now on this machine: throughput, set-up "
-             "time, costs per draw and accuracy. It takes a second or two.")
+    blurb = ("Every method that can serve this model, measured now on this machine, and the one to use for the "
+             "number of draws you mean to take: set-up plus cost per draw, accuracy, memory. It takes a few seconds.")
 
     def __init__(self, state):
         super().__init__(state)
@@ -586,6 +684,11 @@ class ComparisonCell(Cell):
         self.run = pn.widgets.Button(name="Measure all methods", button_type="primary", width=180,
                                      margin=(22, 10, 0, 10))
         self.run.on_click(self._run)
+        self.planned = pn.widgets.Select(name="Draws you mean to take",
+                                         options={f"{plots.count_text(n)}": n for n in PLANNED_DRAWS},
+                                         value=int(state.planned_draws), width=170)
+        self.planned.param.watch(lambda e: self.act(self._set_planned, e.new), "value")
+        self.decision = _html(css_classes=["ld-decision"])
         self.note = _html()
         self.error = _alert()
         self.table = _html()
@@ -595,7 +698,12 @@ class ComparisonCell(Cell):
         self.refresh()
 
     def body(self):
-        return [pn.Row(self.size, self.run, margin=0), self.error, self.note, self.table, self.bars]
+        return [pn.Row(self.size, self.planned, self.run, margin=0), self.error, self.decision, self.note,
+                self.table, self.bars]
+
+    def _set_planned(self, value):
+        self.state.planned_draws = int(value)
+        self.refresh()
 
     async def _run(self, event):
         s = self.state
@@ -626,14 +734,17 @@ class ComparisonCell(Cell):
         if not rows:
             self.note.object = ('<p class="ld-muted">Not measured yet for this model: press '
                                 "<b>Measure all methods</b>.</p>")
+            self.decision.object = ""
             self.table.object = ""
             if self.bars.objects:
                 self.bars[:] = []
             return
         self.note.object = f'<p class="ld-small ld-muted">{html.escape(s.comparison_note)}.</p>'
+        decision = s.decision()
+        self.decision.object = f'<p class="ld-verdict"><b>{html.escape(decision.sentence)}</b></p>' if decision else ""
         self.table.object = plots.comparison_table(rows)
-        self.bars[:] = [pn.pane.HoloViews(b, width=330, height=230, margin=(0, 6))
-                        for b in plots.comparison_bars(rows, width=320, height=220)]
+        self.bars[:] = [pn.pane.HoloViews(b, width=390, height=250, margin=(0, 6))
+                        for b in plots.comparison_charts(rows, int(s.planned_draws), width=380, height=240)]
 
 
 def _measure(target, n, seed, tol):
@@ -647,7 +758,7 @@ def _measure(target, n, seed, tol):
 
 # ---- 6. life figures -------------------------------------------------------------------------
 
-class LifeCell(Cell):
+class LifeStep(Step):
     number = 6
     title = "Life figures"
     blurb = ("MTTF, B-lives and reliability at the mission times, estimated from the draws with confidence "
@@ -705,7 +816,7 @@ class LifeCell(Cell):
 
 # ---- 8. report (7 is the fleet step, fleet_view.py) -------------------------------------------------------------------------------
 
-class ReportCell(Cell):
+class ReportStep(Step):
     number = 8
     title = "Report"
     blurb = ("Save this snapshot as a self-contained HTML report (it opens offline), or save the current "
@@ -747,7 +858,8 @@ class ReportCell(Cell):
             scenario = s.current_scenario()
             path = default_report_path(self.report_dir, scenario)
             rows = list(s.comparison) or None
-            result = await off_loop(_write_report, write_report, scenario, path, rows)
+            result = await off_loop(_write_report, write_report, scenario, path, rows,
+                                  int(s.planned_draws))
             with pn.io.hold(freeze=True):
                 if isinstance(result, Exception):
                     s.file_error("report", result)
@@ -768,9 +880,9 @@ class ReportCell(Cell):
                 s.running = True
 
 
-def _write_report(write_report, scenario, path, rows):
+def _write_report(write_report, scenario, path, rows, planned):
     try:
-        return write_report(scenario, path, comparison=rows)
+        return write_report(scenario, path, comparison=rows, planned_draws=planned)
     except Exception as err:
         return err
 
@@ -780,3 +892,19 @@ def _write_report(write_report, scenario, path, rows):
 def caution_banner() -> pn.pane.Alert:
     return pn.pane.Alert(f"<b>Caution.</b> {html.escape(CAUTION)}", alert_type="warning",
                          sizing_mode="stretch_width", margin=(6, 0), css_classes=["ld-caution"])
+
+
+# ---- renamed names ------------------------------------------------------------------------------
+
+_RENAMED = {"Cell": "Step", **{f"{k}Cell": f"{k}Step" for k in
+            ("Model", "Generator", "LiveCheck", "Geometry", "Comparison", "Life", "Report")}}
+
+
+def __getattr__(name: str):
+    """The sections were once called cells (``ModelCell``, ...): the old names still work for one
+    release, with a warning."""
+    if name in _RENAMED:
+        warnings.warn(f"lifedraw.dashboard.views.{name} is deprecated; use {_RENAMED[name]}",
+                      DeprecationWarning, stacklevel=2)
+        return globals()[_RENAMED[name]]
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -1,4 +1,4 @@
-"""The workbench in a real browser (headless Chromium driven by Playwright): the page renders
+"""The drawing board in a real browser (headless Chromium driven by Playwright): the page renders
 offline, reacts to sliders, the editor, the method and the buttons, and writes its report.
 
 One server for the module (a subprocess on a free loopback port); each test opens
@@ -28,7 +28,7 @@ ARTIFACTS = ROOT / "test-artifacts"
 CHROMIUM = "/usr/bin/chromium"
 ARGS = ["--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
         "--disable-component-update", "--disable-sync"]
-CELLS = 8
+STEPS = 8
 
 # The model's density curve is the only 801-point data source on the page (plots.density_histogram).
 MODEL_CURVE_JS = """() => {
@@ -88,7 +88,7 @@ def browser():
 
 
 class Page:
-    """A page of the workbench with the network cut off and its errors collected."""
+    """A page of the drawing board with the network cut off and its errors collected."""
 
     def __init__(self, browser, url):
         self.page = browser.new_page(viewport={"width": 1360, "height": 1000})
@@ -99,7 +99,7 @@ class Page:
         self.page.route("**/*", self._route)
         self.page.goto(url)
         self.page.wait_for_selector(".ld-redraw", timeout=60_000)
-        self.page.wait_for_selector(f".ld-cell-{CELLS}", timeout=30_000)
+        self.page.wait_for_selector(f".ld-step-{STEPS}", timeout=30_000)
 
     def _route(self, route):
         url = route.request.url
@@ -109,9 +109,9 @@ class Page:
             self.outside.append(url)
             route.abort()
 
-    def cell(self, n):
+    def step(self, n):
         # Newer sections are called steps (the fleet step is .ld-step-7).
-        return self.page.locator(f".ld-cell-{n}, .ld-step-{n}")
+        return self.page.locator(f".ld-step-{n}, .ld-step-{n}")
 
     def version(self) -> int:
         return int(self.page.locator(".ld-redraw").get_attribute("data-version"))
@@ -154,12 +154,12 @@ def page(browser, server):
 
 def test_the_page_loads_offline_with_every_cell_and_no_console_errors(page):
     page.page.wait_for_timeout(1500)
-    for n in range(1, CELLS + 1):
-        assert page.cell(n).is_visible(), f"cell {n} is not shown"
-    assert page.cell(3).locator("canvas").count() >= 5         # histogram, QQ, PP, two traces
-    assert page.cell(4).locator("canvas").count() >= 1         # the method's geometry
+    for n in range(1, STEPS + 1):
+        assert page.step(n).is_visible(), f"cell {n} is not shown"
+    assert page.step(3).locator("canvas").count() >= 5         # histogram, QQ, PP, two traces
+    assert page.step(4).locator("canvas").count() >= 1         # the method's geometry
     assert page.page.locator(".ld-caution").first.is_visible()
-    assert page.page.title() == "lifedraw — lifetime sampler workbench"
+    assert page.page.title() == "lifedraw — lifetime sampler drawing board"
     page.shot("01-page-loaded")
     assert page.outside == [], "the page asked for files outside the server"
     assert page.errors == []
@@ -174,7 +174,7 @@ def test_moving_a_slider_changes_the_plotted_model(page):
     after_curve = page.page.evaluate(MODEL_CURVE_JS)
     assert before_curve is not None and after_curve is not None
     assert max(abs(a - b) for a, b in zip(before_curve, after_curve)) > 0.05 * max(before_curve)
-    assert "shape (beta) = 2.6," not in page.cell(1).locator(".ld-description pre").inner_text()
+    assert "shape (beta) = 2.6," not in page.step(1).locator(".ld-description pre").inner_text()
     page.shot("02-slider-moved")
     assert page.errors == []
 
@@ -187,14 +187,14 @@ def test_two_tabs_keep_their_own_state(browser, server, page):
         page.wait_until(lambda: page.version() > before, what="the refit in the first tab")
         other.page.wait_for_timeout(800)
         assert other.version() == before
-        assert "scale (eta) = 31000" in other.cell(1).locator(".ld-description pre").inner_text()
+        assert "scale (eta) = 31000" in other.step(1).locator(".ld-description pre").inner_text()
         other.shot("03-second-tab-unchanged")
     finally:
         other.close()
 
 
 def test_a_bad_formula_shows_its_message_and_the_app_keeps_working(page):
-    cell = page.cell(1)
+    cell = page.step(1)
     cell.get_by_role("button", name="density f(t)").click()
     cell.get_by_placeholder("e.g. t**(k - 1)*exp(-(t/s)**p)").fill("t**(k - 1)*exp(")
     params = cell.get_by_placeholder("shape = 2.5, scale = 9000")
@@ -207,40 +207,40 @@ def test_a_bad_formula_shows_its_message_and_the_app_keeps_working(page):
     assert "Weibull lifetime" in cell.locator(".ld-description pre").inner_text()    # the last valid model is kept
     page.shot("04-bad-formula")
     before = page.batch()
-    page.cell(2).get_by_role("button", name="▶ Start").click()
+    page.step(2).get_by_role("button", name="▶ Start").click()
     page.wait_until(lambda: page.batch() > before, what="a batch after the bad formula")
     assert "100,000 draws" in page.page.locator(".ld-redraw").inner_text()   # the scenario's sample size
     assert page.errors == []
 
 
 def test_switching_the_method_changes_the_geometry_cell(page):
-    page.cell(1).locator("select").first.select_option(label=_option(page, "sensor-bathtub"))
-    page.wait_until(lambda: "Vineyard" in page.cell(1).locator("h3").first.inner_text(),
+    page.step(1).locator("select").first.select_option(label=_option(page, "sensor-bathtub"))
+    page.wait_until(lambda: "Vineyard" in page.step(1).locator("h3").first.inner_text(),
                     what="the bathtub scenario")
-    method = page.cell(2).locator("select").first
-    geometry = page.cell(4).locator(".ld-geometry-method")
+    method = page.step(2).locator("select").first
+    geometry = page.step(4).locator(".ld-geometry-method")
     method.select_option("inversion")
     page.wait_until(lambda: geometry.inner_text() == "inversion", what="the inversion geometry")
     method.select_option("composition")
     page.wait_until(lambda: geometry.inner_text() == "composition", what="the composition geometry")
-    page.wait_until(lambda: page.cell(4).locator("canvas").count() >= 2, what="the composition pictures")
-    page.cell(4).scroll_into_view_if_needed()
+    page.wait_until(lambda: page.step(4).locator("canvas").count() >= 2, what="the composition pictures")
+    page.step(4).scroll_into_view_if_needed()
     page.shot("05-geometry-composition")
     assert page.errors == []
 
 
 def _option(page, name):
     """The scenario picker's label for a scenario name (labels end with [name])."""
-    labels = page.cell(1).locator("select").first.locator("option").all_inner_texts()
+    labels = page.step(1).locator("select").first.locator("option").all_inner_texts()
     return next(label for label in labels if label.endswith(f"[{name}]"))
 
 
 def test_the_method_comparison_runs(page):
-    cell = page.cell(5)
+    cell = page.step(5)
     cell.get_by_role("button", name="Measure all methods").click()
     table = cell.locator("table.ld-comparison")
     table.wait_for(timeout=60_000)
-    methods = [m for m in page.cell(2).locator("select").first.locator("option").all_inner_texts() if m != "auto"]
+    methods = [m for m in page.step(2).locator("select").first.locator("option").all_inner_texts() if m != "auto"]
     rows = table.locator("tbody tr")
     assert rows.count() == len(methods)
     assert "inversion" in table.inner_text()
@@ -251,7 +251,7 @@ def test_the_method_comparison_runs(page):
 
 
 def test_the_report_is_written_and_opens_offline(page, browser):
-    cell = page.cell(8)
+    cell = page.step(8)
     cell.get_by_role("button", name="Write HTML report").click()
     path_text = cell.locator(".ld-path")
     path_text.wait_for(timeout=90_000)
