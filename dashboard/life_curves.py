@@ -53,6 +53,9 @@ def model_hazard(target, edges, view_right: float, log: bool) -> dict:
         positive = edges[edges > 0]
         left = max(left, float(positive[0]) if positive.size else 1e-12)
     x = np.geomspace(left, right, CURVE_POINTS) if log and right > left > 0 else np.linspace(left, right, CURVE_POINTS)
+    if x[0] <= target.support[0]:
+        # The model's functions treat the support's end as outside it (h = 0 there): start just inside.
+        x[0] = np.nextafter(float(target.support[0]), np.inf)
     atoms = bool(np.asarray(target.atoms).size)
     if atoms:
         F = np.asarray(target.cdf(edges), dtype=float)
