@@ -1,5 +1,5 @@
 """How every plot of the page and the report labels its axes and shows its toolbar: counts with
-k/M/G (M for millions), log axes with one notation (2.5e-7), and tools without a logo.
+k/M/G (M for millions), every log axis in one notation (2.5e-7, 1e3), and tools without a logo.
 
 Bokeh tick formatters run in the browser; the two here are small JavaScript expressions of
 our own, so the report (which has no server) formats its ticks the same way.
@@ -16,7 +16,8 @@ if (a >= 1e9) return short(tick / 1e9) + ' G';
 if (a >= 1e6) return short(tick / 1e6) + ' M';
 if (a >= 1e4) return short(tick / 1e3) + ' k';
 if (a >= 1) return Math.round(tick).toLocaleString('en-US');
-return short(tick);
+if (a === 0 || a >= 1e-3) return short(tick);
+return Number(tick.toPrecision(3)).toExponential().replace('e+', 'e');
 """
 
 #: Every tick of a log axis in the same exponent notation: 1e-7, 2.5e-4, 1e0, 1e3.

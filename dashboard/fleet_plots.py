@@ -11,7 +11,6 @@ import holoviews as hv
 import numpy as np
 
 from .axis_style import hide_logo
-from .axis_style import hide_logo
 from .plots import DRAWS, FONTS, GRID, MODEL, TOOLS, fmt, html_table, unit_singular
 
 BAND = "#a9c4de"

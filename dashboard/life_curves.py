@@ -14,14 +14,14 @@ import numpy as np
 from scipy import stats as _stats
 
 #: Bins with fewer units at risk than this are left out of the hazard estimate (too noisy to read).
-MIN_AT_RISK = 30
+MIN_AT_RISK = 100
 #: Two-sided confidence of the bands.
 BAND = 0.95
 CURVE_POINTS = 400
 #: Probability-plot positions: from 0.1 % to 99.9 %, spaced evenly on the Weibull scale.
 WEIBULL_P = 1.0 - np.exp(-np.exp(np.linspace(np.log(-np.log(0.999)), np.log(-np.log(0.001)), 120)))
 #: Tick positions of the probability axis (cumulative share failed).
-WEIBULL_TICKS = (0.001, 0.01, 0.05, 0.1, 0.2, 0.5, 0.632, 0.9, 0.99, 0.999)
+WEIBULL_TICKS = (0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.632, 0.9, 0.99, 0.999)
 
 
 def weibull_y(p) -> np.ndarray:

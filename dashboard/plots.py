@@ -48,7 +48,7 @@ def _common(title, width, height, **extra):
     if extra.get("logy"):
         extra.setdefault("yformatter", log_formatter())
     if extra.get("logx"):
-        extra.setdefault("xformatter", count_formatter())
+        extra.setdefault("xformatter", log_formatter())
     return dict(title=title, show_grid=True, fontsize=FONTS, default_tools=TOOLS, toolbar="right",
                 framewise=True, hooks=[hide_logo], **_size(width, height), **extra)
 
@@ -435,7 +435,7 @@ def comparison_charts(rows: list[dict], planned: int | None = None, width=None, 
             if r.get("u_error") is not None and math.isfinite(float(r["u_error"]))]
     exact = [r["method"] for r in measured if r.get("u_error") is None]
     if errs:
-        title = "max u-error (log axis)" + (f"; exact, not shown: {', '.join(exact)}" if exact else "")
+        title = "max u-error (log axis)" + ("; exact methods not shown" if exact else "")
         top = max(v for _, v in errs)
         out.append(_dots(errs, "max u-error", "u_error", title, width, height, logy=True,
                          ylim=(1e-17, max(top * 10, 1e-14))))

@@ -10,15 +10,30 @@ from __future__ import annotations
 import holoviews as hv
 import numpy as np
 
+from .axis_style import count_formatter
 from .life_curves import WEIBULL_TICKS, weibull_y
 from .plots import DRAWS, GRID, MODEL, age_label, common_opts, finish_overlay, unit_singular
 
 FIELD = "#222222"
+#: Half-width pictures keep their legend above the plotting area, in one row, so the data keeps the width.
+HALF_WIDTH_LEGEND = {"legend_position": "top", "legend_cols": 3}
 
 
 def _positive(a, log):
     a = np.asarray(a, dtype=float)
     return np.where(a > 0, a, np.nan) if log else a
+
+
+def log_ticks(lo: float, hi: float) -> list[float]:
+    """Tick values 1, 2, 5 x 10^k between lo and hi (only 10^k when that would be more than 10), so a
+    log axis spanning less than a decade does not crowd its labels."""
+    if not (lo > 0 and hi > lo):
+        return []
+    decades = range(int(np.floor(np.log10(lo))), int(np.ceil(np.log10(hi))) + 1)
+    ticks = [m * 10.0 ** k for k in decades for m in (1, 2, 5) if lo <= m * 10.0 ** k <= hi]
+    if len(ticks) > 10:
+        ticks = [t for t in ticks if np.isclose(np.log10(t), round(np.log10(t)))]
+    return ticks
 
 
 def _log_limits(*arrays) -> dict:
@@ -29,6 +44,7 @@ def _log_limits(*arrays) -> dict:
         values = values[np.isfinite(values) & (values > 0)]
         if values.size:
             out[axis] = (float(values.min()) / 1.5, float(values.max()) * 1.5)
+            out[axis[0] + "ticks"] = log_ticks(*out[axis])
     return out
 
 
@@ -52,12 +68,19 @@ def hazard_plot(data: dict, width=None, height=300) -> hv.Overlay:
     layers.append(hv.Curve((data["model_x"], _positive(data["model_h"], log)), xd, hd, label=label).opts(
         color=MODEL, line_width=2))
     n = int(data.get("n", 0))
-    title = f"hazard rate: model and estimate from {n:,} draws" if n else "hazard rate of the model (no draws yet)"
+    title = f"hazard rate h(t), model and {n:,} draws" if n else "hazard rate h(t) of the model (no draws yet)"
     if log:
         # The band's lower edge may reach 0 in a bin without failures: it does not set the range.
         extra = {"logx": True, "logy": True, **_log_limits(data["model_x"], data["model_h"], mid, data["estimate"])}
     else:
-        extra = {"yformatter": "%.3g"}
+        # The last bins' estimates are noisy: the model and the bulk of the estimates set the height.
+        model_h = np.asarray(data["model_h"], dtype=float)
+        tops = [np.nanmax(model_h[np.isfinite(model_h)]) if np.isfinite(model_h).any() else 0.0]
+        if mid.size:
+            tops.append(float(np.nanpercentile(data["estimate"], 95)))
+        top = 1.3 * max(tops)
+        extra = {"yformatter": "%.3g", "xformatter": count_formatter(), **({"ylim": (0, top)} if top > 0 else {})}
+    extra.update(HALF_WIDTH_LEGEND)
     return finish_overlay(hv.Overlay(layers), **common_opts(title, width, height, **extra))
 
 
@@ -80,7 +103,8 @@ def cumulative_hazard_plot(data: dict, width=None, height=300) -> hv.Overlay:
     if log:
         extra = {"logx": True, "logy": True, **_log_limits(data["x"], data["model_H"], edges, data["H"])}
     else:
-        extra = {"yformatter": "%.3g"}
+        extra = {"yformatter": "%.3g", "xformatter": count_formatter()}
+    extra.update(HALF_WIDTH_LEGEND)
     return finish_overlay(hv.Overlay(layers), **common_opts("cumulative hazard H(t) = −ln R(t)", width, height,
                                                             **extra))
 
@@ -110,7 +134,7 @@ def weibull_plot(data: dict, width=None, height=320) -> hv.Overlay:
     if n:
         title += f", {n:,} draws"
     opts = common_opts(title, width, height, logx=True, yticks=ticks, ylim=(float(y[0]) - 0.3, float(y[-1]) + 0.3),
-                       xlim=xlim)
+                       xlim=xlim, **({"xticks": log_ticks(*xlim)} if xlim[0] else {}))
     # A reference line at F = 63.2 %, where a Weibull's age is its scale eta.
     layers.append(hv.HLine(0.0).opts(color=GRID, line_dash="dotted", line_width=1))
     return finish_overlay(hv.Overlay(layers), **opts)

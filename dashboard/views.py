@@ -404,7 +404,7 @@ class GeneratorStep(Step):
         self.start.on_click(lambda e: self.act(s.start))
         self.pause.on_click(lambda e: self.act(s.pause))
         self.reset.on_click(lambda e: self.act(s.reset))
-        s.param.watch(lambda e: self.sync(), ["version", "running", "method", "tolerance", "seed", "stop_at"])
+        s.param.watch(lambda *events: self.sync(), ["version", "running", "method", "tolerance", "seed", "stop_at"])
         s.param.watch(lambda e: self.refresh_status(), "batch")
         s.param.watch(lambda e: self.show_errors(), "errors")
         self.sync()
@@ -685,7 +685,7 @@ class ComparisonStep(Step):
                                      margin=(22, 10, 0, 10))
         self.run.on_click(self._run)
         self.planned = pn.widgets.Select(name="Draws you mean to take",
-                                         options={f"{plots.count_text(n)}": n for n in PLANNED_DRAWS},
+                                         options={_planned_label(n): n for n in PLANNED_DRAWS},
                                          value=int(state.planned_draws), width=170)
         self.planned.param.watch(lambda e: self.act(self._set_planned, e.new), "value")
         self.decision = _html(css_classes=["ld-decision"])
@@ -745,6 +745,14 @@ class ComparisonStep(Step):
         self.table.object = plots.comparison_table(rows)
         self.bars[:] = [pn.pane.HoloViews(b, width=390, height=250, margin=(0, 6))
                         for b in plots.comparison_charts(rows, int(s.planned_draws), width=380, height=240)]
+
+
+def _planned_label(n: int) -> str:
+    """10,000 / 100,000 / 1 million / 1 billion."""
+    for word, size in (("billion", 10**9), ("million", 10**6)):
+        if n >= size:
+            return f"{n / size:g} {word}"
+    return f"{n:,}"
 
 
 def _measure(target, n, seed, tol):
