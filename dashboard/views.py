@@ -503,7 +503,10 @@ class LiveCheckStep(Step):
             dm.opts(framewise=True, axiswise=True)
         pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
         self.hist_pane = pane(self.hist, 330)
-        self.hazard_panes = [pane(dm, 300) for dm in self._hazard_maps()]
+        # Not linked to the other plots' axes: the hazard's age axis turns logarithmic on request,
+        # and a shared range would carry the linear axis's 0 onto the log axis.
+        self.hazard_panes = [pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=300, margin=(0, 6),
+                                               linked_axes=False) for dm in self._hazard_maps()]
         self.weibull_pane = pane(self.weibull, 340)
         self.panes = [pane(self.qq, 290), pane(self.pp, 290), pane(self.ks_trace, 250), pane(self.acc_trace, 250)]
         self.counters = _html()
