@@ -435,9 +435,9 @@ def comparison_charts(rows: list[dict], planned: int | None = None, width=None, 
             if r.get("u_error") is not None and math.isfinite(float(r["u_error"]))]
     exact = [r["method"] for r in measured if r.get("u_error") is None]
     if errs:
-        title = "max u-error (log axis)" + ("; exact methods not shown" if exact else "")
+        title = "u-error, estimated (log axis)" + ("; exact methods not shown" if exact else "")
         top = max(v for _, v in errs)
-        out.append(_dots(errs, "max u-error", "u_error", title, width, height, logy=True,
+        out.append(_dots(errs, "u-error (estimate)", "u_error", title, width, height, logy=True,
                          ylim=(1e-17, max(top * 10, 1e-14))))
     mem = [(r["method"], float(r["table_bytes"])) for r in measured if r.get("table_bytes") is not None]
     if mem:
