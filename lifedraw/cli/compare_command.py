@@ -21,7 +21,7 @@ def run_compare(args) -> int:
 
 
 def add_compare_parser(sub) -> None:
-    p = sub.add_parser("compare", help="measure every applicable method on a scenario")
+    p = sub.add_parser("compare", help="measure every applicable method on a scenario and name the one to use")
     p.add_argument("scenario")
     p.add_argument("-n", type=whole_number, default=300_000, help="draws timed per method (default 3e5)")
     p.add_argument("--seed", type=seed_number, default=None)
