@@ -25,7 +25,7 @@ def retired_words(text: str) -> list[str]:
 
 
 def page_strings(path: Path) -> list[str]:
-    """Every string constant of a dashboard module, except inside the deprecated-alias code."""
+    """Every string constant of a dashboard module, except docstrings and the deprecated-alias code."""
     tree = ast.parse(path.read_text(encoding="utf-8"))
     skip = set()
     for node in ast.walk(tree):
@@ -33,6 +33,12 @@ def page_strings(path: Path) -> list[str]:
             isinstance(node, ast.Assign) and any(getattr(t, "id", "") in ALIAS_HOLDERS for t in node.targets))
         if named:
             skip.update(id(n) for n in ast.walk(node))
+    # Docstrings speak to developers (where "cell" may be a table's); the page never shows them.
+    for node in ast.walk(tree):
+        body = getattr(node, "body", None)
+        if isinstance(body, list) and body and isinstance(body[0], ast.Expr) \
+                and isinstance(body[0].value, ast.Constant) and isinstance(body[0].value.value, str):
+            skip.add(id(body[0].value))
     return [n.value for n in ast.walk(tree)
             if isinstance(n, ast.Constant) and isinstance(n.value, str) and id(n) not in skip]
 
