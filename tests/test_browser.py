@@ -29,6 +29,7 @@ CHROMIUM = "/usr/bin/chromium"
 ARGS = ["--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
         "--disable-component-update", "--disable-sync"]
 STEPS = 8
+REPORT_STEP = STEPS          # the last step writes the report
 WIDTHS = (1400, 1024)
 FIRST_BATCH = 50_000
 
@@ -499,7 +500,7 @@ def test_the_method_comparison_names_the_winner_with_dots_not_bars(page):
 
 
 def test_the_report_is_written_and_opens_offline(page, browser):
-    step = page.step(7)
+    step = page.step(REPORT_STEP)
     step.get_by_role("button", name="Write HTML report").click()
     path_text = step.locator(".ld-path")
     path_text.wait_for(timeout=120_000)
