@@ -1,4 +1,4 @@
-"""Slider-release-to-redraw latency of the workbench, measured in a real browser (headless Chromium).
+"""Slider-release-to-redraw latency of the drawing board, measured in a real browser (headless Chromium).
 Median and 95th percentile over repeated drags of a parameter slider; not part of `make test`.
 
 The app writes ``data-version`` on a marker element in the same grouped update
@@ -93,16 +93,16 @@ def measure(url: str, trials: int, batch: int, streaming: bool, param: str | Non
         page = browser.new_page(viewport={"width": 1360, "height": 1000})
         page.goto(url)
         page.wait_for_selector(".ld-redraw", timeout=60_000)
-        batch_select = page.locator(".ld-cell-2 select").nth(2)
+        batch_select = page.locator(".ld-step-2 select").nth(2)
         batch_select.select_option(label=f"{batch:,}")
         page.wait_for_timeout(1500)
         if streaming:
-            stop_after = page.locator(".ld-cell-2 input").nth(1)     # "Stop after (draws)"
+            stop_after = page.locator(".ld-step-2 input").nth(1)     # "Stop after (draws)"
             stop_after.fill("50000000")
             stop_after.press("Enter")
             page.wait_for_timeout(500)
             page.get_by_role("button", name="▶ Start").click()
-        sliders = page.locator(".ld-cell-1 .noUi-handle")
+        sliders = page.locator(".ld-step-1 .noUi-handle")
         handle = page.locator(f".ld-slider-{param} .noUi-handle") if param else sliders.first
         handle.scroll_into_view_if_needed()
         page.evaluate(MONITOR_JS)

@@ -1,4 +1,4 @@
-"""What open tabs cost the workbench server (issue 14, item 5): CPU of idle tabs, the time a new page
+"""What open tabs cost the drawing board server (issue 14, item 5): CPU of idle tabs, the time a new page
 takes to open while other tabs stream, and how soon a closed tab's session is released.
 
 Measured with real browser tabs (headless Chromium, one browser, one page per
@@ -62,7 +62,7 @@ def open_page(browser, url: str) -> tuple:
         ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:")) else r.abort())
     start = time.perf_counter()
     page.goto(url)
-    page.wait_for_selector(".ld-cell-8", timeout=180_000)
+    page.wait_for_selector(".ld-step-8", timeout=180_000)
     page.wait_for_selector(".ld-redraw", timeout=180_000)
     return page, time.perf_counter() - start
 
@@ -85,11 +85,11 @@ def draws_so_far(page) -> int:
 
 def stream(page) -> None:
     """Let the tab stream for a long time: the largest stop, then Start."""
-    stop = page.locator(".ld-cell-2 input").nth(1)
+    stop = page.locator(".ld-step-2 input").nth(1)
     stop.fill("50000000")
     stop.press("Enter")
     page.wait_for_timeout(500)
-    page.locator(".ld-cell-2 button", has_text="Start").click()
+    page.locator(".ld-step-2 button", has_text="Start").click()
 
 
 def say(line: str) -> None:

@@ -1,7 +1,9 @@
-"""lifedraw's browser workbench: per-session state, cells, plots, the app shell and the HTML report.
+"""lifedraw's browser drawing board: per-session state, steps, plots, the app shell and the HTML report.
 Built on Panel, HoloViews and Bokeh; the engine never imports it, the command line does.
 
-Layout: ``state`` (what the user chose and what the engine derived), ``plots``
-(pictures and tables from plain arrays), ``views`` (the numbered cells),
-``app`` (the page and the server), ``report`` (the standalone HTML file).
+Layout: ``state`` gathers the per-session state (``board``, ``model_editing``, ``board_data``,
+``cdf_table``, ``draw_accumulator``, ``check_data``, ``model_inputs``); ``plots``,
+``reliability_plots`` and ``life_curves`` make the pictures from plain arrays; ``views`` gathers
+the numbered steps (``step_base`` and one ``*_step`` file each); ``app`` is the page and the
+server, ``report`` the standalone HTML file.
 """

@@ -1,4 +1,4 @@
-"""Compose the workbench page, one state per browser session, and serve it on loopback.
+"""Compose the drawing board page, one state per browser session, and serve it on loopback.
 Panel/Bokeh server (Tornado); every script and stylesheet is served by the app itself, none from a CDN.
 
 ``create_app`` is called once per session; its ``PageUpdates`` draws one bounded
@@ -21,13 +21,13 @@ from .defaults import DEFAULT_ADDRESS, DEFAULT_PORT
 from .fleet_view import FleetView
 from .host_guard import guard
 from .page_updates import PageUpdates
-from .state import Workbench
-from .views import (ComparisonCell, GeneratorCell, GeometryCell, LifeCell, LiveCheckCell, ModelCell, ReportCell,
+from .state import DrawingBoard
+from .views import (ComparisonStep, GeneratorStep, GeometryStep, LifeStep, LiveCheckStep, ModelStep, ReportStep,
                     caution_banner)
 
 log = logging.getLogger("lifedraw.dashboard")
 
-TITLE = "lifedraw — lifetime sampler workbench"
+TITLE = "lifedraw — lifetime sampler drawing board"
 # A closed tab's session is destroyed (and its state released) once it has had no connection for
 # SESSION_LIFETIME_MS, checked every SESSION_CHECK_MS: within about 10 s, not Bokeh's default ~30 s.
 # The lifetime also bounds the time between a page's arrival and its WebSocket connection.
@@ -77,17 +77,17 @@ def _settle_memory() -> None:
 
 
 def default_report_dir() -> Path:
-    """Where the Report cell writes: $LIFEDRAW_REPORT_DIR, else ~/lifedraw-reports (outside any checkout)."""
+    """Where the Report step writes: $LIFEDRAW_REPORT_DIR, else ~/lifedraw-reports (outside any checkout)."""
     return Path(os.environ.get("LIFEDRAW_REPORT_DIR") or Path.home() / "lifedraw-reports")
 
 
 def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
-    """Build one session's page: a fresh ``Workbench``, the cells that present it and the fleet step."""
-    state = Workbench(scenario)
+    """Build one session's page: a fresh ``DrawingBoard``, the steps that present it and the fleet step."""
+    state = DrawingBoard(scenario)
     report_dir = Path(report_dir or default_report_dir())
-    model, generator = ModelCell(state, on_drag=lambda: updates.dragging()), GeneratorCell(state)
-    live, geometry, comparison = LiveCheckCell(state), GeometryCell(state), ComparisonCell(state)
-    life, report = LifeCell(state), ReportCell(state, report_dir)
+    model, generator = ModelStep(state, on_drag=lambda: updates.dragging()), GeneratorStep(state)
+    live, geometry, comparison = LiveCheckStep(state), GeometryStep(state), ComparisonStep(state)
+    life, report = LifeStep(state), ReportStep(state, report_dir)
     fleet = FleetView(state)
     geometry.refresh()
     life.refresh()
@@ -99,7 +99,7 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         stylesheets=[HEADER_CSS], sizing_mode="stretch_width", margin=(4, 0))
     page = pn.Column(
         header, caution_banner(),
-        *(cell.panel() for cell in (model, generator, live, geometry, comparison, life, fleet, report)),
+        *(step.panel() for step in (model, generator, live, geometry, comparison, life, fleet, report)),
         caution_banner(),
         sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
     doc = pn.state.curdoc
@@ -120,7 +120,7 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
 
 def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: str | None = None, report_dir=None,
           show: bool = False) -> int:
-    """Serve the workbench until Ctrl-C; returns 0 after a clean stop."""
+    """Serve the drawing board until Ctrl-C; returns 0 after a clean stop."""
     from lifedraw.engine.scenarios import load_scenario
     if scenario:
         load_scenario(scenario)    # a bad name fails here, with its message, before the server starts
@@ -134,7 +134,7 @@ def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: st
         # Bound to every interface on purpose: accept this machine's own names as origins.
         origins |= {f"{socket.gethostname()}:{port}", f"{socket.getfqdn()}:{port}"}
     url = f"http://{address}:{port}/"
-    print(f"lifedraw workbench: {url}  (Ctrl-C stops it)", flush=True)
+    print(f"lifedraw drawing board: {url}  (Ctrl-C stops it)", flush=True)
     server = pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
                       websocket_origin=sorted(origins), show=show, start=False, threaded=False, title=TITLE,
                       verbose=False, location=False,  # (the page reads no URL; Panel's reader fails on "[::1]") check_unused_sessions_milliseconds=SESSION_CHECK_MS,
@@ -146,5 +146,5 @@ def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: st
         server.io_loop.start()
     except RuntimeError:    # the loop was stopped by Ctrl-C (Panel's signal handler)
         pass
-    print("lifedraw workbench: stopped", flush=True)
+    print("lifedraw drawing board: stopped", flush=True)
     return 0

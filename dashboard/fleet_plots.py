@@ -10,6 +10,7 @@ from __future__ import annotations
 import holoviews as hv
 import numpy as np
 
+from .axis_style import hide_logo
 from .plots import DRAWS, FONTS, GRID, MODEL, TOOLS, fmt, html_table, unit_singular
 
 BAND = "#a9c4de"
@@ -18,8 +19,11 @@ BAND = "#a9c4de"
 def _opts(title, width, height, **extra):
     size = {"width": int(width), "height": int(height)} if width else \
         {"responsive": True, "height": int(height), "min_width": 260}
+    # Legends above the plotting area (never over the data); toolbars without the library's logo.
+    extra["legend_position"] = "top"
+    extra.setdefault("legend_cols", 3)
     return dict(title=title, show_grid=True, fontsize=FONTS, default_tools=TOOLS, toolbar="right",
-                framewise=True, **size, **extra)
+                framewise=True, hooks=[hide_logo], **size, **extra)
 
 
 def _framewise(overlay):

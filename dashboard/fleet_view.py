@@ -17,7 +17,7 @@ from lifedraw.engine.systems import system_from_scenario
 
 from . import fleet_plots
 from .fleet_state import MAX_RUNS, MAX_UNITS, FleetStep, fleet_payload
-from .views import CELL_STYLES, HEAD_CSS, TABLE_CSS, TEXT_CSS
+from .views import STEP_STYLES, HEAD_CSS, TABLE_CSS, TEXT_CSS
 
 log = logging.getLogger("lifedraw.dashboard")
 
@@ -31,7 +31,7 @@ PLOT_WIDTH, PLOT_HEIGHT = 560, 300
 
 
 class FleetView:
-    """Step 7: presents a ``FleetStep``; the Workbench ``state`` supplies the model and the seed."""
+    """Step 7: presents a ``FleetStep``; the DrawingBoard ``state`` supplies the model and the seed."""
 
     def __init__(self, state, fleet: FleetStep | None = None):
         self.state = state
@@ -88,7 +88,7 @@ class FleetView:
                 pn.Row(w["warranty"], w["sales"], margin=0),
                 pn.Row(self.run, self.bar, margin=0)]
         return pn.Column(heading, *rows, self.error, self.status, self.summary, self.plots, self.caution,
-                         sizing_mode="stretch_width", styles=CELL_STYLES, margin=(8, 0),
+                         sizing_mode="stretch_width", styles=STEP_STYLES, margin=(8, 0),
                          css_classes=[f"ld-step-{STEP_NUMBER}", "ld-step-fleet"], name=TITLE)
 
     # ---- model changes ------------------------------------------------------------------------

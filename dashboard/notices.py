@@ -15,7 +15,8 @@ ERROR_CSS = """
 .ld-error { background: #fdecec; color: #7a1f1f; border: 1px solid #f3c2c2; border-radius: 6px;
             padding: 8px 12px; font-size: 14px; line-height: 1.45; }
 .ld-error pre { margin: 6px 0 0 0; font-size: 12.5px; background: none; border: none; padding: 0;
-                white-space: pre; overflow-x: auto; }
+                white-space: pre; overflow-x: auto; color: #1f2933;
+                font-family: "DejaVu Sans Mono", Menlo, Consolas, monospace; }
 """
 
 

@@ -1,5 +1,5 @@
 """The page's follow-up updates (after a batch or a refit), run only while there is something to do.
-An idle tab costs the server nothing: the periodic callback exists only while the stream runs or a cell is stale.
+An idle tab costs the server nothing: the periodic callback exists only while the stream runs or a step is stale.
 
 One bounded piece of work per tick keeps the server answering the next user
 action quickly: the live check's secondary plots and the life figures after a
@@ -61,7 +61,7 @@ STREAMS = LoopBudget()
 
 
 class PageUpdates:
-    """Drive the stale cells and the stream of one session's page."""
+    """Drive the stale steps and the stream of one session's page."""
 
     def __init__(self, state, live, geometry, life, budget: LoopBudget = STREAMS):
         self.state, self.live, self.geometry, self.life = state, live, geometry, life

@@ -1,4 +1,4 @@
-"""Pictures and tables of the workbench, built from plain arrays: HoloViews elements (Bokeh
+"""Pictures and tables of the drawing board, built from plain arrays: HoloViews elements (Bokeh
 backend) and small HTML tables, shared by the live page and the standalone report.
 
 Every function takes numbers and returns an element or an HTML string; none
@@ -11,7 +11,8 @@ import math
 
 import holoviews as hv
 import numpy as np
-from bokeh.models import NumeralTickFormatter
+
+from .axis_style import count_formatter, hide_logo, log_formatter
 
 from lifedraw.engine.life import inside_interval, verdict_legend
 
@@ -35,7 +36,7 @@ TOOLS = ["pan", "wheel_zoom", "box_zoom", "reset", "save"]
 
 
 def _size(width, height):
-    """Fixed size for the report, stretch to the cell's width on the page."""
+    """Fixed size for the report, stretch to the step's width on the page."""
     if width:
         return {"width": int(width), "height": int(height)}
     return {"responsive": True, "height": int(height), "min_width": 260}
@@ -43,8 +44,18 @@ def _size(width, height):
 
 def _common(title, width, height, **extra):
     # framewise: ranges follow each new frame of a live plot (a refit can move them anywhere).
+    # Log axes share one notation (axis_style); legends are placed by _finish.
+    if extra.get("logy"):
+        extra.setdefault("yformatter", log_formatter())
+    if extra.get("logx"):
+        extra.setdefault("xformatter", log_formatter())
     return dict(title=title, show_grid=True, fontsize=FONTS, default_tools=TOOLS, toolbar="right",
-                framewise=True, **_size(width, height), **extra)
+                framewise=True, hooks=[hide_logo], **_size(width, height), **extra)
+
+
+def common_opts(title, width, height, **extra) -> dict:
+    """The options every picture shares (size, fonts, tools without a logo, outside legend)."""
+    return _common(title, width, height, **extra)
 
 
 def _finish(obj, **opts):
@@ -52,7 +63,14 @@ def _finish(obj, **opts):
     HoloViews recomputes a live overlay's ranges only for layers that ask for it."""
     if isinstance(obj, hv.Overlay):
         obj = obj.map(lambda e: e.opts(framewise=True), hv.Element)
+        # Outside the plotting area, so a legend never covers data.
+        opts.setdefault("legend_position", "right")
     return obj.opts(**opts)
+
+
+def finish_overlay(obj, **opts):
+    """``_finish`` for the other picture modules: options, with every layer of an overlay framewise."""
+    return _finish(obj, **opts)
 
 
 def unit_singular(unit: str) -> str:
@@ -109,14 +127,14 @@ def density_histogram(data: dict, width=None, height=320) -> hv.Overlay:
     title = f"{n:,} draws against the model" if n else "no draws yet: press Start"
     if n and hidden:
         title += f" ({hidden:,} beyond the binned range)"
-    opts = _common(title, width, height, xlim=(float(edges[0]), float(right)), legend_position="top_right",
-                   tools=["hover"], yformatter="%.3g")
+    opts = _common(title, width, height, xlim=(float(edges[0]), float(right)), tools=["hover"],
+                   **({"logy": True} if log else {"yformatter": "%.3g"}))
     if log:
         positive = np.concatenate([reference[np.isfinite(reference) & (reference > 0)],
                                    density[np.isfinite(density) & (density > 0)]])
         top = float(positive.max()) if positive.size else 1.0
         bottom = float(positive.min()) if positive.size else top * 1e-6
-        opts.update(logy=True, ylim=(max(bottom / 2, top * 1e-9), top * 2))
+        opts.update(ylim=(max(bottom / 2, top * 1e-9), top * 2))
     return _finish(bars * model, **opts)
 
 
@@ -131,8 +149,8 @@ def qq_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([lo, hi], [lo, hi]), mx, sy, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((model, sample), mx, sy, label="quantiles").opts(color=DRAWS, size=4, tools=["hover"])
     n = int(data.get("n", 0))
-    return _finish(line * pts, **_common(f"QQ plot ({n:,} draws in the sample)", width, height,
-                                         legend_position="top_left"))
+    return _finish(line * pts, **_common(f"QQ plot: sample against model quantiles, dashed y = x "
+                                         f"({n:,} draws)", width, height, show_legend=False))
 
 
 def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
@@ -141,8 +159,8 @@ def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([0, 1], [0, 1]), mx, ey, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((data["model"], data["empirical"]), mx, ey, label="probabilities").opts(
         color=DRAWS, size=4, tools=["hover"])
-    return _finish(line * pts, **_common("PP plot", width, height, legend_position="top_left",
-                                         xlim=(0, 1), ylim=(0, 1)))
+    return _finish(line * pts, **_common("PP plot: shares of draws against model F, dashed y = x", width,
+                                         height, show_legend=False, xlim=(0, 1), ylim=(0, 1)))
 
 
 def trace_plot(data: dict, key: str, width=None, height=240) -> hv.Overlay:
@@ -168,8 +186,9 @@ def trace_plot(data: dict, key: str, width=None, height=240) -> hv.Overlay:
     dots = hv.Scatter((n, y), nd, yd).opts(color=DRAWS, size=4)
     # Linear from 0 so the first batches sit at the left; the axis type cannot change
     # while the plot lives, so no switch to log as draws pile up.
-    right = float(n.max()) * 1.05 if n.size else 1.0
-    opts = _common(title, width, height, ylim=ylim, xlim=(0.0, right), xformatter="%d")
+    # Before the first batch (after a reset) the axis spans the first thousand draws, not 0 to 1.
+    right = max(float(n.max()) * 1.05 if n.size else 0.0, 1000.0)
+    opts = _common(title, width, height, ylim=ylim, xlim=(0.0, right), xformatter=count_formatter())
     return _finish(curve * dots * ref, **opts)
 
 
@@ -265,7 +284,7 @@ def _composition_plots(g, unit, width, height):
         tol = float(g["parts"][0].get("tolerance", 1e-10))
         out.append(_finish(hv.Overlay(curves + [hv.HLine(tol).opts(color=MODEL, line_dash="dashed")]),
             **_common("each component's inversion: u-error", width, height, logy=True,
-                      ylim=(1e-17, 1e-6 if tol < 1e-7 else tol * 100), legend_position="top_right")))
+                      ylim=(1e-17, 1e-6 if tol < 1e-7 else tol * 100))))
     return out
 
 
@@ -315,7 +334,7 @@ def _rejection_plots(g, unit, width, height, view=None):
     if view:
         limits["xlim"] = (float(view[0]), float(view[1]))
     lin = _finish(layer(False), **_common("hat, squeeze and candidates" + sub, width, height + 40,
-                                          legend_position="top_right", yformatter="%.3g", **limits))
+                                          yformatter="%.3g", **limits))
     f = np.asarray(g["f"], dtype=float)
     pos = f[f > 0]
     ylim = (float(pos.min()) / 2, float(np.nanmax(np.asarray(g["hat"], dtype=float))) * 2) if pos.size else None
@@ -343,7 +362,7 @@ def _ratio_of_uniforms_plot(g, width, height):
     title = "region A, its bounding rectangle, envelope and squeeze, with candidate points"
     if note:
         title = f"region A in {note.split(':')[0]} coordinates, with candidate points"
-    return _finish(hv.Overlay(parts), **_common(title, width, height + 80, legend_position="right",
+    return _finish(hv.Overlay(parts), **_common(title, width, height + 80,
                                                 xformatter="%.3g", yformatter="%.3g"))
 
 
@@ -367,34 +386,63 @@ def _fallback_plot(fb, method, unit, width, height):
 
 # ---- the method comparison --------------------------------------------------------------------
 
-COMPARISON_METRICS = (
-    ("draws_per_second", "draws per second", False),
-    ("setup_ms", "set-up time (ms)", False),
-    ("uniforms_per_sample", "uniforms per draw", False),
-    ("density_evals_per_sample", "density evaluations per draw", False),
-    ("acceptance_rate", "acceptance rate", False),
-    ("u_error", "u-error (estimate)", True),
-)
+def _dots(values, label, key, title, width, height, **extra):
+    """A dot plot: one point per method on a categorical axis (no bars floating on a log axis)."""
+    md = hv.Dimension("method", label="method")
+    vd = hv.Dimension(key, label=label)
+    return hv.Scatter(values, md, vd).opts(color=DRAWS, size=10, tools=["hover"],
+                                           **_common(title, width, height, show_legend=False, **extra))
 
 
-def comparison_bars(rows: list[dict], width=None, height=220) -> list:
-    """One small bar chart per measured figure that at least one applicable method reports."""
-    measured = [r for r in rows if r.get("applicable")]
+def comparison_charts(rows: list[dict], planned: int | None = None, width=None, height=220) -> list:
+    """Dot plots of the measured figures (throughput with its spread over the timed repeats,
+    set-up, u-error on a log axis, table memory) and the total cost of n draws per method,
+    set-up + n x cost per draw, on log-log axes where the cheapest method can be read off."""
+    measured = [r for r in rows if r.get("applicable") and r.get("seconds_per_draw")]
+    if not measured:
+        return []
     out = []
-    for key, label, log in COMPARISON_METRICS:
-        values = [(r["method"], float(r[key])) for r in measured
-                  if r.get(key) is not None and math.isfinite(float(r[key]))]
-        if not values:
-            continue
-        if log:
-            values = [(m, max(v, 1e-17)) for m, v in values]
-        extra = {"yformatter": NumeralTickFormatter(format="0.[0]a")} if key == "draws_per_second" else {}
-        bars = hv.Bars(values, hv.Dimension("method", label="method"), hv.Dimension(key, label=label)).opts(
-            color=DRAWS, tools=["hover"], **_common(label, width, height, logy=log, **extra))
-        if log:
-            top = max(v for _, v in values)
-            bars = bars.opts(ylim=(1e-17, max(top * 10, 1e-14)))
-        out.append(bars)
+    md = hv.Dimension("method", label="method")
+    dps = hv.Dimension("dps", label="draws per second")
+    points = [(r["method"], 1.0 / r["seconds_per_draw"]) for r in measured]
+    whiskers = [(r["method"], 1.0 / r["seconds_per_draw"],
+                 1.0 / r["seconds_per_draw"] - 1.0 / r["seconds_per_draw_high"],
+                 1.0 / r["seconds_per_draw_low"] - 1.0 / r["seconds_per_draw"]) for r in measured]
+    repeats = max(int(r.get("repeats") or 0) for r in measured)
+    spread = hv.ErrorBars(whiskers, md, [dps, "below", "above"]).opts(color=GRID, line_width=2)
+    dots = hv.Scatter(points, md, dps).opts(color=DRAWS, size=10, tools=["hover"])
+    top = max(1.0 / r["seconds_per_draw_low"] for r in measured)
+    out.append(_finish(spread * dots, **_common(f"draws per second: median and range of {repeats} repeats",
+                                                width, height, show_legend=False, ylim=(0, 1.1 * top),
+                                                yformatter=count_formatter())))
+    out.append(_dots([(r["method"], float(r["setup_ms"])) for r in measured], "set-up (ms)", "setup",
+                     "set-up time (ms), fastest of up to 3 fits", width, height, ylim=(0, None)))
+
+    n = np.geomspace(1e3, 1e10, 120)
+    nd = hv.Dimension("n", label="draws taken")
+    td = hv.Dimension("seconds", label="total time (s)")
+    palette = [DRAWS, MODEL, HAT, SQUEEZE, "#6b4c9a", "#222222"]
+    curves = [hv.Curve((n, 1e-3 * float(r["setup_ms"]) + n * float(r["seconds_per_draw"])), nd, td,
+                       label=r["method"]).opts(color=palette[i % len(palette)], line_width=2)
+              for i, r in enumerate(measured)]
+    layers = list(curves)
+    if planned:
+        layers.append(hv.VLine(float(planned)).opts(color=GRID, line_dash="dashed", line_width=1.5))
+    title = "total time = set-up + draws × cost per draw"
+    out.append(_finish(hv.Overlay(layers), **_common(title, width, height, logx=True, logy=True, tools=["hover"])))
+
+    errs = [(r["method"], max(float(r["u_error"]), 1e-17)) for r in measured
+            if r.get("u_error") is not None and math.isfinite(float(r["u_error"]))]
+    exact = [r["method"] for r in measured if r.get("u_error") is None]
+    if errs:
+        title = "u-error, estimated (log axis)" + ("; exact methods not shown" if exact else "")
+        top = max(v for _, v in errs)
+        out.append(_dots(errs, "u-error (estimate)", "u_error", title, width, height, logy=True,
+                         ylim=(1e-17, max(top * 10, 1e-14))))
+    mem = [(r["method"], float(r["table_bytes"])) for r in measured if r.get("table_bytes") is not None]
+    if mem:
+        out.append(_dots(mem, "table memory (bytes)", "bytes", "memory of the tables (bytes)", width, height,
+                         ylim=(0, None), yformatter=count_formatter()))
     return out
 
 
@@ -454,13 +502,13 @@ def counters_table(stats: dict, columns: int = 1) -> str:
               for i in range(0, len(rows), per)]
     if len(tables) == 1:
         return tables[0]
-    cells = "".join(f'<div style="flex:1 1 0;min-width:240px">{t}</div>' for t in tables)
-    return f'<div style="display:flex;gap:28px;align-items:flex-start">{cells}</div>'
+    blocks = "".join(f'<div style="flex:1 1 0;min-width:240px">{t}</div>' for t in tables)
+    return f'<div style="display:flex;gap:28px;align-items:flex-start">{blocks}</div>'
 
 
 def comparison_table(rows: list[dict]) -> str:
-    header = ["method", "variant", "set-up ms", "draws/s", "acceptance", "uniforms/draw", "f evals/draw",
-              "squeeze share", "table bytes", "u-error (estimate)"]
+    header = ["method", "variant", "set-up ms", "ns per draw (range)", "draws/s", "acceptance", "uniforms/draw",
+              "f evals/draw", "squeeze share", "table bytes", "u-error (estimate)"]
     head = "".join(f"<th>{text(h)}</th>" for h in header)
     body = []
     for r in rows:
@@ -469,13 +517,32 @@ def comparison_table(rows: list[dict]) -> str:
             body.append(f'<tr class="ld-na">{name}<td colspan="{len(header) - 1}" class="ld-muted">'
                         f"not applicable: {text(r.get('reason', ''))}</td></tr>")
             continue
-        cells = [text(r.get("variant") or ""), fmt(r.get("setup_ms"), 3),
-                 fmt(r.get("draws_per_second"), 3), fmt(r.get("acceptance_rate")),
+        values = [text(r.get("variant") or ""), fmt(r.get("setup_ms"), 3), _per_draw(r),
+                 count_text(r.get("draws_per_second")), fmt(r.get("acceptance_rate")),
                  fmt(r.get("uniforms_per_sample")), fmt(r.get("density_evals_per_sample")),
                  fmt(r.get("squeeze_rate")), fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)]
-        body.append("<tr>" + name + "".join(f"<td>{c}</td>" for c in cells) + "</tr>")
+        body.append("<tr>" + name + "".join(f"<td>{c}</td>" for c in values) + "</tr>")
     return (f'<table class="ld-table ld-comparison"><thead><tr>{head}</tr></thead>'
             f"<tbody>{''.join(body)}</tbody></table>")
+
+
+def _per_draw(r: dict) -> str:
+    if not r.get("seconds_per_draw"):
+        return "–"
+    low, high = r.get("seconds_per_draw_low"), r.get("seconds_per_draw_high")
+    spread = f" ({1e9 * low:.3g}–{1e9 * high:.3g})" if low and high else ""
+    return f"{1e9 * r['seconds_per_draw']:.3g}{spread}"
+
+
+def count_text(value) -> str:
+    """60 M, 4.3 M, 950 k: counts the way the charts label them (M for millions)."""
+    if value is None:
+        return "–"
+    v = float(value)
+    for suffix, size in (("G", 1e9), ("M", 1e6), ("k", 1e4)):
+        if abs(v) >= size:
+            return f"{v / (1e3 if suffix == 'k' else size):.3g} {suffix}"
+    return f"{v:,.0f}"
 
 
 def life_table(figures: dict, unit: str) -> str:

@@ -2,7 +2,7 @@
 method comparison and life figures, with Bokeh's JavaScript inline so the file opens offline.
 
 One function, ``write_report``, serves both ``lifedraw report`` and the dashboard's
-Report cell. Plots are HoloViews elements rendered to plain Bokeh models
+Report step. Plots are HoloViews elements rendered to plain Bokeh models
 (``hv.render``) and embedded with ``bokeh.embed.components``; no Panel template.
 """
 from __future__ import annotations
@@ -21,16 +21,18 @@ from bokeh.resources import Resources
 from lifedraw import engine
 from lifedraw.engine import ModelError, fit
 from lifedraw.engine.cautions import CAUTION
-from lifedraw.engine.compare import MethodResult, compare_methods
+from lifedraw.engine.compare import MethodResult, compare_methods, decide
 from lifedraw.engine.scenarios import Scenario
 
-from . import plots
+from . import plots, reliability_plots
 from .escaping import file_stem, paragraphs, text
 from .fleet_report import fleet_section
+from .life_curves import hazard_payload, weibull_payload
 from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,
                     qq_payload)
 
 PLOT_WIDTH = 880
+PLANNED_DRAWS = 1_000_000
 COMPARE_N = 100_000
 PACKAGES = ("lifedraw", "numpy", "scipy", "bokeh", "holoviews", "panel", "param")
 
@@ -67,7 +69,8 @@ def default_report_path(directory, scenario: Scenario) -> Path:
 
 def write_report(scenario: Scenario, path, n: int | None = None, seed: int | None = None,
                  method: str | None = None, tolerance: float | None = None,
-                 comparison: list | None = None, compare_n: int = COMPARE_N) -> Path:
+                 comparison: list | None = None, compare_n: int = COMPARE_N,
+                 planned_draws: int = PLANNED_DRAWS) -> Path:
     """Draw ``n`` lifetimes of ``scenario`` with ``seed`` and write the report to ``path``.
 
     Defaults come from the scenario's run table. ``comparison`` reuses rows
@@ -78,7 +81,7 @@ def write_report(scenario: Scenario, path, n: int | None = None, seed: int | Non
     if path.suffix.lower() not in (".html", ".htm"):
         raise ModelError("output", f"the report is an HTML file; give a name ending in .html, got {path.name!r}")
     text = build_report(scenario, n=n, seed=seed, method=method, tolerance=tolerance,
-                        comparison=comparison, compare_n=compare_n)
+                        comparison=comparison, compare_n=compare_n, planned_draws=planned_draws)
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(text, encoding="utf-8")
     return path
@@ -86,7 +89,7 @@ def write_report(scenario: Scenario, path, n: int | None = None, seed: int | Non
 
 def build_report(scenario: Scenario, n: int | None = None, seed: int | None = None, method: str | None = None,
                  tolerance: float | None = None, comparison: list | None = None,
-                 compare_n: int = COMPARE_N) -> str:
+                 compare_n: int = COMPARE_N, planned_draws: int = PLANNED_DRAWS) -> str:
     """The report as one HTML string (see ``write_report``)."""
     n = int(scenario.sample_size if n is None else n)
     if n < 1000:
@@ -124,15 +127,22 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
         fallback = {"x": x, "pdf": target.pdf(x), "draws": draws[:50_000]}
     geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300,
                                     view=(float(edges[0]), float(view_right)))
-    bars = plots.comparison_bars(rows, width=PLOT_WIDTH // 2 - 10, height=220)
+    bars = plots.comparison_charts(rows, planned_draws, width=PLOT_WIDTH // 2 - 10, height=240)
+    decision = decide(rows, planned_draws, tolerance)
+    hazard_data = hazard_payload(target, acc.edges, acc.counts, acc.below, acc.n, view_right, False, unit)
+    hazard = reliability_plots.hazard_plot(hazard_data, width=PLOT_WIDTH // 2 - 10, height=320)
+    cumulative = reliability_plots.cumulative_hazard_plot(hazard_data, width=PLOT_WIDTH // 2 - 10, height=320)
+    weibull = reliability_plots.weibull_plot(weibull_payload(target, acc.sample_quantiles, int(acc.x.size), n, unit),
+                                             width=PLOT_WIDTH, height=360)
+
     fleet_figures, fleet_html = fleet_section(scenario, target, sampler, seed, PLOT_WIDTH)
 
-    figures = [hist, qq, pp, *geometry, *bars, *fleet_figures]
+    figures = [hist, qq, pp, hazard, cumulative, weibull, *geometry, *bars, *fleet_figures]
     script, divs = components([hv.render(f, backend="bokeh") for f in figures])
-    d_hist, d_qq, d_pp = divs[:3]
-    d_geom = divs[3:3 + len(geometry)]
-    d_bars = divs[3 + len(geometry):3 + len(geometry) + len(bars)]
-    d_fleet = divs[3 + len(geometry) + len(bars):]
+    d_hist, d_qq, d_pp, d_hazard, d_cumulative, d_weibull = divs[:6]
+    d_geom = divs[6:6 + len(geometry)]
+    d_bars = divs[6 + len(geometry):6 + len(geometry) + len(bars)]
+    d_fleet = divs[6 + len(geometry) + len(bars):]
 
     inline_assets = _inline_assets()
     now = _dt.datetime.now().astimezone()
@@ -143,8 +153,8 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
         '<p class="muted">No parameters: the model is the recorded field data.</p>'
 
     def grid(items):
-        cells = "".join(f'<div class="plot" style="display:inline-block;vertical-align:top">{d}</div>' for d in items)
-        return f"<div>{cells}</div>"
+        blocks = "".join(f'<div class="plot" style="display:inline-block;vertical-align:top">{d}</div>' for d in items)
+        return f"<div>{blocks}</div>"
 
     body = f"""
 <main>
@@ -177,6 +187,14 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 {gof}
 </section>
 
+<section id="hazard"><h2>Hazard rate and probability plot</h2>
+<p class="muted">The model's hazard rate h(t) beside the actuarial estimate per bin from the draws, with exact
+Poisson {hazard_data['band']:.0%} bands; the cumulative hazard H(t) = −ln R(t); and the probability plot on Weibull
+scales (ln t against ln(−ln(1 − F))), where a Weibull model is a straight line of slope β.</p>
+{grid([d_hazard, d_cumulative])}
+<div class="plot">{d_weibull}</div>
+</section>
+
 <section id="geometry"><h2>Method geometry: {e(sampler.method)}</h2>
 {''.join(f'<div class="plot">{d}</div>' for d in d_geom)}
 <h3>Sampler counters</h3>
@@ -184,8 +202,11 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 </section>
 
 <section id="comparison"><h2>Method comparison</h2>
-<p class="muted">Every method measured on this machine when the report was written (or when the dashboard
-measured it), one process; draws/s is the median of 3 timed batches.</p>
+<p class="ld-verdict"><b>{e(decision.sentence)}</b></p>
+<p class="muted">Every method measured on this machine when the report was written (or when the page
+measured it), one process: one untimed warm-up batch, then several timed batches; the cost per draw is their
+median, the range their fastest and slowest. The verdict weighs set-up plus cost per draw for
+{plots.count_text(planned_draws)} draws among the methods that reach the tolerance.</p>
 {plots.comparison_table(rows)}
 {grid(d_bars)}
 </section>

@@ -191,7 +191,7 @@ def check(sampler_or_samples, target=None, n=100_000, rng=20261201,
         notes.append("The target has atoms: Anderson-Darling uses randomized probability integral "
                      "values at the atoms (Dunn & Smyth 1996), which are exactly uniform under the model.")
     if chi2_p is None:
-        notes.append("Chi-square not applicable: fewer than two cells with expected count >= 5.")
+        notes.append("Chi-square not applicable: fewer than two classes with expected count >= 5.")
 
     lo, hi = _support(target)
     outside = int(np.count_nonzero((xs < lo) | (xs > hi)))

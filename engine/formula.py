@@ -420,7 +420,7 @@ class _Reader:
         if arity == -2 and got < 2:
             self.fail(node, f"{fn}() takes at least 2 arguments, got {got}")
         if arity > 0 and got != arity:
-            usage = {"when": " (condition, value_if_true, value_if_false)",
+            usage = {"when": " (condition, then, otherwise)",
                      "polygamma": " (n, x)"}.get(fn, "")
             self.fail(node, f"{fn}() takes {arity} argument{'s' * (arity > 1)}{usage}, "
                             f"got {got}")
@@ -630,8 +630,8 @@ class Formula:
     ``**``, with power's precedence and right-associativity: ``2*t^2+1`` is
     ``2*t**2 + 1``, ``2^3^2`` is ``2**9``); parentheses; the functions in
     ``FUNCTIONS`` (min/max take two or more arguments, elementwise; polygamma(n, x)
-    needs a whole number n); and the conditional ``when(cond, a, b)``, also written
-    ``a if cond else b``, which picks per element. A condition is a comparison
+    needs a whole number n); and the conditional ``when(condition, then, otherwise)``, also written
+    ``then if condition else otherwise``, which picks per element. A condition is a comparison
     (``< <= > >= == !=``, chains such as ``0 < t < 5``) combined with and/or/not.
 
     Build one with ``Formula.parse``; every error is a ``ModelError`` naming ``field``.

@@ -1,4 +1,4 @@
-"""A workbench server in a subprocess on a free loopback port, for tests that talk to it over HTTP
+"""A drawing board server in a subprocess on a free loopback port, for tests that talk to it over HTTP
 or drive it from a browser. Shared by the hostile-input and server tests.
 
 The port comes from binding port 0; another process can take it between that
@@ -29,7 +29,7 @@ def free_port() -> int:
 
 
 @contextlib.contextmanager
-def workbench_server(env: dict | None = None, serve_args: str = "", attempts: int = 3, log=None):
+def drawing_board_server(env: dict | None = None, serve_args: str = "", attempts: int = 3, log=None):
     """Run ``lifedraw.dashboard.app.serve(port=..., <serve_args>)``; yields the page's URL."""
     last = None
     for _ in range(attempts):

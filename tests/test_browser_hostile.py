@@ -13,7 +13,7 @@ import time
 import pytest
 
 from hostile_inputs import FLAG, HOSTILE_NAME, write_hostile_scenarios
-from served import CHROMIUM, CHROMIUM_ARGS, offline_page, workbench_server
+from served import CHROMIUM, CHROMIUM_ARGS, offline_page, drawing_board_server
 
 pytestmark = pytest.mark.browser
 
@@ -26,7 +26,7 @@ def hostile_server(tmp_path_factory):
     write_hostile_scenarios(folder)
     reports = tmp_path_factory.mktemp("reports")
     env = {"LIFEDRAW_SCENARIOS": str(folder), "LIFEDRAW_REPORT_DIR": str(reports)}
-    with workbench_server(env, serve_args="scenario='hostile'") as url:
+    with drawing_board_server(env, serve_args="scenario='hostile'") as url:
         yield url, reports
 
 
@@ -54,8 +54,8 @@ def _wait_for(condition, timeout=30.0, what="the page"):
 def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, browser):
     url, _ = hostile_server
     page, dialogs, outside, errors = offline_page(browser, url)
-    page.wait_for_selector(".ld-cell-8", timeout=90_000)
-    cell1, cell6 = page.locator(".ld-cell-1"), page.locator(".ld-cell-6")
+    page.wait_for_selector(".ld-step-8", timeout=90_000)
+    cell1, cell6 = page.locator(".ld-step-1"), page.locator(".ld-step-6")
     # The text is there, literally: the title, the unit in the life table, the slider's label.
     _wait_for(lambda: "<img src=x onerror=" in cell1.locator("h3").first.inner_text(), what="the title")
     _wait_for(lambda: cell6.locator("table").count() > 0 and "MTTF (</script><img src=x" in cell6.locator("table").first.inner_text(),
@@ -63,18 +63,18 @@ def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, brow
     assert "[link](javascript:" in cell1.locator(".ld-description p").first.inner_text()
     assert any('push("label")' in t for t in cell1.locator(".bk-slider-title").all_inner_texts())
     # Hover over the live histogram: its tooltip names the axis, whose label carries the unit.
-    canvas = page.locator(".ld-cell-3 canvas").first
+    canvas = page.locator(".ld-step-3 canvas").first
     box = canvas.bounding_box()
     page.mouse.move(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
     # A formula with markup: the error box quotes it back.
-    page.locator(".ld-cell-1 .bk-btn-group button", has_text="density").click()
-    page.locator(".ld-cell-1 textarea").fill('<img src=x onerror=(window.__pwned=[1])> [a](javascript:x)')
-    page.locator(".ld-cell-1 button", has_text="Use this model").click()
-    _wait_for(lambda: page.locator(".ld-cell-1 .ld-error").count() > 0
-              and "<img src=x" in page.locator(".ld-cell-1 .ld-error").first.inner_text(),
+    page.locator(".ld-step-1 .bk-btn-group button", has_text="density").click()
+    page.locator(".ld-step-1 textarea").fill('<img src=x onerror=(window.__pwned=[1])> [a](javascript:x)')
+    page.locator(".ld-step-1 button", has_text="Use this model").click()
+    _wait_for(lambda: page.locator(".ld-step-1 .ld-error").count() > 0
+              and "<img src=x" in page.locator(".ld-step-1 .ld-error").first.inner_text(),
               what="the formula's error message")
     # The scenario whose file name is markup.
-    select = page.locator(".ld-cell-1 select").first
+    select = page.locator(".ld-step-1 select").first
     label = next(o for o in select.locator("option").all_inner_texts() if HOSTILE_NAME in o)
     version = int(page.locator(".ld-redraw").get_attribute("data-version"))
     select.select_option(label=label)
@@ -90,9 +90,9 @@ def test_hostile_scenario_text_is_shown_not_run_in_the_page(hostile_server, brow
 def test_hostile_scenario_text_is_shown_not_run_in_the_saved_report(hostile_server, browser):
     url, reports = hostile_server
     page, dialogs, outside, errors = offline_page(browser, url)
-    page.wait_for_selector(".ld-cell-8", timeout=90_000)
-    page.locator(".ld-cell-8 button", has_text="Write HTML report").click()
-    page.wait_for_selector(".ld-cell-8 .ld-path", timeout=120_000)
+    page.wait_for_selector(".ld-step-8", timeout=90_000)
+    page.locator(".ld-step-8 button", has_text="Write HTML report").click()
+    page.wait_for_selector(".ld-step-8 .ld-path", timeout=120_000)
     assert _flag(page) is None
     written = sorted(reports.glob("*.html"))
     assert len(written) == 1 and written[0].name.startswith("lifedraw-hostile-")

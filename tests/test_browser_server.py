@@ -17,7 +17,7 @@ import time
 import numpy as np
 import pytest
 
-from served import CHROMIUM, CHROMIUM_ARGS, offline_page, workbench_server
+from served import CHROMIUM, CHROMIUM_ARGS, offline_page, drawing_board_server
 
 pytestmark = pytest.mark.browser
 
@@ -29,7 +29,7 @@ ROWS = 60_000         # about 0.7 MB: a second or more of parsing and fitting, w
 @pytest.fixture(scope="module")
 def server(tmp_path_factory):
     log = tmp_path_factory.mktemp("log") / "server.log"
-    with workbench_server(log=log) as url:
+    with drawing_board_server(log=log) as url:
         yield url, log
 
 
@@ -54,7 +54,7 @@ def _log_time(log, pattern, timeout=180.0) -> float:
 
 
 def _loaded(page):
-    page.wait_for_selector(".ld-cell-8", timeout=180_000)
+    page.wait_for_selector(".ld-step-8", timeout=180_000)
     page.wait_for_selector(".ld-redraw", timeout=180_000)
 
 
@@ -66,7 +66,7 @@ def test_a_file_over_the_limit_is_refused_in_the_browser(server, browser, tmp_pa
     page, dialogs, outside, errors = offline_page(browser, url)
     _loaded(page)
     assert "Up to 10 MB" in page.locator(".ld-upload-limit").inner_text()
-    page.locator(".ld-cell-1 input[type=file]").first.set_input_files(big)
+    page.locator(".ld-step-1 input[type=file]").first.set_input_files(big)
     page.locator(".filepond--file-status-main", has_text="File is too large").wait_for(timeout=30_000)
     page.wait_for_timeout(1000)
     assert "too-big" not in log.read_text(errors="replace"), "the file reached the server"
@@ -102,7 +102,7 @@ def test_another_tab_opens_while_a_large_upload_is_processed(server, browser, tm
     poller = threading.Thread(target=poll, daemon=True)
     poller.start()
     try:
-        first.locator(".ld-cell-1 input[type=file]").first.set_input_files(data)
+        first.locator(".ld-step-1 input[type=file]").first.set_input_files(data)
         received = _log_time(log, r"upload fleet-returns\.csv received")
         second, _, outside, errors = offline_page(browser, url)    # a new session while the file is parsed
         _loaded(second)
@@ -115,8 +115,8 @@ def test_another_tab_opens_while_a_large_upload_is_processed(server, browser, tm
     during = [t for t in answered if received < t < processed]
     assert len(during) >= 3, f"the server answered nothing while it processed the upload ({len(answered)} in all)"
     deadline = time.time() + 60
-    while "Field data from fleet-returns.csv" not in first.locator(".ld-cell-1 h3").first.inner_text():
+    while "Field data from fleet-returns.csv" not in first.locator(".ld-step-1 h3").first.inner_text():
         assert time.time() < deadline, "the upload did not become the model"
         time.sleep(0.3)
-    assert second.locator(".ld-cell-3 canvas").count() >= 1
+    assert second.locator(".ld-step-3 canvas").count() >= 1
     assert outside == [] and errors == []

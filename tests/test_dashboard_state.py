@@ -1,4 +1,4 @@
-"""The workbench's per-session state without a browser (dashboard.state): refits on user
+"""The drawing board's per-session state without a browser (dashboard.state): refits on user
 changes, keeps the last valid model on bad input, accumulates draws in bounded memory.
 
 References: Weibull closed forms from the NIST/SEMATECH e-Handbook 8.1.6.2;
@@ -12,7 +12,7 @@ import pytest
 from scipy import special, stats
 
 import lifedraw
-from lifedraw.dashboard.state import (CdfTable, DrawAccumulator, Workbench, histogram_edges, parse_assignments,
+from lifedraw.dashboard.state import (CdfTable, DrawAccumulator, DrawingBoard, histogram_edges, parse_assignments,
                              parse_support)
 from lifedraw.engine import ModelError, Target
 from lifedraw.engine.scenarios import scenario_from_toml
@@ -22,7 +22,7 @@ BAD_ROW_CSV = "time,suspended\n5200,0\n8100,maybe\n9400,1\n"
 
 @pytest.fixture
 def bench():
-    return Workbench("gearbox-wearout", batch_size=10_000)
+    return DrawingBoard("gearbox-wearout", batch_size=10_000)
 
 
 # ---- refits --------------------------------------------------------------------------------
@@ -43,19 +43,19 @@ def test_a_refit_restarts_the_stream_with_one_batch(bench):
 
 
 def test_the_same_seed_gives_the_same_first_batch():
-    a, b = Workbench("gearbox-wearout"), Workbench("gearbox-wearout")
+    a, b = DrawingBoard("gearbox-wearout"), DrawingBoard("gearbox-wearout")
     np.testing.assert_array_equal(a.acc.x, b.acc.x)
 
 
 def test_changing_the_method_refits_with_that_method():
-    wb = Workbench("sensor-bathtub")
+    wb = DrawingBoard("sensor-bathtub")
     wb.method = "composition"
     assert wb.sampler.method == "composition"
     assert "method" not in wb.errors
 
 
 def test_a_new_scenario_brings_its_own_run_settings():
-    wb = Workbench("gearbox-wearout")
+    wb = DrawingBoard("gearbox-wearout")
     wb.scenario_name = "kiln-fan-belts"
     assert wb.scenario.name == "kiln-fan-belts"
     assert wb.seed == 4102                       # scenarios/kiln-fan-belts.toml, [run] seed
@@ -153,8 +153,8 @@ def test_reset_clears_the_draws(bench):
     assert bench.trace["n"] == [] and not bench.running
 
 
-def test_two_workbenches_do_not_share_state():
-    a, b = Workbench("gearbox-wearout"), Workbench("gearbox-wearout")
+def test_two_drawing_boards_do_not_share_state():
+    a, b = DrawingBoard("gearbox-wearout"), DrawingBoard("gearbox-wearout")
     a.set_value("beta", 4.0)
     a.set_value("eta", -5.0)
     assert b.target.params["shape"] == 2.6
@@ -178,7 +178,7 @@ def test_the_reservoir_is_a_uniform_sample_of_all_draws():
 
 
 def test_the_live_ks_statistic_matches_scipy_with_the_exact_cdf():
-    wb = Workbench("compressor-density")          # a density formula: numerical cdf, interpolated live
+    wb = DrawingBoard("compressor-density")          # a density formula: numerical cdf, interpolated live
     d, _ = wb.ks()
     # The outside cdf: t^(k-1) exp(-(t/s)^p) with k = 2.5, p = 1.6, s = 9000 is scipy's
     # gengamma(a = k/p, c = p, scale = s) (Stacy's generalised gamma), not the model's own cdf.
@@ -188,7 +188,7 @@ def test_the_live_ks_statistic_matches_scipy_with_the_exact_cdf():
 
 
 def test_the_cdf_table_is_close_to_the_exact_cdf_at_every_draw():
-    wb = Workbench("streetlight-driver-hazard")
+    wb = DrawingBoard("streetlight-driver-hazard")
     x = wb.acc.x
     # Outside reference: h = a b t^(b-1) + c + d e^(t/tau) integrates to
     # H = a t^b + c t + d tau (e^(t/tau) - 1), F = 1 - exp(-H) (NIST/SEMATECH e-Handbook 8.1.2.4),
@@ -199,7 +199,7 @@ def test_the_cdf_table_is_close_to_the_exact_cdf_at_every_draw():
 
 def test_the_binned_counts_follow_the_models_bin_masses():
     # Pearson chi-square (scipy.stats.chisquare), bins merged until each expects >= 5.
-    wb = Workbench("gearbox-wearout")
+    wb = DrawingBoard("gearbox-wearout")
     data = wb.histogram_data()
     # Bin masses from scipy's Weibull (shape 2.6, scale 31000), not from the model's own cdf; the
     # page's expected shares must equal them too.
@@ -274,8 +274,8 @@ def test_support_ends_accept_inf():
 def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values():
     # The pumping station's [system] table: exact figures from the structure
     # (NIST e-Handbook 8.1.8 rules) inside the Monte Carlo intervals.
-    from lifedraw.dashboard.state import Workbench
-    wb = Workbench("pumping-station-system")
+    from lifedraw.dashboard.state import DrawingBoard
+    wb = DrawingBoard("pumping-station-system")
     figs = wb.system_figures(n=50_000)
     assert figs is not None and figs["exact"]["mttf"]["value"] > 0
     m = figs["sample"]["mttf"]
@@ -283,8 +283,8 @@ def test_a_system_scenario_gets_system_life_figures_that_cover_the_exact_values(
 
 
 def test_a_plain_scenario_has_no_system_figures():
-    from lifedraw.dashboard.state import Workbench
-    assert Workbench("gearbox-wearout").system_figures() is None
+    from lifedraw.dashboard.state import DrawingBoard
+    assert DrawingBoard("gearbox-wearout").system_figures() is None
 
 
 @pytest.mark.parametrize("name", __import__("lifedraw.engine.scenarios", fromlist=["scenario_names"]).scenario_names())
@@ -292,8 +292,8 @@ def test_every_scenario_feeds_every_cell(name):
     # What `make run` shows for each scenario: a batch of draws, the histogram
     # against the model, QQ/PP data, the method's geometry, the counters and the
     # life figures, with no error filed on the way.
-    from lifedraw.dashboard.state import Workbench
-    wb = Workbench(name)
+    from lifedraw.dashboard.state import DrawingBoard
+    wb = DrawingBoard(name)
     assert wb.step() > 0
     assert wb.histogram_data() and wb.qq_data()
     assert wb.geometry().get("method") == wb.sampler.method

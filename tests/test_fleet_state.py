@@ -12,7 +12,7 @@ import pytest
 from lifedraw.dashboard.fleet_state import FleetStep, fleet_payload, parse_sales
 from lifedraw.dashboard.fleet_view import FleetView
 from lifedraw.dashboard.report import build_report
-from lifedraw.dashboard.state import Workbench
+from lifedraw.dashboard.state import DrawingBoard
 from lifedraw.engine.errors import ModelError
 from lifedraw.engine.scenarios import load_scenario
 
@@ -85,7 +85,7 @@ def test_a_failed_run_is_reported_not_raised():
 
 
 def test_the_view_runs_a_study_off_the_event_loop_and_shows_four_plots():
-    state = Workbench("gearbox-wearout")
+    state = DrawingBoard("gearbox-wearout")
     view = FleetView(state)
     view.fleet.param.update(runs=30, warranty=8760.0, sales="10, 20")
     asyncio.run(view._run(None))

@@ -13,15 +13,15 @@ import pytest
 from bokeh.document import Document
 
 from lifedraw.dashboard.page_updates import LoopBudget, PageUpdates
-from lifedraw.dashboard.state import Workbench
-from lifedraw.dashboard.views import GeometryCell, LifeCell, LiveCheckCell
+from lifedraw.dashboard.state import DrawingBoard
+from lifedraw.dashboard.views import GeometryStep, LifeStep, LiveCheckStep
 
 
 @pytest.fixture
 def page():
-    state = Workbench("gearbox-wearout", batch_size=2_000)
+    state = DrawingBoard("gearbox-wearout", batch_size=2_000)
     state.stop_at = 6_000                     # (the scenario's own sample size would take 50 batches)
-    live, geometry, life = LiveCheckCell(state), GeometryCell(state), LifeCell(state)
+    live, geometry, life = LiveCheckStep(state), GeometryStep(state), LifeStep(state)
     geometry.refresh()
     life.refresh()
     updates = PageUpdates(state, live, geometry, life, budget=LoopBudget(share=1e9))   # (the server's is shared)
@@ -62,7 +62,7 @@ def test_a_change_is_drawn_then_the_page_is_idle_again(page):
     assert updates.pending()
     _settle(updates)
     assert updates.updates > before
-    assert calls["GeometryCell.refresh"] >= 1
+    assert calls["GeometryStep.refresh"] >= 1
 
 
 def test_the_stream_runs_to_its_stop_and_then_stops_asking(page):
@@ -70,7 +70,7 @@ def test_the_stream_runs_to_its_stop_and_then_stops_asking(page):
     state.start()
     _settle(updates)
     assert state.n == state.stop_at and not state.running
-    assert calls["Workbench.step"] == 2      # 2,000 drawn at the refit, then two batches to 6,000
+    assert calls["DrawingBoard.step"] == 2      # 2,000 drawn at the refit, then two batches to 6,000
 
 
 def test_the_periodic_callback_exists_only_while_there_is_work(page):
@@ -112,8 +112,8 @@ def test_a_stream_waits_its_turn_when_the_budget_is_spent(page):
     updates.budget = LoopBudget(share=0.5, window=3600.0)
     updates.budget.record(3600.0)
     state.start()
-    steps = calls["Workbench.step"]
-    assert updates.tick() is False and calls["Workbench.step"] == steps
+    steps = calls["DrawingBoard.step"]
+    assert updates.tick() is False and calls["DrawingBoard.step"] == steps
     assert updates.pending()              # still due: it runs once the budget allows
 
 

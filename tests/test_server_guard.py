@@ -18,7 +18,7 @@ from tornado.web import Application, RequestHandler
 
 from lifedraw.dashboard.host_guard import (RefusedHost, TokenBucket, TooManyNewPages, allowed_host_names,
                                            guard)
-from served import workbench_server
+from served import drawing_board_server
 
 
 class Page(RequestHandler):
@@ -88,7 +88,7 @@ def _get(port, host):
 
 def test_the_server_refuses_a_rebound_host_name_before_making_a_session(tmp_path):
     log = tmp_path / "server.log"
-    with workbench_server(log=log) as url:
+    with drawing_board_server(log=log) as url:
         port = int(url.rstrip("/").rsplit(":", 1)[1])
         opened = lambda: len(re.findall(r"session \S+ opened", log.read_text(errors="replace")))
         before = opened()

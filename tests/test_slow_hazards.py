@@ -14,7 +14,7 @@ import pytest
 from scipy import stats
 
 import lifedraw
-from lifedraw.dashboard.state import Workbench
+from lifedraw.dashboard.state import DrawingBoard
 from lifedraw.engine import ModelError
 from lifedraw.engine.sampling import applicable_methods
 
@@ -170,9 +170,9 @@ def test_a_log_growth_too_slow_for_double_precision_is_refused_with_the_share_be
 # ---- the dashboard's hazard path ----------------------------------------------------------------
 
 @pytest.mark.parametrize("name", ["log-logistic", "lomax"])
-def test_the_workbench_accepts_a_slow_hazard_and_its_draws_follow_scipy(name):
+def test_the_drawing_board_accepts_a_slow_hazard_and_its_draws_follow_scipy(name):
     expr, _, params, ref = CASES[name]
-    wb = Workbench("gearbox-wearout", batch_size=20_000)
+    wb = DrawingBoard("gearbox-wearout", batch_size=20_000)
     assert wb.apply_formula("hazard", expr, "0, inf", ", ".join(f"{k} = {v:g}" for k, v in params.items()))
     assert wb.errors == {}
     wb.step()
@@ -185,8 +185,8 @@ def test_the_workbench_accepts_a_slow_hazard_and_its_draws_follow_scipy(name):
     assert exact["mttf"]["value"] == pytest.approx(ref.mean(), rel=1e-10)
 
 
-def test_the_workbench_shows_why_a_defective_hazard_is_refused_and_keeps_the_last_model():
-    wb = Workbench("gearbox-wearout", batch_size=10_000)
+def test_the_drawing_board_shows_why_a_defective_hazard_is_refused_and_keeps_the_last_model():
+    wb = DrawingBoard("gearbox-wearout", batch_size=10_000)
     before = wb.target
     assert not wb.apply_formula("hazard", "exp(-t/100)", "0, inf", "")
     assert wb.target is before

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import pytest
 
-from lifedraw.dashboard.state import Workbench
+from lifedraw.dashboard.state import DrawingBoard
 from lifedraw.engine import ModelError
 
 BAD_ROW_CSV = "time,suspended\n5200,0\n8100,maybe\n9400,1\n"
@@ -14,7 +14,7 @@ BAD_ROW_CSV = "time,suspended\n5200,0\n8100,maybe\n9400,1\n"
 
 @pytest.fixture(scope="module")
 def bench():
-    return Workbench("gearbox-wearout", batch_size=2_000)
+    return DrawingBoard("gearbox-wearout", batch_size=2_000)
 
 
 @pytest.mark.parametrize("make_error, group", [

@@ -9,13 +9,13 @@ from .numbers import seed_number, whole_number
 
 def add_serve_parser(sub) -> None:
     """``lifedraw serve [--port PORT] [--address ADDRESS] [--scenario NAME] [--report-dir DIR]``."""
-    p = sub.add_parser("serve", help="serve the live workbench in the browser (loopback by default)")
+    p = sub.add_parser("serve", help="serve the live drawing board in the browser (loopback by default)")
     p.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"port (default {DEFAULT_PORT})")
     p.add_argument("--address", default=DEFAULT_ADDRESS,
                    help=f"address to bind (default {DEFAULT_ADDRESS}: this machine only)")
     p.add_argument("--scenario", default=None, help="scenario to open with (name or .toml path)")
     p.add_argument("--report-dir", default=None,
-                   help="where the Report cell writes (default $LIFEDRAW_REPORT_DIR or ~/lifedraw-reports)")
+                   help="where the Report step writes (default $LIFEDRAW_REPORT_DIR or ~/lifedraw-reports)")
     p.set_defaults(func=run_serve)
 
 
