@@ -102,6 +102,9 @@ def test_another_tab_opens_while_a_large_upload_is_processed(server, browser, tm
     poller = threading.Thread(target=poll, daemon=True)
     poller.start()
     try:
+        # The upload is used at once when its time unit is already given (the upload area asks for it).
+        first.locator(".ld-upload-unit input").first.fill("hours")
+        first.locator(".ld-upload-unit input").first.press("Enter")
         first.locator(".ld-step-1 input[type=file]").first.set_input_files(data)
         received = _log_time(log, r"upload fleet-returns\.csv received")
         second, _, outside, errors = offline_page(browser, url)    # a new session while the file is parsed
