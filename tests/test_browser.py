@@ -124,8 +124,7 @@ def _start_server(reports: Path):
     pytest.fail("the page server did not open its port within 120 s")
 
 
-@pytest.fixture(scope="module")
-def server():
+def _served():
     # Outside pytest's temporary folders, which another pytest run on the machine may prune.
     reports = ARTIFACTS / "reports"
     reports.mkdir(parents=True, exist_ok=True)
@@ -142,6 +141,18 @@ def server():
         proc.wait(timeout=10)
     except subprocess.TimeoutExpired:
         proc.kill()
+
+
+@pytest.fixture(scope="module")
+def server():
+    yield from _served()
+
+
+@pytest.fixture
+def own_server():
+    """A server of its own, for a test whose background work must not queue behind the sessions
+    (comparisons, fleet studies) that earlier tests left on the shared one."""
+    yield from _served()
 
 
 @pytest.fixture(scope="module")
@@ -499,7 +510,8 @@ def test_the_method_comparison_names_the_winner_with_dots_not_bars(page):
     assert page.errors == []
 
 
-def test_the_report_is_written_and_opens_offline(page, browser):
+def test_the_report_is_written_and_opens_offline(browser, own_server):
+    page = Page(browser, own_server)
     step = page.step(REPORT_STEP)
     step.get_by_role("button", name="Write HTML report").click()
     path_text = step.locator(".ld-path")
@@ -532,4 +544,5 @@ def test_the_report_is_written_and_opens_offline(page, browser):
     ARTIFACTS.mkdir(exist_ok=True)
     report.screenshot(path=str(ARTIFACTS / "09-report-offline.png"), full_page=True)
     report.close()
+    page.close()
     assert errors == [] and outside == []
