@@ -4,7 +4,6 @@ draw_accumulator, check_data, model_inputs. Import from here; the names stay put
 """
 from __future__ import annotations
 
-import warnings
 
 from .board import DrawingBoard, PLANNED_DRAWS, STREAM_LIMIT, TOLERANCES, TRACE_LIMIT
 from .board_data import BoardData
@@ -19,14 +18,3 @@ __all__ = [
     "HIST_BINS", "LOW_Q", "ModelEditing", "PLANNED_DRAWS", "PLOT_POINTS", "RESERVOIR_SIZE", "STREAM_LIMIT",
     "TAIL_NODES", "TOLERANCES", "TRACE_LIMIT", "VIEW_Q", "histogram_edges", "histogram_payload", "model_on_bins",
     "parse_assignments", "parse_mission_times", "parse_support", "parse_time_unit", "pp_payload", "qq_payload"]
-
-
-# ---- renamed names ------------------------------------------------------------------------------
-
-def __getattr__(name: str):
-    """``Workbench`` was this class's old name: it still works for one release, with a warning."""
-    if name == "Workbench":
-        warnings.warn("lifedraw.dashboard.state.Workbench is deprecated; use DrawingBoard",
-                      DeprecationWarning, stacklevel=2)
-        return DrawingBoard
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -109,7 +109,7 @@ def test_nothing_in_the_report_is_fetched_from_the_network_or_a_file(report):
 
 @pytest.mark.parametrize("snippet", [
     '<img srcset="a.png 1x, https://cdn.example/b.png 2x">', '<form action="https://example.org/x"></form>',
-    '<video poster="//example.org/p.jpg"></video>', '<object data="http://example.org/o.svg"></object>',
+    '<button formaction="//example.org/p"></button>', '<object data="http://example.org/o.svg"></object>',
     '<svg><image xlink:href="https://example.org/i.png"/></svg>', '<div style="background: url(http://e.org/b.png)">',
     '<style>body { background: url("https://e.org/b.png") }</style>', '<link rel="icon" href="favicon.ico">',
     '<iframe src="page.html"></iframe>',

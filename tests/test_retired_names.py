@@ -86,11 +86,8 @@ def test_the_screenshot_has_a_name_of_our_own():
     assert [a for a in assets if retired_words(a.replace("-", " ").replace(".", " "))] == []
 
 
-def test_the_old_class_name_still_works_with_a_warning():
+def test_the_old_step_class_names_still_work_with_a_warning():
     from lifedraw.dashboard import state, views
-    with pytest.warns(DeprecationWarning, match="use DrawingBoard"):
-        old = state.Workbench
-    assert old is state.DrawingBoard
     with pytest.warns(DeprecationWarning, match="use ModelStep"):
         assert views.ModelCell is views.ModelStep
     with warnings.catch_warnings():
