@@ -9,10 +9,7 @@ expectation beside it solves the renewal equation (``engine.renewal``).
 """
 from __future__ import annotations
 
-import itertools
 import math
-import uuid
-from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Callable
@@ -23,8 +20,10 @@ from scipy import stats
 from . import kernels
 from .cautions import FLEET_CAUTION
 from .errors import ModelError, finite_number
-from .generate import ShippedSampler, as_drawable, check_client, chunk_rng, local_threads, whole_number, workers_of
+from .generate import (ShippedSampler, as_drawable, check_client, chunk_rng, cluster_threads, local_threads,
+                       whole_number)
 from .methods.base import Sampler, residual_ages
+from .task_windows import run_on_cluster, run_on_threads
 from .renewal import (MAX_STEPS, as_target, convolve_on_grid, cycle_law, failure_part, refine, solve_on_grid,
                       steps_for)
 
@@ -357,10 +356,16 @@ def simulate_fleet(sampler, units, horizon, *, period, ages=0.0, preventive_age=
     if progress is not None:
         progress(0, len(tasks))
     settings = (runs, horizon, period, n_periods, preventive_age)
+
+    def chunk_args(task):
+        index, chunk_ages = task
+        return (seed, index, chunk_ages, *settings)
+
     if client is None:
-        _run_threads(shipped, seed, tasks, settings, finished)
+        run_on_threads(simulate_chunk, shipped, tasks, chunk_args, finished, local_threads(), "fleet")
     else:
-        _run_cluster(client, workers, shipped, seed, tasks, settings, finished)
+        run_on_cluster(client, simulate_chunk, shipped, tasks, chunk_args, finished,
+                       cluster_threads(client, workers), "fleet")
 
     expected = expected_counts(target, age, edges, preventive_age) if exact else None
     method = drawable.method if isinstance(drawable, Sampler) else "system"
@@ -391,52 +396,3 @@ def _check_effort(drawable, units, runs, horizon, preventive_age) -> None:
                                     "shorten the horizon or use fewer units or runs")
 
 
-def _run_threads(shipped, seed, tasks, settings, finished) -> None:
-    threads = local_threads()
-    pending_tasks = iter(tasks)
-    with ThreadPoolExecutor(max_workers=threads, thread_name_prefix="lifedraw-fleet") as pool:
-        def submit(task):
-            index, chunk_ages = task
-            return pool.submit(simulate_chunk, shipped, seed, index, chunk_ages, *settings)
-        pending = {submit(t) for t in itertools.islice(pending_tasks, threads)}
-        try:
-            while pending:
-                done, pending = wait(pending, return_when=FIRST_COMPLETED)
-                for future in done:
-                    finished(future.result())
-                    nxt = next(pending_tasks, None)
-                    if nxt is not None:
-                        pending.add(submit(nxt))
-        except BaseException:
-            for future in pending:
-                future.cancel()
-            raise
-
-
-def _run_cluster(client, workers, shipped, seed, tasks, settings, finished) -> None:
-    from distributed import as_completed
-
-    source = client.scatter(shipped, broadcast=True, hash=False)
-    threads = sum(int(w.get("nthreads") or 1) for w in (workers or workers_of(client)).values())
-    window = max(2 * threads, 2)
-    pending_tasks = iter(tasks)
-
-    def submit(task):
-        index, chunk_ages = task
-        return client.submit(simulate_chunk, source, seed, index, chunk_ages, *settings, pure=False,
-                             key=f"lifedraw-fleet-{index}-{uuid.uuid4().hex[:8]}")
-
-    running = as_completed([submit(t) for t in itertools.islice(pending_tasks, window)], loop=client.loop)
-    try:
-        for future in running:
-            result = future.result()
-            future.release()
-            finished(result)
-            nxt = next(pending_tasks, None)
-            if nxt is not None:
-                running.add(submit(nxt))
-    except BaseException:
-        client.cancel(list(running.futures))
-        raise
-    finally:
-        source.release()

@@ -11,7 +11,6 @@ import contextlib
 import copy
 import hashlib
 import io
-import itertools
 import json
 import math
 import os
@@ -21,7 +20,6 @@ import tempfile
 import threading
 import time
 import uuid
-from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Callable
@@ -30,6 +28,7 @@ import numpy as np
 
 from .errors import ModelError, memory_limit_values
 from .methods.base import Sampler
+from .task_windows import run_on_cluster, run_on_threads
 from .target import Target
 
 DEFAULT_CHUNK = 10**7
@@ -193,6 +192,11 @@ def workers_of(client) -> dict:
         return client.scheduler_info(n_workers=-1)["workers"]
     except TypeError:  # distributed before 2025 lists every worker by default
         return client.scheduler_info()["workers"]
+
+
+def cluster_threads(client, workers: dict | None = None) -> int:
+    """How many tasks a cluster runs at once: the sum of its workers' threads."""
+    return sum(int(w.get("nthreads") or 1) for w in (workers or workers_of(client)).values())
 
 
 def check_client(client):
@@ -571,9 +575,11 @@ def _write_shards(drawable, shipped, n, chunk, seed, sizes, folder: Path, client
     try:
         if todo:
             if client is None:
-                _run_threads(shipped, seed, todo, local_threads(), finished)
+                run_on_threads(_write_shard, shipped, todo, lambda task: (seed, *task), finished,
+                               local_threads(), "generate")
             else:
-                _run_cluster(client, shipped, seed, todo, finished)
+                run_on_cluster(client, _write_shard, shipped, todo, lambda task: (seed, *task), finished,
+                               cluster_threads(client), "shard")
     finally:
         # Also on an interruption: every shard finished so far keeps its checksum.
         if state["dirty"]:
@@ -586,56 +592,6 @@ def _write_shards(drawable, shipped, n, chunk, seed, sizes, folder: Path, client
         raise ModelError("out", f"{err.reason}. The workers wrote the shards where this process cannot "
                                 "see them: with a cluster, --out must be a folder shared by every "
                                 "worker and this machine") from None
-
-
-def _run_threads(shipped, seed, todo, threads, finished) -> None:
-    """Local threads with a sliding window: at most ``threads`` chunks in memory at once."""
-    tasks = iter(todo)
-    with ThreadPoolExecutor(max_workers=threads, thread_name_prefix="lifedraw-generate") as pool:
-        pending = {pool.submit(_write_shard, shipped, seed, *task) for task in itertools.islice(tasks, threads)}
-        try:
-            while pending:
-                done, pending = wait(pending, return_when=FIRST_COMPLETED)
-                for future in done:
-                    finished(future.result())
-                    nxt = next(tasks, None)
-                    if nxt is not None:
-                        pending.add(pool.submit(_write_shard, shipped, seed, *nxt))
-        except BaseException:
-            for future in pending:
-                future.cancel()
-            raise
-
-
-def _run_cluster(client, shipped, seed, todo, finished) -> None:
-    """On a Dask cluster, submitting only ~2 tasks per worker thread ahead (bounded memory
-    and a small scheduler graph however many chunks there are)."""
-    from distributed import as_completed
-
-    source = client.scatter(shipped, broadcast=True, hash=False)
-    threads = sum(int(w.get("nthreads") or 1) for w in workers_of(client).values())
-    window = max(2 * threads, 2)
-    tasks = iter(todo)
-
-    def submit(task):
-        i, size, path = task
-        return client.submit(_write_shard, source, seed, i, size, path, pure=False,
-                             key=f"lifedraw-shard-{i}-{uuid.uuid4().hex[:8]}")
-
-    running = as_completed([submit(t) for t in itertools.islice(tasks, window)], loop=client.loop)
-    try:
-        for future in running:
-            result = future.result()
-            future.release()
-            finished(result)
-            nxt = next(tasks, None)
-            if nxt is not None:
-                running.add(submit(nxt))
-    except BaseException:
-        client.cancel(list(running.futures))
-        raise
-    finally:
-        source.release()
 
 
 # ---- clusters -----------------------------------------------------------------------------------
