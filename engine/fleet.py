@@ -22,7 +22,7 @@ from .cautions import FLEET_CAUTION
 from .errors import ModelError, finite_number
 from .generate import (ShippedSampler, as_drawable, check_client, chunk_rng, cluster_threads, local_threads,
                        whole_number)
-from .methods.base import Sampler, residual_ages
+from .methods.base import Sampler, residual_ages, residual_by_rejection
 from .task_windows import run_on_cluster, run_on_threads
 from .renewal import (MAX_STEPS, as_target, convolve_on_grid, cycle_law, failure_part, refine, solve_on_grid,
                       steps_for)
@@ -57,22 +57,11 @@ def residual_draws(drawable, ages: np.ndarray, rng: np.random.Generator) -> np.n
     survive = np.asarray(target.sf(ages), dtype=float)
     if not np.all(survive > 0):
         raise ModelError("ages", "an age lies beyond every lifetime the system allows (reliability 0)")
-    out = np.zeros(ages.shape)
-    pending = np.flatnonzero((ages > 0) & (survive >= SYSTEM_REJECTION_BELOW))
-    young = ages == 0
-    out[young] = drawable.sample(int(young.sum()), rng)
-    for _ in range(SYSTEM_REJECTION_ROUNDS):
-        if pending.size == 0:
-            break
-        life = drawable.sample(pending.size, rng)
-        ok = life > ages[pending]
-        out[pending[ok]] = life[ok] - ages[pending[ok]]
-        pending = pending[~ok]
-    rest = np.union1d(pending, np.flatnonzero((ages > 0) & (survive < SYSTEM_REJECTION_BELOW)))
-    if rest.size:
-        v = 1.0 - rng.random(rest.size)
-        out[rest] = np.maximum(np.asarray(target.isf(v * survive[rest]), dtype=float) - ages[rest], 0.0)
-    return out
+
+    def exact_tail(rows, v):
+        return np.maximum(np.asarray(target.isf(v * survive[rows]), dtype=float) - ages[rows], 0.0)
+    return residual_by_rejection(drawable.sample, ages, survive, ages == 0, exact_tail, rng,
+                                 rounds=SYSTEM_REJECTION_ROUNDS, exact_below=SYSTEM_REJECTION_BELOW)
 
 
 def renewal_rounds(drawable, ages: np.ndarray, runs: int, horizon: float, period: float, n_periods: int,

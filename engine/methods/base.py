@@ -84,6 +84,29 @@ def residual_ages(ages) -> np.ndarray:
     return a
 
 
+def residual_by_rejection(draw, ages, survive, fresh, exact_tail, rng, *, rounds: int,
+                          exact_below: float) -> np.ndarray:
+    """Residual lives past ``ages`` by rejection: new lives are drawn until each exceeds its age (exact,
+    and cheap where the survival ``survive`` = R(age) is not small). Units with R(age) below
+    ``exact_below``, or still waiting after ``rounds``, get ``exact_tail(rows, v)`` with fresh uniforms v
+    in (0, 1] (conditional inversion). ``fresh`` marks units of age zero: their draw is a new life."""
+    out = np.empty(ages.shape)
+    if fresh.any():
+        out[fresh] = draw(int(fresh.sum()), rng) - ages[fresh]
+    pending = np.flatnonzero(~fresh & (survive >= exact_below))
+    for _ in range(rounds):
+        if pending.size == 0:
+            break
+        life = draw(pending.size, rng)
+        ok = life > ages[pending]
+        out[pending[ok]] = life[ok] - ages[pending[ok]]
+        pending = pending[~ok]
+    rest = np.union1d(pending, np.flatnonzero(~fresh & (survive < exact_below)))
+    if rest.size:
+        out[rest] = exact_tail(rest, 1.0 - rng.random(rest.size))
+    return out
+
+
 class Sampler:
     """A method bound to a target, with its set-up done.
 
@@ -175,24 +198,11 @@ class Sampler:
         return self._residual_by_rejection(a, survive, rng)
 
     def _residual_by_rejection(self, a, survive, rng) -> np.ndarray:
-        out = np.empty(a.shape)
-        fresh = a <= self.target.support[0]
-        if fresh.any():
-            out[fresh] = self.sample(int(fresh.sum()), rng) - a[fresh]
-        pending = np.flatnonzero(~fresh & (survive >= REJECTION_ABOVE))
-        for _ in range(REJECTION_ROUNDS):
-            if pending.size == 0:
-                break
-            life = self.sample(pending.size, rng)
-            ok = life > a[pending]
-            out[pending[ok]] = life[ok] - a[pending[ok]]
-            pending = pending[~ok]
-        rest = np.union1d(pending, np.flatnonzero(~fresh & (survive < REJECTION_ABOVE)))
-        if rest.size:
-            v = 1.0 - rng.random(rest.size)
-            self.counts["uniforms"] += rest.size
-            out[rest] = self.residual_from_uniforms(a[rest], v, survive[rest])
-        return out
+        def exact_tail(rows, v):
+            self.counts["uniforms"] += rows.size
+            return self.residual_from_uniforms(a[rows], v, survive[rows])
+        return residual_by_rejection(self.sample, a, survive, a <= self.target.support[0], exact_tail, rng,
+                                     rounds=REJECTION_ROUNDS, exact_below=REJECTION_ABOVE)
 
     def residual_from_uniforms(self, ages: np.ndarray, v: np.ndarray, survive: np.ndarray) -> np.ndarray:
         """X = R^-1(v R(a)) - a for v in (0, 1] (see ``sample_residual``); ``survive`` = R(a)."""
