@@ -1,5 +1,5 @@
 """A drawing board server in a subprocess on a free loopback port, for tests that talk to it over HTTP
-or drive it from a browser. Shared by the hostile-input and server tests.
+or drive it from a browser. Shared by every browser and server test.
 
 The port comes from binding port 0; another process can take it between that
 probe and the server's own bind, so a start that fails is retried on a new port.
@@ -39,7 +39,7 @@ def drawing_board_server(env: dict | None = None, serve_args: str = "", attempts
         proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=dict(os.environ, **(env or {})),
                                 stdout=out, stderr=out)
         url = f"http://127.0.0.1:{port}/"
-        deadline = time.time() + 90
+        deadline = time.time() + 180     # a loaded machine starts slowly
         try:
             while proc.poll() is None and time.time() < deadline:
                 try:      # the icon, not the page: a page request would build a session each time

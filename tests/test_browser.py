@@ -10,24 +10,19 @@ test-artifacts/.
 """
 from __future__ import annotations
 
-import os
-import socket
-import subprocess
-import sys
 import time
 from pathlib import Path
 
 import pytest
 
+from served import drawing_board_server
+
 pytestmark = pytest.mark.browser
 
-playwright_api = pytest.importorskip("playwright.sync_api")
+pytest.importorskip("playwright.sync_api")
 
 ROOT = Path(__file__).resolve().parent.parent
 ARTIFACTS = ROOT / "test-artifacts"
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
-        "--disable-component-update", "--disable-sync"]
 STEPS = 8
 REPORT_STEP = STEPS          # the last step writes the report
 WIDTHS = (1400, 1024)
@@ -95,52 +90,12 @@ LEGEND_LABELS_JS = """() => {
 }"""
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _start_server(reports: Path):
-    """Start the server on a free port; None if the port was taken between the probe and the bind."""
-    port = _free_port()
-    code = f"from lifedraw.dashboard.app import serve; serve(port={port})"
-    env = dict(os.environ, LIFEDRAW_REPORT_DIR=str(reports))
-    proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    url = f"http://127.0.0.1:{port}/"
-    # Ready when the port accepts connections; a page request would build a whole session,
-    # which on a busy machine takes longer than any short request timeout.
-    deadline = time.time() + 120
-    while time.time() < deadline:
-        try:
-            socket.create_connection(("127.0.0.1", port), timeout=2).close()
-            return proc, url
-        except OSError:
-            if proc.poll() is not None:
-                return None
-            time.sleep(0.3)      # polling for the port to open, not a fixed wait
-    proc.kill()
-    pytest.fail("the page server did not open its port within 120 s")
-
-
 def _served():
     # Outside pytest's temporary folders, which another pytest run on the machine may prune.
     reports = ARTIFACTS / "reports"
     reports.mkdir(parents=True, exist_ok=True)
-    for _ in range(3):
-        started = _start_server(reports)
-        if started:
-            break
-    else:
-        pytest.fail("the page server exited three times on start (ports taken?)")
-    proc, url = started
-    yield url
-    proc.terminate()
-    try:
-        proc.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        proc.kill()
+    with drawing_board_server({"LIFEDRAW_REPORT_DIR": str(reports)}) as url:
+        yield url
 
 
 @pytest.fixture(scope="module")
@@ -153,14 +108,6 @@ def own_server():
     """A server of its own, for a test whose background work must not queue behind the sessions
     (comparisons, fleet studies) that earlier tests left on the shared one."""
     yield from _served()
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
-        yield b
-        b.close()
 
 
 class Page:

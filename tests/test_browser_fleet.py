@@ -7,67 +7,27 @@ aborted. Screenshots go to test-artifacts/.
 """
 from __future__ import annotations
 
-import os
-import socket
-import subprocess
-import sys
 import time
-import urllib.error
-import urllib.request
 from pathlib import Path
 
 import pytest
 
+from served import drawing_board_server
+
 pytestmark = pytest.mark.browser
 
-playwright_api = pytest.importorskip("playwright.sync_api")
+pytest.importorskip("playwright.sync_api")
 
 ROOT = Path(__file__).resolve().parent.parent
 ARTIFACTS = ROOT / "test-artifacts"
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
-        "--disable-component-update", "--disable-sync"]
 STEP = ".ld-step-fleet"
-
-
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 @pytest.fixture(scope="module")
 def fleet_server(tmp_path_factory):
-    port = free_port()
-    code = f"from lifedraw.dashboard.app import serve; serve(port={port}, scenario='ebike-battery-returns')"
-    env = dict(os.environ, LIFEDRAW_REPORT_DIR=str(tmp_path_factory.mktemp("reports")))
-    proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    url = f"http://127.0.0.1:{port}/"
-    deadline = time.time() + 180
-    while True:
-        try:
-            urllib.request.urlopen(url, timeout=60)
-            break
-        except (urllib.error.URLError, OSError):
-            if proc.poll() is not None or time.time() > deadline:
-                proc.kill()
-                pytest.fail("the dashboard server did not start")
-            time.sleep(0.3)
-    yield url
-    proc.terminate()
-    try:
-        proc.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
-        yield b
-        b.close()
+    env = {"LIFEDRAW_REPORT_DIR": str(tmp_path_factory.mktemp("reports"))}
+    with drawing_board_server(env, serve_args="scenario='ebike-battery-returns'") as url:
+        yield url
 
 
 @pytest.fixture

@@ -13,7 +13,7 @@ import time
 import pytest
 
 from hostile_inputs import FLAG, HOSTILE_NAME, write_hostile_scenarios
-from served import CHROMIUM, CHROMIUM_ARGS, offline_page, drawing_board_server
+from served import drawing_board_server, offline_page
 
 pytestmark = pytest.mark.browser
 
@@ -28,14 +28,6 @@ def hostile_server(tmp_path_factory):
     env = {"LIFEDRAW_SCENARIOS": str(folder), "LIFEDRAW_REPORT_DIR": str(reports)}
     with drawing_board_server(env, serve_args="scenario='hostile'") as url:
         yield url, reports
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
 
 
 def _flag(page):

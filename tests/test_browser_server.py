@@ -17,7 +17,7 @@ import time
 import numpy as np
 import pytest
 
-from served import CHROMIUM, CHROMIUM_ARGS, offline_page, drawing_board_server
+from served import drawing_board_server, offline_page
 
 pytestmark = pytest.mark.browser
 
@@ -31,14 +31,6 @@ def server(tmp_path_factory):
     log = tmp_path_factory.mktemp("log") / "server.log"
     with drawing_board_server(log=log) as url:
         yield url, log
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
 
 
 def _log_time(log, pattern, timeout=180.0) -> float:

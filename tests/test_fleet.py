@@ -167,18 +167,6 @@ def test_spares_service_level_must_lie_inside_zero_one(exponential_fleet):
 
 # ---- a real cluster -----------------------------------------------------------------------------
 
-@pytest.fixture(scope="module")
-def cluster_client():
-    distributed = pytest.importorskip("distributed")
-    import logging
-    cluster = distributed.LocalCluster(n_workers=2, processes=True, threads_per_worker=1, host="127.0.0.1",
-                                       dashboard_address=None, silence_logs=logging.ERROR)
-    client = distributed.Client(cluster, set_as_default=False)
-    yield client
-    client.close()
-    cluster.close()
-
-
 @pytest.mark.cluster
 def test_two_worker_processes_give_the_threaded_numbers(cluster_client):
     # A formula sampler travels as its saved file; 25,000 units x 50 runs make 2 chunks of units.

@@ -246,18 +246,6 @@ def test_cli_reports_an_unreachable_scheduler(tmp_path):
 
 # ---- a real cluster -----------------------------------------------------------------------------
 
-@pytest.fixture(scope="module")
-def cluster_client():
-    distributed = pytest.importorskip("distributed")
-    import logging
-    cluster = distributed.LocalCluster(n_workers=2, processes=True, threads_per_worker=1, host="127.0.0.1",
-                                       dashboard_address=None, silence_logs=logging.ERROR)
-    client = distributed.Client(cluster, set_as_default=False)
-    yield client
-    client.close()
-    cluster.close()
-
-
 @pytest.mark.cluster
 @pytest.mark.parametrize("which", ["weibull_sampler", "formula_sampler"])
 def test_two_worker_processes_give_the_threaded_numbers(cluster_client, request, which):

@@ -138,13 +138,6 @@ def test_the_layer_check_fails_when_the_engine_imports_the_dashboard(venv, elsew
     assert "lifedraw.engine.life -> lifedraw.dashboard.plots" in out.stdout
 
 
-def _free_port() -> int:
-    import socket
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def test_the_installed_server_serves_its_scripts_itself(venv, elsewhere):
     # No internet: every script and stylesheet the page names comes from this server (Panel and Bokeh
     # serve them from the installed packages), none from a content network.
@@ -153,7 +146,8 @@ def test_the_installed_server_serves_its_scripts_itself(venv, elsewhere):
     import urllib.error
     import urllib.parse
     import urllib.request
-    port = _free_port()
+    from served import free_port
+    port = free_port()
     proc = subprocess.Popen([str(venv / "bin" / "lifedraw"), "serve", "--port", str(port)], cwd=elsewhere,
                             env=_env(), stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     base = f"http://127.0.0.1:{port}/"
