@@ -41,28 +41,46 @@ def pack_pinv_table(x0, width, coef, du):
     return np.ascontiguousarray(np.column_stack([x0, coef * width[:, None], inv_du]))
 
 
+def _pinv_piece(ui, guide, u_start, m, g_size):
+    """The piece holding u: guide-table look-up (Chen & Asau 1974), then rarely a step or two.
+
+    Every index is clamped into the tables, so even a damaged table cannot make the
+    compiled loop read outside its memory (loading refuses such tables first)."""
+    g = int(ui * g_size) if ui > 0.0 else 0
+    if g >= g_size:
+        g = g_size - 1
+    k = guide[g]
+    if k < 0:
+        k = 0
+    if k > m - 1:
+        k = m - 1
+    while k < m - 1 and u_start[k + 1] <= ui:
+        k += 1
+    return k
+
+
 def _pinv_eval_py(u, guide, u_start, table, out):
     n = u.shape[0]
-    # Every index is clamped into the tables, so even a damaged table cannot make the
-    # compiled loop read outside its memory (loading refuses such tables first).
     m = min(u_start.shape[0], table.shape[0])
     g_size = guide.shape[0]
     top = table.shape[1] - 2          # column of the highest coefficient
+    if top == 6:
+        # Degree 5 (the sampler's order) by Estrin's scheme: three independent pairs and
+        # two squarings, a shorter dependency chain than Horner's five steps.
+        for i in range(n):
+            ui = u[i]
+            k = _pinv_piece(ui, guide, u_start, m, g_size)
+            s = min(max((ui - u_start[k]) * table[k, 7], 0.0), 1.0)
+            s2 = s * s
+            low = table[k, 1] + s * table[k, 2]
+            mid = table[k, 3] + s * table[k, 4]
+            high = table[k, 5] + s * table[k, 6]
+            out[i] = table[k, 0] + (low + s2 * (mid + s2 * high))
+        return out
     for i in range(n):
         ui = u[i]
-        g = int(ui * g_size) if ui > 0.0 else 0
-        if g >= g_size:
-            g = g_size - 1
-        k = guide[g]
-        if k < 0:
-            k = 0
-        if k > m - 1:
-            k = m - 1
-        # Guide-table search (Chen & Asau 1974): rarely more than the first look.
-        while k < m - 1 and u_start[k + 1] <= ui:
-            k += 1
-        s = (ui - u_start[k]) * table[k, top + 1]
-        s = min(max(s, 0.0), 1.0)
+        k = _pinv_piece(ui, guide, u_start, m, g_size)
+        s = min(max((ui - u_start[k]) * table[k, top + 1], 0.0), 1.0)
         acc = table[k, top]
         for j in range(top - 1, 0, -1):
             acc = acc * s + table[k, j]
@@ -70,7 +88,13 @@ def _pinv_eval_py(u, guide, u_start, table, out):
     return out
 
 
-_pinv_eval_jit = _jit(_pinv_eval_py)
+if HAVE_JIT:
+    # a*b + c may become one fused multiply-add (one rounding instead of two): the
+    # polynomial differs from the numpy twin by an ulp or so, never more.
+    _pinv_piece = numba.njit(inline="always", cache=True)(_pinv_piece)
+    _pinv_eval_jit = numba.njit(cache=True, nogil=True, fastmath={"contract"})(_pinv_eval_py)
+else:  # pragma: no cover - exercised where numba is absent
+    _pinv_eval_jit = None
 
 
 def pinv_eval(u, guide, u_start, table, out=None, *, use_jit=True):
@@ -98,31 +122,42 @@ def _pinv_eval_numpy(u, guide, u_start, table, out):
         k += step
     row = table[k]
     s = np.clip((u - u_start[k]) * row[:, top + 1], 0.0, 1.0)
-    acc = row[:, top].copy()
-    for j in range(top - 1, 0, -1):
-        acc *= s
-        acc += row[:, j]
+    if top == 6:            # Estrin's scheme, as the compiled loop
+        s2 = s * s
+        acc = row[:, 5] + s * row[:, 6]
+        acc *= s2
+        acc += row[:, 3] + s * row[:, 4]
+        acc *= s2
+        acc += row[:, 1] + s * row[:, 2]
+    else:
+        acc = row[:, top].copy()
+        for j in range(top - 1, 0, -1):
+            acc *= s
+            acc += row[:, j]
     np.add(row[:, 0], acc, out=out)
     return out
 
 
 # ---- Leva's normal: classify ratio-of-uniforms candidates (Leva 1992) -------------------
 
-def _leva_py(u, v, out, start, s, t, a, b, r1, r2):
-    """Examine candidates (u, v) in order; write accepted z = v/u into out[start:] until full.
+def _leva_py(rng, k, out, start, s, t, a, b, r1, r2, span):
+    """Draw k candidates (u, v) = (1 - U1, span (U2 - 1/2)) from the generator, in order, two
+    uniforms each (the same stream as ``rng.random(2 k)`` read in pairs); write the accepted
+    z = v/u into out[start:] until full.
 
-    Candidates past the point where ``out`` is full are still classified, so the
-    counts describe every candidate drawn (as the vectorised path does).
+    Drawing the uniforms inside the loop spares a pass through memory. Candidates past the
+    point where ``out`` is full are still drawn and classified, so the generator ends where
+    the numpy twin's does and the counts describe every candidate drawn.
     Returns (filled, accepted, squeezed, logs).
     """
     m = out.shape[0]
-    k = start
+    j = start
     accepted = 0
     squeezed = 0
     logs = 0
-    for i in range(u.shape[0]):
-        ui = u[i]
-        vi = v[i]
+    for _ in range(k):
+        ui = 1.0 - rng.random()
+        vi = (rng.random() - 0.5) * span
         x = ui - s
         y = abs(vi) - t
         q = x * x + y * (a * y - b * x)
@@ -135,43 +170,44 @@ def _leva_py(u, v, out, start, s, t, a, b, r1, r2):
             ok = vi * vi <= -4.0 * ui * ui * np.log(ui)
         if ok:
             accepted += 1
-            if k < m:
-                out[k] = vi / ui
-                k += 1
-    return k - start, accepted, squeezed, logs
+            if j < m:
+                out[j] = vi / ui
+                j += 1
+    return j - start, accepted, squeezed, logs
 
 
 _leva_jit = _jit(_leva_py)
 
 
-def leva_take(u, v, out, start, constants):
-    """Compiled candidate loop for Leva's generator (None when no JIT is available)."""
+def leva_draw(rng, k, out, start, constants):
+    """Compiled candidate loop for Leva's generator (None when no JIT is available);
+    ``constants`` = (s, t, a, b, r1, r2, span)."""
     if _leva_jit is None:
         return None
-    return _leva_jit(u, v, out, start, *constants)
+    return _leva_jit(rng, int(k), out, start, *constants)
 
 
 # ---- rejection from a piecewise-exponential hat (engine.methods.rejection) ---------------
 
-def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, counts):
-    """Candidates from the hat, one uniform each, one pass.
+def _hat_slots_py(out, cum, guide, total, last, table, pending, ratio, floor, loghat, ends, end_side, counts):
+    """One candidate from the hat per output slot, in place: out[i] holds the slot's uniform
+    on entry and its candidate x on exit (HatDrawing._slot_pass is the numpy twin, term by term).
 
-    status[i]: 0 accepted at once (its position's uniform fell below the row's squeeze
-    floor r: immediate acceptance), 1 undecided: the caller draws its height uniform on
-    [r h, h] and tests the squeeze, then the density; for these u[i] is overwritten with
-    log(squeeze / hat) at x (<= 0) and v[i] with r. 2 / 3: drawn by inversion below /
-    above the hat (x left for the caller). loghat[i] = log h(x[i]) for 0 and 1.
-    The arithmetic follows HatDrawing._candidate_pass term by term.
+    A candidate below its row's squeeze floor r is accepted at once (immediate acceptance).
+    The others are listed for the caller, who draws their heights and tests them:
+    pending[j] = slot, ratio[j] = log(squeeze / hat) at x (<= 0), floor[j] = r,
+    loghat[j] = log h(x). Slots whose uniform fell in the inversion pieces beyond the hat
+    are listed in ends (end_side 0 below, 1 above); their out[i] is left for the caller.
+    counts = [accepted at once, pending, beyond the hat].
     """
-    n = u.shape[0]
+    n = out.shape[0]
     top = min(cum.shape[0], table.shape[0]) - 1
     g_size = guide.shape[0]
     c0 = 0
     c1 = 0
     c2 = 0
-    c3 = 0
     for i in range(n):
-        ui = u[i]
+        ui = out[i]
         uA = ui * total
         # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
         # Indices are clamped into the tables: a damaged table cannot reach outside them.
@@ -187,13 +223,10 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, cou
             k += 1
         if k > last:
             k = last
-        if k == 0:
-            status[i] = 2
+        if k == 0 or k == top:
+            ends[c2] = i
+            end_side[c2] = 0 if k == 0 else 1
             c2 += 1
-            continue
-        if k == top:
-            status[i] = 3
-            c3 += 1
             continue
         w = (uA - table[k, 0]) * table[k, 1]
         w = min(max(w, 0.0), 1.0)
@@ -211,53 +244,31 @@ def _hat_propose_py(u, v, cum, guide, total, last, table, x, loghat, status, cou
             d = np.log1p(w * table[k, 3]) * table[k, 4]
         d = min(max(d, 0.0), width)
         xi = table[k, 6] + table[k, 7] * d
-        lh = table[k, 8] + table[k, 9] * d
-        x[i] = xi
-        loghat[i] = lh
+        out[i] = xi
         if at_once:
-            status[i] = 0
             c0 += 1
             continue
-        u[i] = min(table[k, 10] + table[k, 11] * (xi - table[k, 6]) - lh, 0.0)
-        v[i] = r
-        status[i] = 1
+        lh = table[k, 8] + table[k, 9] * d
+        pending[c1] = i
+        ratio[c1] = min(table[k, 10] + table[k, 11] * (xi - table[k, 6]) - lh, 0.0)
+        floor[c1] = r
+        loghat[c1] = lh
         c1 += 1
     counts[0] = c0
     counts[1] = c1
     counts[2] = c2
-    counts[3] = c3
 
 
-_hat_propose_jit = _jit(_hat_propose_py)
+_hat_slots_jit = _jit(_hat_slots_py)
 
 
-def hat_propose(u, v, cum, guide, total, last, table, x, loghat, status):
-    """Compiled candidate pass for rejection, into the given output arrays (u and v are
-    overwritten for undecided candidates, see the twin); returns the count of each status 0..3."""
-    counts = np.zeros(4, dtype=np.int64)
-    _hat_propose_jit(u, v, cum, guide, float(total), int(last), table, x, loghat, status, counts)
+def hat_slots(out, cum, guide, total, last, table, pending, ratio, floor, loghat, ends, end_side):
+    """Compiled slot pass for rejection (see the loop above); returns [accepted at once,
+    pending, beyond the hat]. The list arrays need room for out.size entries."""
+    counts = np.zeros(3, dtype=np.int64)
+    _hat_slots_jit(out, cum, guide, float(total), int(last), table, pending, ratio, floor, loghat, ends,
+                   end_side, counts)
     return counts
-
-
-def _take_accepted_py(x, status, out, start):
-    """Copy, in candidate order, every x whose status is not 1 (needs-density and
-    rejected) into out[start:] until out is full; returns how many were written."""
-    k = start
-    m = out.shape[0]
-    for i in range(x.shape[0]):
-        if k >= m:
-            break
-        if status[i] != 1:
-            out[k] = x[i]
-            k += 1
-    return k - start
-
-
-_take_accepted_jit = _jit(_take_accepted_py)
-
-
-def take_accepted(x, status, out, start):
-    return _take_accepted_jit(x, status, out, start)
 
 
 # ---- one renewal round of a fleet (engine.fleet) ----------------------------------------------

@@ -227,13 +227,16 @@ def test_the_rejection_kernel_clamps_a_damaged_guide(rejection):
         pytest.skip("Numba not installed")
     n = 2000
     rng = np.random.default_rng(4)
-    u, v = rng.random(n), rng.random(n)
-    x, loghat, status = np.empty(n), np.empty(n), np.empty(n, dtype=np.int8)
+    lists = (np.empty(n, dtype=np.int64), np.empty(n), np.empty(n), np.empty(n), np.empty(n, dtype=np.int64),
+             np.empty(n, dtype=np.int8))
     for value in (10**9, -10**12):
         guide = np.full(rejection._guide.size, value, dtype=np.int64)
-        counts = kernels.hat_propose(u, v, rejection.cum, guide, rejection.total, rejection._last,
-                                     rejection._table, x, loghat, status)
+        out = rng.random(n)
+        counts = kernels.hat_slots(out, rejection.cum, guide, rejection.total, rejection._last,
+                                   rejection._table, *lists)
         assert counts.sum() == n
+        lo, hi = rejection.target.support
+        assert np.all((out >= lo) & (out <= hi))
 
 
 # ---- densities with infinite mass ----------------------------------------------------------------

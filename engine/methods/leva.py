@@ -69,11 +69,11 @@ class LevaNormal(Sampler):
     # ---- drawing -----------------------------------------------------------------------
     @staticmethod
     def _candidates(k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
-        # 1 - U lies in (0, 1]: u > 0 keeps v/u finite and ln u defined.
-        u = rng.random(k)
-        np.subtract(1.0, u, out=u)
-        v = rng.random(k)
-        v -= 0.5
+        # Two uniforms per candidate, read in pairs (the compiled loop draws them in the
+        # same order). 1 - U lies in (0, 1]: u > 0 keeps v/u finite and ln u defined.
+        pairs = rng.random(2 * k)
+        u = 1.0 - pairs[0::2]
+        v = pairs[1::2] - 0.5
         v *= V_SPAN
         return u, v
 
@@ -125,13 +125,12 @@ class LevaNormal(Sampler):
         return out
 
     def _standard_normal_compiled(self, m, rng, out):
-        """The same algorithm, candidates examined in order by a compiled loop (engine.kernels)."""
+        """The same algorithm, candidates drawn and examined in order by a compiled loop (engine.kernels)."""
         filled = 0
         while filled < m:
             need = m - filled
             k = int(need / ACCEPTANCE + math.sqrt(need) + 16)
-            u, v = self._candidates(k, rng)
-            got, accepted, squeezed, logs = kernels.leva_take(u, v, out, filled, (S, T, A, B, R1, R2))
+            got, accepted, squeezed, logs = kernels.leva_draw(rng, k, out, filled, (S, T, A, B, R1, R2, V_SPAN))
             self.counts["uniforms"] += 2 * k
             self.counts["candidates"] += k
             self.counts["squeezed"] += squeezed

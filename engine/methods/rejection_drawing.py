@@ -125,7 +125,9 @@ class HatDrawing:
         # table over the cumulative areas: guide[j] = first piece whose end exceeds
         # j/G of the total (Chen & Asau 1974). Derived here, not saved.
         self._last = self.cum.size - 1 if self.SR > 0 else self.cum.size - 2
-        levels = np.arange(4 * self.cum.size) / (4 * self.cum.size) * self.total
+        # 32 cells per row keep the search after the look-up a rare, predictable step
+        # (as for numerical inversion; the table still fits the core's fast caches).
+        levels = np.arange(32 * self.cum.size) / (32 * self.cum.size) * self.total
         self._guide = np.searchsorted(self.cum, levels, side="right").astype(np.int64)
 
     # ---- drawing ----------------------------------------------------------------------------------
@@ -158,45 +160,81 @@ class HatDrawing:
         v[undecided] = r[undecided]
         return np.bincount(status, minlength=4)[:4].astype(np.int64) if n else np.zeros(4, np.int64)
 
-    def _round(self, n, rng, out, got):
-        """One round of n candidates: each costs one uniform; the few above their row's
-        squeeze floor take a second for the height, then the squeeze, then the density.
-        Accepted draws go straight into ``out`` (from ``got`` on); returns the count."""
-        u, v, x, loghat, status = self._scratch(n)
-        rng.random(out=u)
-        used = n
+    def _slot_pass(self, out, pending, ratio, floor, loghat, ends, end_side):
+        """The numpy twin of ``kernels.hat_slots``: one candidate per slot of ``out``, in place,
+        from the uniform the slot holds (see the kernel for what each list receives)."""
+        n = out.size
+        u = out.copy()
+        v, x, lh, status = np.empty(n), np.empty(n), np.empty(n), np.empty(n, dtype=np.int8)
+        self._candidate_pass(u, v, x, lh, status)
+        on_hat = status <= 1
+        out[on_hat] = x[on_hat]
+        wait = np.flatnonzero(status == 1)
+        beyond = np.flatnonzero(status >= 2)
+        pending[:wait.size], ratio[:wait.size] = wait, u[wait]
+        floor[:wait.size], loghat[:wait.size] = v[wait], lh[wait]
+        ends[:beyond.size], end_side[:beyond.size] = beyond, status[beyond] - 2
+        return np.array([n - wait.size - beyond.size, wait.size, beyond.size], dtype=np.int64)
+
+    def _fill(self, out, rng):
+        """Rejection run slot by slot: every slot of ``out`` takes candidates until one is
+        accepted. Its first candidate comes from its own uniform, in one pass over all slots;
+        the slots whose candidate was rejected (about 1 - 1/total of them) take their next
+        candidates together, in a smaller pass, and so on. Each slot is thus an independent
+        rejection draw, exact, and the draws stay in slot order."""
+        slots = np.arange(0)
+        target = out
+        while target.size:
+            rng.random(out=target)
+            rejected = self._round(target, rng)
+            if slots.size:
+                out[slots] = target
+                slots = slots[rejected]
+            else:
+                slots = rejected
+            target = np.empty(slots.size)
+        if getattr(self, "_reserve", None) is not None:
+            self._remaining -= out.size
+
+    def _round(self, out, rng):
+        """One candidate for every slot of ``out`` (which holds the slots' uniforms): each
+        costs that uniform; the few above their row's squeeze floor take a second for the
+        height, then the squeeze, then the density. Returns the slots whose candidate was
+        rejected (their value in ``out`` is to be replaced)."""
+        n = out.size
+        lists = self._scratch(n)
         if kernels.HAVE_JIT:
-            counts = kernels.hat_propose(u, v, self.cum, self._guide, self.total, self._last, self._table,
-                                         x, loghat, status)
+            counts = kernels.hat_slots(out, self.cum, self._guide, self.total, self._last, self._table, *lists)
         else:
-            counts = self._candidate_pass(u, v, x, loghat, status)
-        for side, code in ((0, 2), (1, 3)):
-            if counts[code]:
-                mask = status == code
-                x[mask], extra = self._end_draws(side, int(counts[code]), rng)
-                used += extra
-        idx = np.flatnonzero(status == 1)
+            counts = self._slot_pass(out, *lists)
+        pending, ratio, floor, loghat, ends, end_side = lists
+        used = n
+        beyond = int(counts[2])
+        if beyond:
+            slot, side = ends[:beyond].copy(), end_side[:beyond].copy()
+            for code in (0, 1):
+                chosen = slot[side == code]
+                if chosen.size:
+                    out[chosen], extra = self._end_draws(code, chosen.size, rng)
+                    used += extra
+        waiting = int(counts[1])
+        slot, floor = pending[:waiting].copy(), floor[:waiting]
         # The height of an undecided candidate is uniform on [r h(x), h(x)].
-        height = v[idx] + rng.random(idx.size) * (1.0 - v[idx])
-        used += idx.size
+        height = floor + rng.random(waiting) * (1.0 - floor)
+        used += waiting
         with np.errstate(over="ignore", invalid="ignore"):
-            squeezed = height <= np.exp(u[idx])
-        test = idx[~squeezed]
+            squeezed = height <= np.exp(ratio[:waiting])
+        test = ~squeezed
         with np.errstate(over="ignore", invalid="ignore"):
-            ok = height[~squeezed] * np.exp(loghat[test]) <= self.target.pdf(x[test])
-        status[idx[squeezed]] = 0
-        status[test[ok]] = 4                          # accepted after the density test
+            ok = height[test] * np.exp(loghat[:waiting][test]) <= self.target.pdf(out[slot[test]])
+        rejected = slot[test][~ok]
         c = self.counts
         c["uniforms"] += used
         c["candidates"] += n
-        c["accepted"] += n - idx.size + int(squeezed.sum()) + int(ok.sum())
-        c["squeezed"] += int(counts[0]) + int(squeezed.sum())
-        c["density_evals"] += int(test.size)
-        if kernels.HAVE_JIT:
-            return kernels.take_accepted(x, status, out, got)
-        keep = x[status != 1][:out.size - got]
-        out[got:got + keep.size] = keep
-        return int(keep.size)
+        c["accepted"] += n - rejected.size
+        c["squeezed"] += int(counts[0]) + int(np.count_nonzero(squeezed))
+        c["density_evals"] += int(np.count_nonzero(test))
+        return rejected
 
     def _end_draws(self, side, count, rng):
         """``count`` exact draws beyond the hat (side 0: below cL by quantile, 1: above cR by
@@ -226,25 +264,13 @@ class HatDrawing:
             self._reserve = None
 
     def _scratch(self, n):
-        """Work arrays reused across rounds (fresh large arrays cost page faults on
-        every round); one set per thread, so a sampler shared by threads stays safe."""
+        """The lists a slot pass fills, reused across calls (fresh large arrays cost page
+        faults every time); one set per thread, so a sampler shared by threads stays safe."""
         local = self.__dict__.setdefault("_local", threading.local())
-        buf = getattr(local, "buf", None)
-        if buf is None or buf[0].size < n:
+        lists = getattr(local, "lists", None)
+        if lists is None or lists[0].size < n:
             size = max(n, 1 << 16)
-            local.buf = buf = (np.empty(size), np.empty(size), np.empty(size), np.empty(size),
-                               np.empty(size, dtype=np.int8))
-        return tuple(b[:n] for b in buf)
+            local.lists = lists = (np.empty(size, dtype=np.int64), np.empty(size), np.empty(size), np.empty(size),
+                                   np.empty(size, dtype=np.int64), np.empty(size, dtype=np.int8))
+        return tuple(b[:n] for b in lists)
 
-    def _fill(self, out, rng):
-        m = out.size
-        got = 0
-        while got < m:
-            # The accepted count of n candidates is binomial(n, 1/total): four of its standard
-            # deviations more than the mean need make a second round rare (~3e-5) while
-            # proposing ~0.2% surplus, not 2%.
-            expected = (m - got) * self.total
-            n = int(expected + 4.0 * math.sqrt(expected) + 16)
-            got += self._round(n, rng, out, got)
-        if getattr(self, "_reserve", None) is not None:
-            self._remaining -= m
