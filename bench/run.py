@@ -265,14 +265,19 @@ elif mode == "buffers":
         rng = np.random.default_rng(k)
         for _ in range(reps):
             copies[k].sample(buffers[k].size, rng, out=buffers[k])
+    def fill(k, reps):                                   # the reference: numpy's own fill, no GIL
+        rng = np.random.default_rng(k)
+        for _ in range(reps):
+            rng.random(out=buffers[k])
     work(0, 1); work(1, 1)
     out = {}
     for workers in (1, 2, 1, 2, 1, 2):
-        threads = [threading.Thread(target=work, args=(k, 20 // workers)) for k in range(workers)]
-        start = time.perf_counter()
-        for t in threads: t.start()
-        for t in threads: t.join()
-        out.setdefault(workers, []).append(time.perf_counter() - start)
+        for name, fn, reps in (("ours", work, 20), ("numpy", fill, 60)):
+            threads = [threading.Thread(target=fn, args=(k, reps // workers)) for k in range(workers)]
+            start = time.perf_counter()
+            for t in threads: t.start()
+            for t in threads: t.join()
+            out.setdefault(f"{name}{workers}", []).append(time.perf_counter() - start)
     print(json.dumps({k: min(v) for k, v in out.items()}))
 else:
     arr = generate(s, 10**8, chunk=10**7, seed=1)
@@ -292,10 +297,16 @@ else:
                          note="draws/s with 2 threads vs 1 thread"))
         res = json.loads(subprocess.run([sys.executable, "-c", code, "buffers"], capture_output=True, text=True,
                                         check=True, env=env, timeout=600).stdout.strip().splitlines()[-1])
-        t1, t2 = res["1"], res["2"]
+        t1, t2 = res["ours1"], res["ours2"]
         rows.append(dict(section="6. scaling: two threads vs one (2e7 draws, sample(out=) into a reused 1e6 buffer "
                                  "per thread)", target="generalised gamma", ours=2e7 / t2, ref=2e7 / t1,
                          ratio=t1 / t2, goal=1.85, note="draws/s with 2 threads vs 1 thread, no Dask, no fresh memory"))
+        n1, n2 = res["numpy1"], res["numpy2"]
+        rows.append(dict(section="6b. the machine's own two-thread scaling: numpy's uniform fill (6e7 uniforms, "
+                                 "the same reused buffers, GIL released)", target="numpy Generator.random",
+                         ours=6e7 / n2, ref=6e7 / n1, ratio=n1 / n2,
+                         note="reference for row 6: what two threads give on this machine for a loop with no "
+                              "shared state at all"))
         mem = json.loads(subprocess.run([sys.executable, "-c", code, "memory"], capture_output=True, text=True,
                                         check=True, env=env, timeout=600).stdout.strip().splitlines()[-1])
         rows.append(dict(section="6. peak memory, 1e8 draws in chunks of 1e7", target="generalised gamma",
