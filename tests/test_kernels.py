@@ -1,9 +1,10 @@
 """The compiled kernels (engine/kernels.py) agree with their pure-numpy twins.
 
 The numpy path is what users without Numba run, so both must give the same
-numbers for the same input: exactly for Leva's candidate loop (same arithmetic,
-same order), and to rounding for the inverse-CDF polynomial (Horner order differs
-only in fused operations, if at all).
+numbers for the same input: exactly for Leva's candidate loop (same uniforms, same
+arithmetic, same order), and to rounding for the inverse-CDF polynomial (the compiled
+loop may fuse a multiply and an add into one rounding) and for rejection (numba's
+log1p may differ from numpy's in the last bit).
 """
 import math
 

@@ -132,8 +132,10 @@ class HatDrawing:
 
     # ---- drawing ----------------------------------------------------------------------------------
     def _candidate_pass(self, u, v, x, loghat, status):
-        """The numpy twin of ``kernels.hat_propose``: the same arithmetic, array by array
-        (see the kernel for what each output holds); returns the counts of statuses 0..3."""
+        """Classify candidates array by array, with the arithmetic of ``kernels.hat_slots`` term
+        by term (``_slot_pass``, its numpy twin, and the pictures use it). status: 0 accepted
+        at once, 1 undecided (u then holds log(squeeze / hat) at x, v the row's floor r),
+        2 / 3 beyond the hat below / above. Returns the counts of statuses 0..3."""
         n = u.size
         uA = u * self.total
         k = np.minimum(np.searchsorted(self.cum, uA, side="right"), self._last)
