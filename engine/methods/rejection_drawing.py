@@ -195,8 +195,9 @@ class HatDrawing:
             else:
                 slots = rejected
             target = np.empty(slots.size)
-        if getattr(self, "_reserve", None) is not None:
-            self._remaining -= out.size
+        call = self._thread_state()
+        if getattr(call, "reserve", None) is not None:
+            call.remaining -= out.size
 
     def _round(self, out, rng):
         """One candidate for every slot of ``out`` (which holds the slots' uniforms): each
@@ -245,12 +246,13 @@ class HatDrawing:
         at once and kept in a reserve (iid, so using them later changes no law)."""
         mass = self.FL if side == 0 else self.SR
         invert = self.target.quantile if side == 0 else self.target.isf
-        reserve = getattr(self, "_reserve", None)
+        call = self._thread_state()
+        reserve = getattr(call, "reserve", None)
         if reserve is None:
             return invert(rng.random(count) * mass), count
         spent = 0
         if reserve[side].size < count:
-            expected = self._remaining * mass / self.total
+            expected = call.remaining * mass / self.total
             batch = count + int(1.2 * expected + 4.0 * math.sqrt(expected)) + 8
             reserve[side] = np.concatenate([reserve[side], invert(rng.random(batch) * mass)])
             spent = batch
@@ -258,17 +260,24 @@ class HatDrawing:
         return out, spent
 
     def sample(self, n=None, rng=None, out: np.ndarray | None = None) -> np.ndarray:
-        self._reserve = [np.empty(0), np.empty(0)]
-        self._remaining = check_output_buffer(out, n).size if out is not None else sample_size("n", n)
+        # The reserve belongs to this call on this thread: threads sharing one sampler
+        # must never hand out the same reserved draws twice.
+        call = self._thread_state()
+        call.reserve = [np.empty(0), np.empty(0)]
+        call.remaining = check_output_buffer(out, n).size if out is not None else sample_size("n", n)
         try:
             return super().sample(n, rng, out=out)
         finally:
-            self._reserve = None
+            call.reserve = None
+
+    def _thread_state(self):
+        """This thread's working state (scratch lists, the end draws' reserve)."""
+        return self.__dict__.setdefault("_local", threading.local())
 
     def _scratch(self, n):
         """The lists a slot pass fills, reused across calls (fresh large arrays cost page
         faults every time); one set per thread, so a sampler shared by threads stays safe."""
-        local = self.__dict__.setdefault("_local", threading.local())
+        local = self._thread_state()
         lists = getattr(local, "lists", None)
         if lists is None or lists[0].size < n:
             size = max(n, 1 << 16)
