@@ -23,8 +23,9 @@ from .rank_windows import Windows, plan_windows
 SIGN = np.uint64(1 << 63)
 TOP_SHIFT = 44                 # pass 1 bins on the top 64 - 44 = 20 bits (sign, exponent, 8 mantissa bits)
 REFINE_BITS = 16               # each extra pass (rarely needed) splits a bin on 16 more bits
-KEEP_LIMIT = 1 << 22           # draws held in memory at most (32 MB): a bin is split instead, and
-                               # windows expected to hold more than half of it are not used
+KEEP_LIMIT = 1 << 22           # radix select: draws held in memory at most (32 MB) before a bin is split
+WINDOW_KEEP_LIMIT = 1 << 23    # rank windows: draws kept at most (64 MB); windows expected to hold more
+                               # than half of it are not used (the radix select runs instead)
 
 
 @dataclass
@@ -104,7 +105,8 @@ def parallel_slots() -> int:
 def chunked_pass(x, times: np.ndarray, ranks_of):
     """Statistics of a 1-D dask array and the values of its 0-based ranks ``ranks_of(n)``,
     exact, holding at most one chunk per worker (two while the first chunks are held) plus
-    at most KEEP_LIMIT kept draws. Returns (stats, values by rank, computation).
+    at most WINDOW_KEEP_LIMIT kept draws (KEEP_LIMIT in the radix select). Returns
+    (stats, values by rank, computation).
 
     With the size known in advance: one pass with rank windows, plus two (a histogram pass
     and a keeping pass) only for ranks that fell outside their windows. With unknown chunk
@@ -129,7 +131,7 @@ def chunked_pass(x, times: np.ndarray, ranks_of):
     if ranks:
         plan = plan_windows(ranks, n, sizes[:pilots])
         windows = None
-        if min(sizes[:pilots]) > 0 and plan.expected_kept() <= KEEP_LIMIT / 2:
+        if min(sizes[:pilots]) > 0 and plan.expected_kept() <= WINDOW_KEEP_LIMIT / 2:
             picked = dask.compute(*[dask.delayed(pilot_values)(b, plan.positions(m))
                                     for b, m in zip(held, sizes)])
             windows = plan.windows(picked)
@@ -141,9 +143,9 @@ def chunked_pass(x, times: np.ndarray, ranks_of):
 
     def summaries(parts, part_sizes):
         # Room for four times a chunk's expected share of the kept draws and then some (a
-        # chunk's count is about Poisson); the merges hold the total to KEEP_LIMIT.
+        # chunk's count is about Poisson); the merges hold the total to WINDOW_KEEP_LIMIT.
         tasks = [dask.delayed(_window_summary)(b, times, windows.lo, windows.hi,
-                                               min(m, KEEP_LIMIT, math.ceil(4 * share * m) + 1024))
+                                               min(m, WINDOW_KEEP_LIMIT, math.ceil(4 * share * m) + 1024))
                  for b, m in zip(parts, part_sizes)]
         return dask.compute(_tree(dask.delayed, tasks, _merge_windowed))[0] if tasks else None
 
@@ -211,7 +213,7 @@ def _window_summary(block, times, lo, hi, room) -> _Windowed:
 
 def _merge_windowed(a: _Windowed, b: _Windowed) -> _Windowed:
     n, mean, m2 = _chan(a.n, a.mean, a.m2, b.n, b.mean, b.m2)
-    overflow = a.overflow or b.overflow or a.kept.size + b.kept.size > KEEP_LIMIT
+    overflow = a.overflow or b.overflow or a.kept.size + b.kept.size > WINDOW_KEEP_LIMIT
     kept = a.kept[:0] if overflow else np.concatenate([a.kept, b.kept])
     return _Windowed(n, mean, m2, a.bad + b.bad, a.survivors + b.survivors, a.below + b.below,
                      a.inside + b.inside, kept, overflow)

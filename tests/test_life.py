@@ -242,6 +242,7 @@ def test_bins_too_full_to_keep_are_split_by_an_extra_pass(monkeypatch):
     da = pytest.importorskip("dask.array")
     from lifedraw.engine import order_statistics
     monkeypatch.setattr(order_statistics, "KEEP_LIMIT", 50)
+    monkeypatch.setattr(order_statistics, "WINDOW_KEEP_LIMIT", 50)
     x = weibull_draws(100_000)
     chunked = life_summary(da.from_array(x, chunks=20_000))
     # Windows would keep far more than 50 draws, so the radix select runs: histogram, split, keep.

@@ -121,16 +121,17 @@ def test_sorted_data_makes_two_pilot_chunks_disagree_so_the_radix_passes_run():
 
 
 def test_a_chunk_crowding_a_window_keeps_nothing_so_memory_stays_bounded(monkeypatch):
-    # The bound: every chunk keeps at most its room, every merge at most KEEP_LIMIT draws, so
-    # no task and not the caller ever holds more than KEEP_LIMIT kept draws. Here a late chunk
-    # of 20,000 copies of the median would overfill the windows; it keeps none and the
-    # ranks come from the radix select, still exact.
+    # The bound: every chunk keeps at most its room, every merge at most WINDOW_KEEP_LIMIT draws,
+    # so no task and not the caller ever holds more kept draws than that. Here a late chunk of
+    # 20,000 copies of the median would overfill the windows; it keeps none and the ranks come
+    # from the radix select (which keeps at most KEEP_LIMIT), still exact.
+    monkeypatch.setattr(order_statistics, "WINDOW_KEEP_LIMIT", 40_000)
     monkeypatch.setattr(order_statistics, "KEEP_LIMIT", 40_000)
     x = draws(200_000)
     x[150_000:170_000] = np.median(x[:40_000])
     _, values, computation = select(da.from_array(x, chunks=20_000))
     assert computation["fallback_ranks"] > 0
-    assert computation["kept"] <= 2 * order_statistics.KEEP_LIMIT     # window pass, then radix pass
+    assert computation["kept"] <= 40_000 + 40_000                    # window pass, then radix pass
     assert_exact(values, x)
 
 
