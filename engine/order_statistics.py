@@ -125,21 +125,20 @@ def chunked_pass(x, times: np.ndarray, ranks_of):
         raise ModelError("samples", "must not be empty")
     ranks = sorted(set(ranks_of(n)))
     pilots = min(parallel_slots(), len(blocks))
+    plan = plan_windows(ranks, n, sizes[:pilots])
+    if min(sizes[:pilots]) == 0 or plan.expected_kept() > WINDOW_KEEP_LIMIT / 2:
+        return _radix_passes(blocks, times, ranks_of)
     # The first chunks are read once and held: the pilot looks at them, and the pass uses them.
     held = list(dask.persist(*blocks[:pilots]))
-    windows, plan = Windows.none(), None
+    windows = Windows.none()
     if ranks:
-        plan = plan_windows(ranks, n, sizes[:pilots])
-        windows = None
-        if min(sizes[:pilots]) > 0 and plan.expected_kept() <= WINDOW_KEEP_LIMIT / 2:
-            picked = dask.compute(*[dask.delayed(pilot_values)(b, plan.positions(m))
-                                    for b, m in zip(held, sizes)])
-            windows = plan.windows(picked)
+        picked = dask.compute(*[dask.delayed(pilot_values)(b, plan.positions(m)) for b, m in zip(held, sizes)])
+        windows = plan.windows(picked)
     if windows is None:
         del held                              # read again rather than held through two passes
         return _radix_passes(blocks, times, ranks_of)
 
-    share = plan.expected_kept() / n if plan is not None else 0.0
+    share = plan.expected_kept() / n
 
     def summaries(parts, part_sizes):
         # Room for four times a chunk's expected share of the kept draws and then some (a
