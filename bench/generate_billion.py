@@ -40,6 +40,27 @@ def _far_point(drawable, sc) -> float:
     return float(brentq(lambda t: drawable.reliability(t) - 1e-4, 0.0, hi, rtol=1e-10))
 
 
+def drawable_of(sc):
+    """What a scenario draws: its system, or its model fitted with its own method."""
+    from lifedraw.engine.sampling import fit
+    from lifedraw.engine.systems import system_from_scenario
+    return system_from_scenario(sc) if sc.system else fit(sc.target(), sc.method, sc.tolerance)
+
+
+def reduce_on_workers(x, drawable, sc):
+    """Mean, max and a 200-bin histogram of the lazy draws ``x``, computed where they are drawn;
+    returns one line comparing them with the model's exact mean and 99.99 % point."""
+    import dask
+    import dask.array as da
+    import numpy as np
+
+    top = _far_point(drawable, sc)
+    mean, biggest, (counts, _edges) = dask.compute(x.mean(), x.max(), da.histogram(x, bins=200, range=(0.0, top)))
+    exact_mean = drawable.mean() if hasattr(drawable, "reliability") else drawable.target.mean()
+    return (f"mean {mean:.6g} {sc.time_unit} (exact {exact_mean:.6g}), max {biggest:.6g}, "
+            f"{int(np.sum(counts)):,} draws below the exact 99.99% point {top:.6g}")
+
+
 def _timed(fn) -> float:
     start = time.perf_counter()
     fn()
@@ -47,27 +68,21 @@ def _timed(fn) -> float:
 
 
 def main(argv=None) -> int:
-    import dask
-    import dask.array as da
-    import numpy as np
-
-    from lifedraw.engine.cli import _number
+    from lifedraw.cli.numbers import whole_number
     from lifedraw.engine.generate import dask_client, generate
-    from lifedraw.engine.sampling import fit
     from lifedraw.engine.scenarios import load_scenario
-    from lifedraw.engine.systems import system_from_scenario
 
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     p.add_argument("--scenario", default="gearbox-wearout")
-    p.add_argument("-n", type=_number, default=10**9)
-    p.add_argument("--chunk", type=_number, default=10**7)
+    p.add_argument("-n", type=whole_number, default=10**9)
+    p.add_argument("--chunk", type=whole_number, default=10**7)
     p.add_argument("--workers", type=int, default=2, help="local worker processes (0: threads in this process)")
     p.add_argument("--seed", type=int, default=1)
     p.add_argument("--out", default=None, help="write shards here (a temp folder if 'tmp'), else reduce only")
     args = p.parse_args(argv)
 
     sc = load_scenario(args.scenario)
-    drawable = system_from_scenario(sc) if sc.system else fit(sc.target(), sc.method, sc.tolerance)
+    drawable = drawable_of(sc)
     what = "system" if sc.system else getattr(drawable, "method", "")
     where = f"{args.workers} local worker processes" if args.workers else "threads in this process"
     print(f"{sc.title}\n{args.n:.3g} draws ({what}) in chunks of {args.chunk:.3g} on {where}, "
@@ -94,14 +109,9 @@ def main(argv=None) -> int:
             figures = ""
         else:
             x = generate(drawable, args.n, chunk=args.chunk, seed=args.seed, client=client)
-            top = _far_point(drawable, sc)
-            mean, biggest, (counts, _edges) = dask.compute(x.mean(), x.max(),
-                                                           da.histogram(x, bins=200, range=(0.0, top)))
+            figures = reduce_on_workers(x, drawable, sc)
             seconds = time.perf_counter() - start
             mode = "reduced on the workers (mean, max, histogram), not stored"
-            exact_mean = drawable.mean() if hasattr(drawable, "reliability") else drawable.target.mean()
-            figures = (f"mean {mean:.6g} {sc.time_unit} (exact {exact_mean:.6g}), max {biggest:.6g}, "
-                       f"{int(np.sum(counts)):,} draws below the exact 99.99% point {top:.6g}")
         if client is not None:
             worker_peaks = client.run(_peak_rss_mib)
             cpu = sum(client.run(_cpu_seconds).values()) - sum(cpu_before.values())

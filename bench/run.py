@@ -335,6 +335,33 @@ def bench_dashboard(rows):
             rows.append(dict(section="7. dashboard latency", target=label, note=f"could not run: {err}"))
 
 
+LIFE_ROW_NOTE = (
+    "Row 8 (`python -m bench.life_billion`) starts both timings from the same lazy array of engine.generate "
+    "on 2 local worker processes: the generation reduces the draws on the workers (mean, max, 200-bin "
+    "histogram, as bench/generate_billion.py) and `life_summary` computes MTTF, B1/B10/B50 with exact "
+    "order-statistic intervals and R(t) at the scenario's mission times. The summary reads the draws once: "
+    "the first chunk on each worker places value windows around the wanted ranks and one compiled counting "
+    "pass keeps the draws inside them (engine/order_statistics.py, engine/rank_windows.py); before this round "
+    "it drew every chunk twice (a histogram pass, then a keeping pass), about 2x the generation's CPU time.")
+
+
+def bench_life(rows, n=10**9):
+    """life_summary of 10^9 lazily generated draws against generating them (bench/life_billion.py)."""
+    section = f"8. life_summary of {n:.0e} draws vs generating them (2 local Dask workers)"
+    try:
+        out = subprocess.run([sys.executable, "-m", "bench.life_billion", "--json", "-n", str(n)],
+                             capture_output=True, text=True,
+                             timeout=1800, check=True, cwd=HERE.parent).stdout.strip().splitlines()[-1]
+        res = json.loads(out)
+        rows.append(dict(section=section, target=f"{res['scenario']} (chunks of {res['chunk']:.0e})",
+                         ours=res["life_summary_s"], ref=res["generate_s"], ratio=res["ratio"], goal=-1.5,
+                         note=f"seconds, medians of {res['repeats']} alternating runs; worker CPU ratio "
+                              f"{res['cpu_ratio']:.2f}; {res['passes']} pass{'' if res['passes'] == 1 else 'es'} "
+                              "over the draws"))
+    except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
+        rows.append(dict(section=section, target="-", note=f"could not run: {err}"))
+
+
 def _machine() -> str:
     cpu = "unknown CPU"
     try:
@@ -363,8 +390,8 @@ def _verdict(row) -> str:
     goal = row.get("goal")
     if goal is None or "ratio" not in row:
         return ""
-    if goal < 0:      # a "lower is better" row: ratio = measured / limit
-        return "met" if row["ratio"] <= 1.0 else "MISSED"
+    if goal < 0:      # a "lower is better" row: ratio at most -goal (measured / limit when -goal is 1)
+        return "met" if row["ratio"] <= -goal else "MISSED"
     return "met" if row["ratio"] >= goal else "MISSED"
 
 
@@ -393,6 +420,10 @@ GAPS = {
     "6": ("the machine's second core was shared with other processes during the run (see the load average "
           "below); two threads draw in parallel (the compiled kernels release the GIL), so the ratio is bounded "
           "by the idle capacity of the second core, not by the sampler."),
+    "8": ("the summary draws every chunk as the generation does and adds one compiled counting pass per "
+          "chunk (about 3-4 ns a draw against 40-60 ns to draw it) and a sort of the first chunk on each worker; "
+          "a ratio above the goal means the machine was busy (compare the worker CPU ratio in the notes) or the "
+          "first chunks misled the windows and the radix select ran two more passes (the notes count the passes)."),
     "7": ("measured while other processes shared the 2 cores (see the load averages below): the page's "
           "server and the headless browser compete for the same cores as the draws; the earlier run on a quiet "
           "machine met both goals (p95 176 and 234 ms)."),
@@ -411,7 +442,7 @@ def write_results(rows, path: Path, extra: list[str] | None = None):
         def f(v):
             return "" if v is None else (f"{v:.3g}" if isinstance(v, float) else str(v))
         goal = r.get("goal")
-        goal_text = "" if goal is None else ("<= 1 (limit)" if goal < 0 else f">= {goal:g}x")
+        goal_text = "" if goal is None else (f"<= {-goal:g} (limit)" if goal < 0 else f">= {goal:g}x")
         lines.append(f"| {r['section']} | {r.get('target', '')} | {f(r.get('ours'))} | {f(r.get('ref'))} | "
                      f"{f(r.get('ratio'))} | {goal_text} | {_verdict(r)} | {r.get('note', '')} |")
     lines += ["", "Throughput columns are draws per second; see the notes column for other units."]
@@ -433,20 +464,20 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--out", default=str(HERE / "results.md"))
     parser.add_argument("--skip", nargs="*", default=[], help="sections to skip: inversion rejection normal "
-                                                               "generic refit threads dashboard scaling")
+                                                               "generic refit threads dashboard life scaling")
     args = parser.parse_args(argv)
     rows: list[dict] = []
     load_at_start = " / ".join(f"{v:.2f}" for v in os.getloadavg()) + " (1, 5, 15 min; 2 cores)"
     sections = [("inversion", bench_inversion), ("rejection", bench_rejection_and_rou), ("normal", bench_normal),
                 ("generic", bench_generic), ("refit", bench_refit), ("threads", bench_threads),
-                ("dashboard", bench_dashboard)]
+                ("dashboard", bench_dashboard), ("life", bench_life)]
     for key, fn in sections:
         if key in args.skip:
             continue
         start = time.perf_counter()
         fn(rows)
         print(f"[bench] {key}: {time.perf_counter() - start:.1f} s", file=sys.stderr)
-    extra = [f"Load average when the run started: {load_at_start}.", ""]
+    extra = [f"Load average when the run started: {load_at_start}.", "", LIFE_ROW_NOTE, ""]
     if "scaling" not in args.skip:
         from bench.scaling import scaling_tables
         start = time.perf_counter()

@@ -347,3 +347,107 @@ def renewal_step(clock, life, limit, run, horizon, period, n_periods, replacemen
     if use_jit and _renewal_step_jit is not None:
         return int(_renewal_step_jit(*args))
     return _renewal_step_numpy(*args)
+
+
+# ---- one pass of a chunk's exact statistics with rank windows (engine.order_statistics) -------
+#
+# The sum of squared deviations from a given mean, the draws beyond each mission time, and for
+# each value window [lo, hi] (sorted, disjoint) the draws below it and the draws inside it,
+# whose values are copied, in order, into ``kept`` while it has room. Non-finite draws are
+# counted as bad (the caller refuses the sample then, so what they add elsewhere is moot).
+# Several short loops, not one: each count loop compiles to vector code, and the copying
+# loop's branch is taken by the few draws inside a window only (measured 2x faster than one
+# fused loop over 10^7 draws).
+
+def _window_pass_py(x, mean, times, lo, hi, survivors, below, inside, kept):
+    n = x.shape[0]
+    # Four partial sums: no reordering by the compiler is needed to keep the pipeline busy.
+    s0 = 0.0
+    s1 = 0.0
+    s2 = 0.0
+    s3 = 0.0
+    bad = 0
+    whole = n - n % 4
+    for i in range(0, whole, 4):
+        d0 = x[i] - mean
+        d1 = x[i + 1] - mean
+        d2 = x[i + 2] - mean
+        d3 = x[i + 3] - mean
+        s0 += d0 * d0
+        s1 += d1 * d1
+        s2 += d2 * d2
+        s3 += d3 * d3
+    for i in range(whole, n):
+        d0 = x[i] - mean
+        s0 += d0 * d0
+    for i in range(n):
+        bad += not (abs(x[i]) < math.inf)
+    for j in range(times.shape[0]):
+        t = times[j]
+        c = 0
+        for i in range(n):
+            c += x[i] > t
+        survivors[j] += c
+    n_windows = lo.shape[0]
+    for w in range(n_windows):
+        edge = lo[w]
+        c = 0
+        for i in range(n):
+            c += x[i] < edge
+        below[w] += c
+    room = kept.shape[0]
+    k = 0
+    for i in range(n):
+        v = x[i]
+        hit = False
+        for w in range(n_windows):
+            hit |= (v >= lo[w]) & (v <= hi[w])
+        if hit:
+            for w in range(n_windows):
+                inside[w] += (v >= lo[w]) & (v <= hi[w])
+            if k < room:
+                kept[k] = v
+            k += 1
+    return (s0 + s1) + (s2 + s3), bad, k
+
+
+_window_pass_jit = _jit(_window_pass_py)
+
+
+def _window_pass_numpy(x, mean, times, lo, hi, survivors, below, inside, kept):
+    bad = int(x.size - np.count_nonzero(np.isfinite(x)))
+    d = x - mean
+    m2 = float(np.dot(d, d))
+    del d
+    for j, t in enumerate(times):
+        survivors[j] += np.count_nonzero(x > t)
+    chosen = np.zeros(x.size, dtype=bool)
+    for w in range(lo.shape[0]):
+        below[w] += np.count_nonzero(x < lo[w])
+        mask = (x >= lo[w]) & (x <= hi[w])
+        inside[w] += np.count_nonzero(mask)
+        chosen |= mask
+    values = x[chosen]
+    room = min(values.size, kept.shape[0])
+    kept[:room] = values[:room]
+    return m2, bad, int(values.size)
+
+
+def window_pass(x, mean, times, lo, hi, room, *, use_jit=True):
+    """One chunk ``x``: (m2, bad, survivors, below, inside, kept, in_windows).
+
+    m2 = sum of (x - mean)^2; bad = the non-finite draws; survivors[j] = draws > times[j];
+    below[w], inside[w] = draws < lo[w] and in [lo[w], hi[w]] (windows sorted, disjoint);
+    kept = the in-window values in the chunk's order, at most ``room`` of them, and
+    in_windows = how many there were (more than ``room`` means some were not kept)."""
+    x = np.ascontiguousarray(x, dtype=np.float64).ravel()
+    times = np.ascontiguousarray(times, dtype=np.float64)
+    lo = np.ascontiguousarray(lo, dtype=np.float64)
+    hi = np.ascontiguousarray(hi, dtype=np.float64)
+    survivors = np.zeros(times.size, dtype=np.int64)
+    below = np.zeros(lo.size, dtype=np.int64)
+    inside = np.zeros(lo.size, dtype=np.int64)
+    kept = np.empty(max(int(room), 0), dtype=np.float64)
+    fn = _window_pass_jit if use_jit and _window_pass_jit is not None else _window_pass_numpy
+    m2, bad, in_windows = fn(x, float(mean), times, lo, hi, survivors, below, inside, kept)
+    return float(m2), int(bad), survivors, below, inside, kept[:min(int(in_windows), kept.size)], int(in_windows)

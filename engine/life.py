@@ -42,24 +42,20 @@ def life_summary(samples, mission_times=(), confidence=0.95) -> dict:
     if isinstance(samples, (str, os.PathLike)):
         from .generate import open_shards
         samples = open_shards(samples)
+
+    def wanted_ranks(n):
+        # Known from n alone, so a chunked sample can look for them in its one pass.
+        return sorted({k for (_, _, j, j1, r, s, _) in _rank_plans(n, confidence).values()
+                       for k in (j, j1, r - 1, s - 1) if 0 <= k < n})
+
     if _is_dask_array(samples):
-        stats, select, computation = chunked_pass(samples, times)
+        stats, values, computation = chunked_pass(samples, times, wanted_ranks)
     else:
-        xs = _samples(samples)
-        stats, select, computation = in_memory_pass(xs, times)
+        stats, values, computation = in_memory_pass(_samples(samples), times, wanted_ranks)
     n = stats.n
     z = _z(confidence)
-    plans = {}
-    for name, p in B_LIVES.items():
-        h = (n - 1) * p                      # numpy's default: between x_(j+1) and x_(j+2), 1-based
-        j = int(math.floor(h))
-        r, s, achieved = _order_statistic_ranks(n, p, confidence)
-        plans[name] = (p, h - j, j, min(j + 1, n - 1), r, s, achieved)
-    wanted = sorted({k for (_, _, j, j1, r, s, _) in plans.values()
-                     for k in (j, j1, r - 1, s - 1) if 0 <= k < n})
-    values = select(wanted)
     b_lives = {}
-    for name, (p, frac, j, j1, r, s, achieved) in plans.items():
+    for name, (p, frac, j, j1, r, s, achieved) in _rank_plans(n, confidence).items():
         lo_v, hi_v = values[j], values[j1]
         # numpy's own interpolation (numpy.lib._function_base_impl._lerp), so the
         # estimate equals np.quantile(samples, p) to the last bit.
@@ -108,6 +104,18 @@ def _z(confidence: float) -> float:
 def _mean_interval(mean: float, sd: float, n: int, z: float) -> dict:
     half = z * sd / math.sqrt(n)
     return {"estimate": mean, "lower": mean - half, "upper": mean + half}
+
+
+def _rank_plans(n: int, confidence: float) -> dict:
+    """For each B-life: (p, fraction, j, j + 1, r, s, achieved), 0-based j for numpy's default
+    quantile (between x_(j+1) and x_(j+2), 1-based) and the interval's 1-based ranks r, s."""
+    plans = {}
+    for name, p in B_LIVES.items():
+        h = (n - 1) * p
+        j = int(math.floor(h))
+        r, s, achieved = _order_statistic_ranks(n, p, confidence)
+        plans[name] = (p, h - j, j, min(j + 1, n - 1), r, s, achieved)
+    return plans
 
 
 @functools.lru_cache(maxsize=256)

@@ -79,3 +79,34 @@ def test_renewal_round_kernel_matches_its_numpy_twin(limit, runs):
     np.testing.assert_array_equal(f1, f2)
     if r1 is not None:
         np.testing.assert_array_equal(r1, r2)
+
+
+def test_window_pass_kernel_matches_its_numpy_twin():
+    # Same counts and the same kept values in the same order by both paths; the sum of squares
+    # to rounding (four partial sums against numpy's dot). Ties on both window edges, values
+    # below, between and above the windows, an open-ended window, and non-finite draws.
+    rng = np.random.default_rng(11)
+    x = rng.weibull(1.5, 300_001) * 100.0
+    x[:6] = [10.0, 20.0, 50.0, 80.0, np.nan, np.inf]       # window edges exactly, then bad draws
+    times = np.array([5.0, 50.0, 500.0])
+    lo, hi = np.array([10.0, 50.0, 120.0]), np.array([20.0, 80.0, np.inf])
+    for room in (10**6, 1_000):                              # room for all, and too little room
+        jit = kernels.window_pass(x, 90.0, times, lo, hi, room)
+        twin = kernels.window_pass(x, 90.0, times, lo, hi, room, use_jit=False)
+        assert jit[1] == twin[1]
+        for a, b in zip(jit[2:5], twin[2:5]):
+            np.testing.assert_array_equal(a, b)
+        np.testing.assert_array_equal(jit[5], twin[5])
+        assert jit[6] == twin[6]
+    # ... and both against numpy's plain counts (NaN compares false; inf is a draw like others
+    # here, since a sample with a bad draw is refused whatever else it adds).
+    assert jit[1] == 2
+    np.testing.assert_array_equal(jit[2], [np.count_nonzero(x > t) for t in times])
+    np.testing.assert_array_equal(jit[3], [np.count_nonzero(x < v) for v in lo])
+    np.testing.assert_array_equal(jit[4], [np.count_nonzero((x >= a) & (x <= b)) for a, b in zip(lo, hi)])
+    assert jit[6] == sum(jit[4]) and jit[5].size == 1_000
+    finite = x[np.isfinite(x)]
+    d = finite - 90.0
+    clean = kernels.window_pass(finite, 90.0, times, lo, hi, 0)
+    assert clean[0] == pytest.approx(float(np.dot(d, d)), rel=1e-12)
+    assert kernels.window_pass(finite, 90.0, times, lo, hi, 0, use_jit=False)[0] == pytest.approx(clean[0], rel=1e-12)

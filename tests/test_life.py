@@ -215,16 +215,17 @@ def test_interval_ends_are_the_binomial_ranks_order_statistics():
         assert (figures["b_lives"][name]["lower"], figures["b_lives"][name]["upper"]) == (xs[r - 1], xs[s - 1])
 
 
-def test_a_dask_array_gives_the_exact_in_memory_figures_in_two_passes():
+def test_a_dask_array_gives_the_exact_in_memory_figures_in_one_pass():
     da = pytest.importorskip("dask.array")
     x = weibull_draws(200_003)
     times = [100.0, MISSION, 3000.0]
     chunked = life_summary(da.from_array(x, chunks=30_000), mission_times=times)
     assert_same_figures(chunked, life_summary(x, mission_times=times))
     assert chunked["method"] == "exact order statistics"
-    assert chunked["passes"] == 2
-    # Only the draws of the bins holding wanted ranks are kept: a small share of the sample.
-    assert 0 < chunked["computation"]["kept"] < x.size / 20
+    assert chunked["passes"] == 1
+    # Only the draws inside the windows around the wanted ranks are kept: about 2·5·(0.099 +
+    # 0.3 + 0.5)/sqrt(60,000) = 3.7 % of the sample for a 2-chunk pilot (rank_windows.py).
+    assert 0 < chunked["computation"]["kept"] < x.size / 10
 
 
 def test_a_shard_folder_gives_the_exact_in_memory_figures(tmp_path):
@@ -241,8 +242,10 @@ def test_bins_too_full_to_keep_are_split_by_an_extra_pass(monkeypatch):
     da = pytest.importorskip("dask.array")
     from lifedraw.engine import order_statistics
     monkeypatch.setattr(order_statistics, "KEEP_LIMIT", 50)
+    monkeypatch.setattr(order_statistics, "WINDOW_KEEP_LIMIT", 50)
     x = weibull_draws(100_000)
     chunked = life_summary(da.from_array(x, chunks=20_000))
+    # Windows would keep far more than 50 draws, so the radix select runs: histogram, split, keep.
     assert chunked["passes"] == 3
     assert_same_figures(chunked, life_summary(x))
 
