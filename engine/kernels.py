@@ -336,3 +336,55 @@ def renewal_step(clock, life, limit, run, horizon, period, n_periods, replacemen
     if use_jit and _renewal_step_jit is not None:
         return int(_renewal_step_jit(*args))
     return _renewal_step_numpy(*args)
+
+
+# ---- Chebyshev sums of a piecewise integral (engine/piece_series.py) -----------------------
+#
+# table[k, which] holds the coefficients of piece k's series; Clenshaw's recurrence
+# (ATAP ch. 3) sums sum_m c_m T_m(x) for each point's own piece.
+
+def _chebyshev_sum_py(x, k, table, which, out):
+    n = x.shape[0]
+    m = table.shape[0]
+    top = table.shape[2] - 1
+    for i in range(n):
+        p = k[i]
+        if p < 0:
+            p = 0
+        if p > m - 1:
+            p = m - 1
+        xi = x[i]
+        two_x = 2.0 * xi
+        b1 = 0.0
+        b2 = 0.0
+        for j in range(top, 0, -1):
+            b0 = table[p, which, j] + two_x * b1 - b2
+            b2 = b1
+            b1 = b0
+        out[i] = table[p, which, 0] + xi * b1 - b2
+    return out
+
+
+_chebyshev_sum_jit = _jit(_chebyshev_sum_py)
+
+
+def _chebyshev_sum_numpy(x, k, table, which, out):
+    rows = table[np.clip(k, 0, table.shape[0] - 1), which]
+    two_x = 2.0 * x
+    b1 = np.zeros_like(x)
+    b2 = np.zeros_like(x)
+    for j in range(table.shape[2] - 1, 0, -1):
+        b1, b2 = rows[:, j] + two_x * b1 - b2, b1
+    np.add(rows[:, 0] + x * b1, -b2, out=out)
+    return out
+
+
+def chebyshev_sum(x, k, table, which, out=None, *, use_jit=True):
+    """sum_m table[k_i, which, m] T_m(x_i) for every point i (x in [-1, 1], k its piece)."""
+    x = np.ascontiguousarray(np.ravel(x), dtype=np.float64)
+    k = np.ascontiguousarray(np.ravel(k), dtype=np.int64)
+    if out is None:
+        out = np.empty_like(x)
+    if use_jit and _chebyshev_sum_jit is not None:
+        return _chebyshev_sum_jit(x, k, table, int(which), out)
+    return _chebyshev_sum_numpy(x, k, table, int(which), out)

@@ -14,6 +14,7 @@ import numpy as np
 from scipy import special
 
 from .errors import ModelError
+from .piece_series import PieceSeries
 
 _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(10)
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
@@ -297,6 +298,16 @@ class CumulativeIntegral:
         self.total = float(self.cumulative[-1])
         # Mass after each piece, summed from the top so the far tail keeps its digits.
         self._after = np.concatenate([np.cumsum(self.pieces[::-1])[::-1][1:], [0.0]])
+        self._floor = 1e-17 * float(np.sum(np.abs(self.pieces)))
+        self._series: PieceSeries | None = None
+
+    def series(self) -> PieceSeries:
+        """The Chebyshev series of each piece (engine/piece_series.py), built on first use: a
+        value of G then costs a short sum instead of a 10-point rule, where the series is resolved."""
+        if self._series is None:
+            nodes = PieceSeries.nodes(self.edges)
+            self._series = PieceSeries(self.edges, self._g_of_y(nodes), self.pieces, self._floor)
+        return self._series
 
     def _g_of_y(self, y):
         t = self.mapping.to_t(y)
@@ -376,11 +387,26 @@ class CumulativeIntegral:
             value = self._rule(a, np.maximum(a, b))
         return np.where(b > a, value, 0.0)
 
+    def _piece_sums(self, y, k, upper: bool):
+        """The mass before (or after) each piece plus the part of the piece below (above) y: from the
+        piece's series where that is trusted, else from the 10-point rule."""
+        base = self._after[k] if upper else self.cumulative[k]
+        value, trusted = self.series().partial(y, k, base, upper)
+        rest = np.flatnonzero(~trusted)
+        if rest.size:
+            kr, yr = k[rest], y[rest]
+            if upper:
+                part = self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
+            else:
+                part = self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
+            value[rest] = base[rest] + part
+        return value
+
     def __call__(self, t):
         """G(t), vectorised, clipped to [0, total] outside the support."""
         t = np.asarray(t, dtype=float)
         y, k = self._locate(t)
-        value = self.cumulative[k] + self._partial(self.edges[k], np.minimum(y, self.edges[k + 1]))
+        value = self._piece_sums(y, k, upper=False)
         value = np.where(y >= self.edges[-1], self.total, value)
         value = np.where(y <= self.edges[0], 0.0, value)
         return value.reshape(t.shape)
@@ -389,7 +415,7 @@ class CumulativeIntegral:
         """Integral from t to the upper end, without cancellation in the tail."""
         t = np.asarray(t, dtype=float)
         y, k = self._locate(t)
-        value = self._after[k] + self._partial(np.maximum(y, self.edges[k]), self.edges[k + 1])
+        value = self._piece_sums(y, k, upper=True)
         value = np.where(y >= self.edges[-1], 0.0, value)
         value = np.where(y <= self.edges[0], self.total, value)
         return value.reshape(t.shape)
