@@ -303,10 +303,15 @@ class CumulativeIntegral:
 
     def series(self) -> PieceSeries:
         """The Chebyshev series of each piece (engine/piece_series.py), built on first use: a
-        value of G then costs a short sum instead of a 10-point rule, where the series is resolved."""
+        value of G then costs a short sum instead of a 10-point rule, where the series is resolved.
+        Pieces whose series is not resolved are split once, and the end pieces geometrically (a finite
+        lower end may hold a pole or a fractional power; the upper end is where R keeps small digits)."""
         if self._series is None:
-            nodes = PieceSeries.nodes(self.edges)
-            self._series = PieceSeries(self.edges, self._g_of_y(nodes), self.pieces, self._floor)
+            with np.errstate(all="ignore"):
+                series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
+                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
+                                           last_end=True)
+            self._series = series
         return self._series
 
     def _g_of_y(self, y):
@@ -388,18 +393,16 @@ class CumulativeIntegral:
         return np.where(b > a, value, 0.0)
 
     def _piece_sums(self, y, k, upper: bool):
-        """The mass before (or after) each piece plus the part of the piece below (above) y: from the
-        piece's series where that is trusted, else from the 10-point rule."""
-        base = self._after[k] if upper else self.cumulative[k]
-        value, trusted = self.series().partial(y, k, base, upper)
+        """The mass below (or above) y: from the series where that is trusted, else the mass
+        before (after) piece k plus the 10-point rule on the part of the piece below (above) y."""
+        value, trusted = self.series().sums(y, upper)
         rest = np.flatnonzero(~trusted)
         if rest.size:
             kr, yr = k[rest], y[rest]
             if upper:
-                part = self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
+                value[rest] = self._after[kr] + self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
             else:
-                part = self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
-            value[rest] = base[rest] + part
+                value[rest] = self.cumulative[kr] + self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
         return value
 
     def __call__(self, t):

@@ -18,6 +18,8 @@ from . import kernels
 NODES = 32
 # Relative accuracy demanded of a tabulated value: the quadrature it replaces reaches about 1e-14.
 RELATIVE = 1e-14
+# Parts of a geometric split towards the lower end: the innermost one is 2^-40 of the piece.
+GEOMETRIC_STEPS = 40
 
 _theta = np.pi * (np.arange(NODES) + 0.5) / NODES
 #: Chebyshev points of the first kind on [-1, 1] (ATAP ch. 3 uses the second kind; the first kind
@@ -34,42 +36,100 @@ _UPPER = -np.stack([chebyshev.chebint(np.eye(NODES)[m], lbnd=1.0) for m in range
 class PieceSeries:
     """Integrals of one integrand over parts of each piece [edges[k], edges[k+1]], as Chebyshev series.
 
-    ``values`` holds the integrand at ``nodes(edges)`` (pieces x NODES); ``pieces`` the adaptive
-    quadrature of each whole piece and ``floor`` the absolute accuracy the caller asks of it.
+    ``values`` holds the integrand at ``nodes(edges)`` (pieces x NODES), ``reference`` an adaptive
+    quadrature of each whole piece, ``before`` and ``after`` the mass below and above each piece.
     """
 
-    def __init__(self, edges, values, pieces, floor: float):
+    def __init__(self, edges, values, reference, before, after):
         half = 0.5 * np.diff(edges)
         coef = values @ _TO_COEF
         lower = (coef @ _LOWER) * half[:, None]
         upper = (coef @ _UPPER) * half[:, None]
         size = np.sum(np.abs(lower), axis=1)
-        # Resolved: the last three coefficients at rounding level (ATAP ch. 8, a chebfun-style test),
-        # and the series' whole-piece integral equal to the adaptive quadrature's.
+        # Resolved: the last three coefficients of the integral at rounding level (ATAP ch. 8, a
+        # chebfun-style test), and the series' whole-piece integral equal to the quadrature's.
         tail = np.sum(np.abs(lower[:, -3:]), axis=1)
-        whole = lower[:, 0] + np.sum(lower[:, 1:], axis=1)         # the series at x = 1
+        whole = np.sum(lower, axis=1)                              # the series at x = 1
+        scale = np.abs(reference)
         with np.errstate(invalid="ignore"):
-            resolved = ((tail <= 1e-15 * np.abs(pieces))
-                        & (np.abs(whole - pieces) <= 1e-14 * np.abs(pieces))
+            resolved = ((tail <= 1e-15 * scale) & (np.abs(whole - reference) <= 1e-14 * scale)
                         & np.all(np.isfinite(coef), axis=1))
         self.edges = np.asarray(edges, dtype=float)
         self.resolved = resolved
+        self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
         self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
         # What the series may be off by: its truncation plus the rounding of a sum of such terms.
         self.error = tail + 4e-16 * size
 
+    @classmethod
+    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
+              last_end: bool) -> "PieceSeries":
+        """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
+        and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
+        it over pieces. Pieces whose series is not resolved are split once (``refine``), and so are
+        the first and last piece where ``first_end`` / ``last_end`` ask for it; only the new parts are
+        evaluated and integrated."""
+        reference = pieces
+        values = integrand(cls.nodes(edges[:-1], edges[1:]))
+        series = cls(edges, values, reference, before, after)
+        split = ~series.resolved
+        split[0] |= first_end
+        split[-1] |= last_end
+        if not split.any():
+            return series
+        edges, parent, new = refine(edges, split)
+        kept = np.empty((parent.size, NODES))
+        kept[~new] = values[parent[~new]]
+        kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
+        fresh = np.empty(parent.size)
+        fresh[~new] = reference[parent[~new]]
+        fresh[new] = quadrature(edges[:-1][new], edges[1:][new])
+        # Masses before and after each part: its whole piece's, plus its siblings' (summed within
+        # the piece, so that a tail piece keeps its digits).
+        above, below = np.asarray(before, dtype=float)[parent], np.asarray(after, dtype=float)[parent]
+        for k in np.unique(parent[new]):
+            rows = np.flatnonzero(parent == k)
+            part = fresh[rows]
+            above[rows] += np.cumsum(part) - part
+            below[rows] += np.cumsum(part[::-1])[::-1] - part
+        return cls(edges, kept, fresh, above, below)
+
     @staticmethod
-    def nodes(edges):
-        """Where the integrand is needed: NODES Chebyshev points on each piece."""
-        a, b = edges[:-1], edges[1:]
+    def nodes(a, b):
+        """Where the integrand is needed: NODES Chebyshev points on each piece [a_k, b_k]."""
         return 0.5 * (a + b)[:, None] + 0.5 * (b - a)[:, None] * POINTS[None, :]
 
-    def partial(self, y, k, base, upper: bool):
-        """base + (integral of the piece from its start to y, or from y to its end), and where the
-        series can be trusted for it (False: the caller's quadrature must supply that point)."""
+    def sums(self, y, upper: bool):
+        """The mass below y (or above it, ``upper``), and where the series can be trusted for it
+        (False: the caller's quadrature must supply that point). y inside [edges[0], edges[-1]]."""
+        k = np.clip(np.searchsorted(self.edges, y, side="right") - 1, 0, self.edges.size - 2)
         a, b = self.edges[k], self.edges[k + 1]
         x = np.clip((2.0 * y - a - b) / (b - a), -1.0, 1.0)
         part = kernels.chebyshev_sum(x, k, self.table, 1 if upper else 0)
-        value = base + part
+        value = (self.after if upper else self.before)[k] + part
         trusted = self.resolved[k] & (self.error[k] <= RELATIVE * np.abs(value))
         return value, trusted
+
+
+def refine(edges, split):
+    """Split the pieces marked ``split``: the first and the last piece geometrically towards the
+    ends of the partition (where a fractional power, a pole or a thin tail makes the integrand
+    vary on ever smaller scales, and where small masses must keep their digits: each part is
+    smooth on its own scale and carries its own small integral), every other one into four.
+    Returns the new edges and, per new piece, the index of the piece it came from and whether
+    it is new."""
+    m = edges.size - 1
+    a, b = edges[:-1], edges[1:]
+    counts = np.where(split, 4, 1)
+    ends = [k for k in (0, m - 1) if split[k]]
+    for k in ends:
+        counts[k] = GEOMETRIC_STEPS + 1
+    parent = np.repeat(np.arange(m), counts)
+    j = np.arange(parent.size) - np.repeat(np.cumsum(counts) - counts, counts)
+    starts = a[parent] + (b - a)[parent] * j / counts[parent]
+    steps = np.concatenate([[0.0], 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)])
+    if 0 in ends:
+        starts[:counts[0]] = a[0] + (b[0] - a[0]) * steps
+    if m - 1 in ends and m > 1:
+        starts[-counts[-1]:] = b[-1] - (b[-1] - a[-1]) * 2.0 ** -np.arange(GEOMETRIC_STEPS + 1)
+    return np.concatenate([starts, edges[-1:]]), parent, split[parent]
