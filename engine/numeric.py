@@ -353,7 +353,8 @@ class CumulativeIntegral:
         while a.size:
             rounds += 1
             m = 0.5 * (a + b)
-            left, right = self._rule(a, m), self._rule(m, b)
+            # Both halves of every piece in one pass over the integrand.
+            left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
             halves = left + right
             if not np.all(np.isfinite(halves)):
                 raise ModelError(self.field, "the integral is not finite (a non-integrable "

@@ -152,8 +152,9 @@ class NumericalInversion(Inversion):
         grid = m.to_t(np.linspace(ylo, yhi, INITIAL_STEPS + 1)[1:-1])
         extra = [x for x in getattr(t, "breakpoints", lambda: [])()]
         pts = [grid, [a, b], extra]
-        if t.pole_at_lower:
-            # Geometric steps towards a pole, where F^-1 is far from polynomial.
+        if np.isfinite(t.support[0]) and a == t.support[0]:
+            # Geometric steps towards a finite start of life: a pole there, or a density that
+            # starts like a power of the age, leaves F^-1 far from polynomial next to it.
             first = grid[grid > a][0] if np.any(grid > a) else b
             pts.append(a + (first - a) * np.logspace(-12, 0, 13))
         edges = np.unique(np.concatenate([np.asarray(p, dtype=float) for p in pts]))
