@@ -15,7 +15,7 @@ from numpy.polynomial import chebyshev
 
 from . import kernels
 
-NODES = 32
+NODES = 24
 # Relative accuracy demanded of a tabulated value: the quadrature it replaces reaches about 1e-14.
 RELATIVE = 1e-14
 # Parts of a geometric split towards the lower end: the innermost one is 2^-40 of the piece.
