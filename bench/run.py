@@ -32,6 +32,8 @@ from lifedraw import engine
 from lifedraw.engine import Target
 from lifedraw.engine.methods import METHODS
 
+from bench.setup_time import setup_rows
+
 HERE = Path(__file__).resolve().parent
 N_DRAWS = 10**7
 REPEATS = 5
@@ -144,9 +146,9 @@ def bench_inversion(rows):
         rows.append(dict(section="1c. numerical inversion vs numpy's uniform fill (Generator.random)", target=name,
                          ours=ours_u, ref=numpy_u, ratio=ours_u / numpy_u, goal=0.3,
                          note="the floor any inversion pays: one uniform per draw"))
-        rows.append(dict(section="1b. set-up time vs NumericalInversePolynomial", target=name,
-                         ours=setup * 1e3, ref=ref_setup * 1e3, ratio=setup / ref_setup, goal=-1.0,
-                         note="milliseconds, model built from its formula plus the sampler's set-up"))
+        rows.extend(setup_rows(name, lambda: engine.fit(build(), "inversion", 1e-10),
+                               lambda: sampling.NumericalInversePolynomial(
+                                   dist, u_resolution=1e-10, random_state=np.random.default_rng(1), **kwargs)))
 
 
 def bench_rejection_and_rou(rows):

@@ -633,6 +633,11 @@ def _parsed(cls, text: str, params: tuple, field: str):
     return cls._parse_new(text, params, field)
 
 
+def forget_parsed() -> None:
+    """Empty the store of parsed formulas: the next model of every text starts cold (for timings)."""
+    _parsed.cache_clear()
+
+
 class Formula:
     """A function of age ``t`` typed by a user, checked, compiled to vectorised numpy.
 

@@ -17,6 +17,8 @@ from .errors import ModelError
 from .piece_series import PieceSeries
 
 _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(10)
+# Parts of a graded split of the first piece at a finite lower end (the smallest is 2^-8 of it).
+GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
 
 
@@ -370,6 +372,19 @@ class CumulativeIntegral:
             a_new = np.concatenate([a[keep], m[keep]])
             b_new = np.concatenate([m[keep], b[keep]])
             whole = np.concatenate([left[keep], right[keep]])
+            if rounds > 1 and np.isfinite(self.mapping.lo):
+                # The piece at a finite lower end failing again: the integrand is not smooth there
+                # (a power of the age), and halving it would take a round per binary digit. Split it
+                # geometrically instead, towards the end, as quadrature near an end singularity does
+                # (Davis & Rabinowitz 2nd ed., 2.12.7 on graded meshes).
+                first = np.flatnonzero(a_new == self._ylo)
+                if first.size:
+                    i = int(first[0])
+                    cuts = a_new[i] + (b_new[i] - a_new[i]) * 2.0 ** -np.arange(GRADED_STEPS, 0, -1)
+                    starts, ends = np.concatenate([[a_new[i]], cuts]), np.concatenate([cuts, [b_new[i]]])
+                    a_new = np.concatenate([np.delete(a_new, i), starts])
+                    b_new = np.concatenate([np.delete(b_new, i), ends])
+                    whole = np.concatenate([np.delete(whole, i), self._rule(starts, ends)])
             a, b = a_new, b_new
             pieces = sum(x.size for x in done_a) + a.size
             if pieces > self.max_pieces or rounds > 2000:
