@@ -340,63 +340,64 @@ def renewal_step(clock, life, limit, run, horizon, period, n_periods, replacemen
 
 # ---- Chebyshev sums of a piecewise integral (engine/piece_series.py) -----------------------
 #
-# table[k, which] holds the coefficients of piece k's series; Clenshaw's recurrence
-# (ATAP ch. 3) sums sum_m c_m T_m(x) for each point's own piece.
+# For each point y: its piece k (binary search in edges), x = its place in the piece on [-1, 1],
+# the piece's series sum_m table[k, which, m] T_m(x) by Clenshaw's recurrence (ATAP ch. 3), plus
+# base[k]; trusted where the result is at least limit[k] (below it the rounding of the sum is too
+# large beside the value: the caller integrates those points itself).
 
-def _chebyshev_sum_py(x, k, table, which, out):
-    n = x.shape[0]
-    m = table.shape[0]
+def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
+    n = y.shape[0]
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
     top = table.shape[2] - 1
-    # Four points at a time: four independent recurrences keep the pipeline full
-    # (one recurrence alone waits on its own previous step).
-    quads = n - n % 4
-    for i in range(0, quads, 4):
-        p0 = min(max(k[i], 0), m - 1)
-        p1 = min(max(k[i + 1], 0), m - 1)
-        p2 = min(max(k[i + 2], 0), m - 1)
-        p3 = min(max(k[i + 3], 0), m - 1)
-        x0, x1, x2, x3 = x[i], x[i + 1], x[i + 2], x[i + 3]
-        a0 = a1 = a2 = a3 = 0.0
-        c0 = c1 = c2 = c3 = 0.0
-        for j in range(top, 0, -1):
-            a0, c0 = table[p0, which, j] + 2.0 * x0 * a0 - c0, a0
-            a1, c1 = table[p1, which, j] + 2.0 * x1 * a1 - c1, a1
-            a2, c2 = table[p2, which, j] + 2.0 * x2 * a2 - c2, a2
-            a3, c3 = table[p3, which, j] + 2.0 * x3 * a3 - c3, a3
-        out[i] = table[p0, which, 0] + x0 * a0 - c0
-        out[i + 1] = table[p1, which, 0] + x1 * a1 - c1
-        out[i + 2] = table[p2, which, 0] + x2 * a2 - c2
-        out[i + 3] = table[p3, which, 0] + x3 * a3 - c3
-    for i in range(quads, n):
-        p = min(max(k[i], 0), m - 1)
-        xi = x[i]
+    for i in range(n):
+        yi = y[i]
+        k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
+        if k < 0:
+            k = 0
+        if k > m - 1:
+            k = m - 1
+        a = edges[k]
+        b = edges[k + 1]
+        x = (2.0 * yi - a - b) / (b - a)
+        x = min(max(x, -1.0), 1.0)
         b1 = 0.0
         b2 = 0.0
         for j in range(top, 0, -1):
-            b1, b2 = table[p, which, j] + 2.0 * xi * b1 - b2, b1
-        out[i] = table[p, which, 0] + xi * b1 - b2
+            b1, b2 = table[k, which, j] + 2.0 * x * b1 - b2, b1
+        value = base[k] + (table[k, which, 0] + x * b1 - b2)
+        out[i] = value
+        trusted[i] = abs(value) >= limit[k]
     return out
 
 
-_chebyshev_sum_jit = _jit(_chebyshev_sum_py)
+_chebyshev_piece_sums_jit = _jit(_chebyshev_piece_sums_py)
 
 
-def _chebyshev_sum_numpy(x, k, table, which, out):
-    rows = table[np.clip(k, 0, table.shape[0] - 1), which]
-    b1 = np.zeros_like(x)
-    b2 = np.zeros_like(x)
+def _chebyshev_piece_sums_numpy(y, edges, table, which, base, limit, out, trusted):
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
+    k = np.minimum(np.maximum(np.searchsorted(edges[:m + 1], y, side="right") - 1, 0), m - 1)
+    a, b = edges[k], edges[k + 1]
+    x = np.minimum(np.maximum((2.0 * y - a - b) / (b - a), -1.0), 1.0)
+    rows = table[k, which]
+    b1 = np.zeros_like(y)
+    b2 = np.zeros_like(y)
     for j in range(table.shape[2] - 1, 0, -1):
         b1, b2 = rows[:, j] + 2.0 * x * b1 - b2, b1
-    np.add(rows[:, 0] + x * b1, -b2, out=out)
+    np.add(base[k], rows[:, 0] + x * b1 - b2, out=out)
+    np.greater_equal(np.abs(out), limit[k], out=trusted)
     return out
 
 
-def chebyshev_sum(x, k, table, which, out=None, *, use_jit=True):
-    """sum_m table[k_i, which, m] T_m(x_i) for every point i (x in [-1, 1], k its piece)."""
-    x = np.ascontiguousarray(np.ravel(x), dtype=np.float64)
-    k = np.ascontiguousarray(np.ravel(k), dtype=np.int64)
-    if out is None:
-        out = np.empty_like(x)
-    if use_jit and _chebyshev_sum_jit is not None:
-        return _chebyshev_sum_jit(x, k, table, int(which), out)
-    return _chebyshev_sum_numpy(x, k, table, int(which), out)
+def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
+    """(values, trusted) for the points y of a piecewise Chebyshev table; see above."""
+    y = np.ascontiguousarray(np.ravel(y), dtype=np.float64)
+    out = np.empty_like(y)
+    trusted = np.empty(y.shape, dtype=np.bool_)
+    args = (y, np.ascontiguousarray(edges, dtype=np.float64), np.ascontiguousarray(table, dtype=np.float64),
+            int(which), np.ascontiguousarray(base, dtype=np.float64), np.ascontiguousarray(limit, dtype=np.float64),
+            out, trusted)
+    if use_jit and _chebyshev_piece_sums_jit is not None:
+        _chebyshev_piece_sums_jit(*args)
+    else:
+        _chebyshev_piece_sums_numpy(*args)
+    return out, trusted

@@ -398,23 +398,19 @@ class CumulativeIntegral:
         edges = np.concatenate([a, b[-1:]])
         return edges, v
 
-    def _locate(self, t):
-        y = self.mapping.to_y(np.asarray(t, dtype=float)).ravel()
-        k = np.clip(np.searchsorted(self.edges, y, side="right") - 1, 0, self.pieces.size - 1)
-        return y, k
-
     def _partial(self, a, b):
         with np.errstate(all="ignore"):
             value = self._rule(a, np.maximum(a, b))
         return np.where(b > a, value, 0.0)
 
-    def _piece_sums(self, y, k, upper: bool):
+    def _piece_sums(self, y, upper: bool):
         """The mass below (or above) y: from the series where that is trusted, else the mass
-        before (after) piece k plus the 10-point rule on the part of the piece below (above) y."""
+        before (after) y's piece plus the 10-point rule on the part of the piece below (above) y."""
         value, trusted = self.series().sums(y, upper)
         rest = np.flatnonzero(~trusted)
         if rest.size:
-            kr, yr = k[rest], y[rest]
+            yr = y[rest]
+            kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
             if upper:
                 value[rest] = self._after[kr] + self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
             else:
@@ -424,8 +420,8 @@ class CumulativeIntegral:
     def __call__(self, t):
         """G(t), vectorised, clipped to [0, total] outside the support."""
         t = np.asarray(t, dtype=float)
-        y, k = self._locate(t)
-        value = self._piece_sums(y, k, upper=False)
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper=False)
         value = np.where(y >= self.edges[-1], self.total, value)
         value = np.where(y <= self.edges[0], 0.0, value)
         return value.reshape(t.shape)
@@ -433,8 +429,8 @@ class CumulativeIntegral:
     def upper(self, t):
         """Integral from t to the upper end, without cancellation in the tail."""
         t = np.asarray(t, dtype=float)
-        y, k = self._locate(t)
-        value = self._piece_sums(y, k, upper=True)
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper=True)
         value = np.where(y >= self.edges[-1], 0.0, value)
         value = np.where(y <= self.edges[0], self.total, value)
         return value.reshape(t.shape)

@@ -58,8 +58,10 @@ class PieceSeries:
         self.resolved = resolved
         self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
         self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
-        # What the series may be off by: its truncation plus the rounding of a sum of such terms.
+        # What the series may be off by: its truncation plus the rounding of a sum of such terms;
+        # a value is trusted where that is at most RELATIVE of it (never on an unresolved piece).
         self.error = tail + 4e-16 * size
+        self.limit = np.where(resolved, self.error / RELATIVE, np.inf)
 
     @classmethod
     def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
@@ -102,13 +104,8 @@ class PieceSeries:
     def sums(self, y, upper: bool):
         """The mass below y (or above it, ``upper``), and where the series can be trusted for it
         (False: the caller's quadrature must supply that point). y inside [edges[0], edges[-1]]."""
-        k = np.clip(np.searchsorted(self.edges, y, side="right") - 1, 0, self.edges.size - 2)
-        a, b = self.edges[k], self.edges[k + 1]
-        x = np.clip((2.0 * y - a - b) / (b - a), -1.0, 1.0)
-        part = kernels.chebyshev_sum(x, k, self.table, 1 if upper else 0)
-        value = (self.after if upper else self.before)[k] + part
-        trusted = self.resolved[k] & (self.error[k] <= RELATIVE * np.abs(value))
-        return value, trusted
+        return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
+                                            self.after if upper else self.before, self.limit)
 
 
 def refine(edges, split):

@@ -109,11 +109,16 @@ def test_generalised_gamma_formula_cdf_and_sf_match_scipy(k, p):
 
 
 @pytest.mark.skipif(not kernels.HAVE_JIT, reason="Numba not installed: only the numpy path exists")
-def test_chebyshev_kernel_matches_its_numpy_twin():
+def test_the_series_kernel_matches_its_numpy_twin():
     rng = np.random.default_rng(3)
-    table = rng.normal(size=(50, 2, 25))
-    x = rng.uniform(-1, 1, 10_003)                      # not a multiple of four: the remainder loop too
-    k = rng.integers(-3, 53, x.size)                    # out-of-range pieces are clamped by both
+    m = 50
+    edges = np.sort(rng.uniform(0, 1, m + 1))
+    table = rng.normal(size=(m, 2, 25))
+    base = rng.uniform(0, 1, m)
+    limit = np.where(rng.random(m) < 0.2, np.inf, rng.uniform(0, 1, m))
+    y = np.concatenate([rng.uniform(-0.1, 1.1, 10_000), edges])   # outside points clamp to the end pieces
     for which in (0, 1):
-        np.testing.assert_array_equal(kernels.chebyshev_sum(x, k, table, which),
-                                      kernels.chebyshev_sum(x, k, table, which, use_jit=False))
+        jit = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit)
+        twin = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit, use_jit=False)
+        np.testing.assert_array_equal(jit[0], twin[0])
+        np.testing.assert_array_equal(jit[1], twin[1])
