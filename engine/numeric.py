@@ -7,6 +7,7 @@ Chandrupatla's bracketing method (Chandrupatla 1997, Adv. Eng. Software 28(3)).
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from typing import Callable
 
@@ -20,6 +21,17 @@ _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(10)
 # Parts of a graded split of the first piece at a finite lower end (the smallest is 2^-8 of it).
 GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
+
+
+@functools.lru_cache(maxsize=64)
+def _jacobi_rule(alpha: float):
+    """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
+    [-1, 1], s = (1+x)/2); kept by exponent, as the same model is often rebuilt."""
+    x, w = special.roots_jacobi(12, 0.0, alpha)
+    nodes, weights = (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0)
+    nodes.setflags(write=False)
+    weights.setflags(write=False)
+    return nodes, weights, alpha
 
 
 @dataclass(frozen=True)
@@ -287,10 +299,7 @@ class CumulativeIntegral:
             width = (mapping.hi - mapping.lo) if far else mapping.scale
             alpha = lower_end_exponent(integrand, mapping.lo, width)
             if alpha is not None and alpha > 0 and abs(alpha - round(alpha)) > 1e-9:
-                # Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the
-                # (1-x)**0 (1+x)**alpha rule on [-1, 1], s = (1+x)/2).
-                x, w = special.roots_jacobi(12, 0.0, alpha)
-                self._jacobi = ((1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha)
+                self._jacobi = _jacobi_rule(alpha)
         inner = [float(mapping.to_y(b)) for b in breakpoints
                  if np.isfinite(b) and mapping.lo < b < mapping.hi]
         grid = np.unique(np.concatenate([np.linspace(ylo, yhi, 65), inner]))
