@@ -422,3 +422,61 @@ def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
     else:
         _chebyshev_piece_sums_numpy(*args)
     return out, trusted
+
+
+# ---- interpolating polynomials of the inverse-CDF pieces (engine/methods/inversion.py) ---------
+#
+# Row by row: Newton's divided differences of (s[i, j], values[j]), then the Newton form multiplied
+# out into monomial coefficients (Stoer & Bulirsch, Introduction to Numerical Analysis, 3rd ed., 2.1.3).
+
+def _interpolating_coefficients_py(s, values, out):
+    n, m = s.shape
+    d = np.empty(m)
+    c = np.empty(m)
+    for i in range(n):
+        for j in range(m):
+            d[j] = values[j]
+        for j in range(1, m):
+            for r in range(m - 1, j - 1, -1):
+                d[r] = (d[r] - d[r - 1]) / (s[i, r] - s[i, r - j])
+        for j in range(m):
+            c[j] = 0.0
+        c[0] = d[m - 1]
+        for j in range(m - 2, -1, -1):
+            # c(s) <- c(s) * (s - s_j) + d_j
+            for r in range(m - 1, 0, -1):
+                c[r] = c[r - 1] - s[i, j] * c[r]
+            c[0] = d[j] - s[i, j] * c[0]
+        for j in range(m):
+            out[i, j] = c[j]
+    return out
+
+
+_interpolating_coefficients_jit = _jit(_interpolating_coefficients_py)
+
+
+def _interpolating_coefficients_numpy(s, values, out):
+    n, m = s.shape
+    d = np.broadcast_to(values, (n, m)).copy()
+    for j in range(1, m):
+        d[:, j:] = (d[:, j:] - d[:, j - 1:-1]) / (s[:, j:] - s[:, :-j])
+    c = np.zeros((n, m))
+    c[:, 0] = d[:, m - 1]
+    for j in range(m - 2, -1, -1):
+        shifted = np.zeros((n, m))
+        shifted[:, 1:] = c[:, :-1]
+        c = shifted - s[:, j:j + 1] * c
+        c[:, 0] += d[:, j]
+    out[:] = c
+    return out
+
+
+def interpolating_coefficients(s, values, *, use_jit=True):
+    """Monomial coefficients of the polynomial through (s[i, j], values[j]) for every row i
+    (rows of strictly increasing s; see above)."""
+    s = np.ascontiguousarray(s, dtype=np.float64)
+    values = np.ascontiguousarray(values, dtype=np.float64)
+    out = np.empty(s.shape)
+    if use_jit and _interpolating_coefficients_jit is not None:
+        return _interpolating_coefficients_jit(s, values, out)
+    return _interpolating_coefficients_numpy(s, values, out)

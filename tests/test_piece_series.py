@@ -11,7 +11,6 @@ import pytest
 from scipy import special, stats
 
 import lifedraw
-from lifedraw.engine import kernels
 from lifedraw.engine.numeric import CumulativeIntegral, SupportMap
 from lifedraw.engine.piece_series import PieceSeries
 
@@ -106,19 +105,3 @@ def test_generalised_gamma_formula_cdf_and_sf_match_scipy(k, p):
     np.testing.assert_allclose(target.cdf(t), ref.cdf(t), rtol=1e-12, atol=0)
     s = ref.isf(np.concatenate([np.logspace(-12, -1, 12), np.linspace(0.1, 0.9, 9)]))
     np.testing.assert_allclose(target.sf(s), ref.sf(s), rtol=1e-12, atol=0)
-
-
-@pytest.mark.skipif(not kernels.HAVE_JIT, reason="Numba not installed: only the numpy path exists")
-def test_the_series_kernel_matches_its_numpy_twin():
-    rng = np.random.default_rng(3)
-    m = 50
-    edges = np.sort(rng.uniform(0, 1, m + 1))
-    table = rng.normal(size=(m, 2, 25))
-    base = rng.uniform(0, 1, m)
-    limit = np.where(rng.random(m) < 0.2, np.inf, rng.uniform(0, 1, m))
-    y = np.concatenate([rng.uniform(-0.1, 1.1, 10_000), edges])   # outside points clamp to the end pieces
-    for which in (0, 1):
-        jit = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit)
-        twin = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit, use_jit=False)
-        np.testing.assert_array_equal(jit[0], twin[0])
-        np.testing.assert_array_equal(jit[1], twin[1])

@@ -176,7 +176,9 @@ class NumericalInversion(Inversion):
         coef = np.zeros((x0.size, k + 1))
         coef[:, 1] = 1.0                                     # linear in s: x = x0 + w*s
         if np.any(ok_nodes):
-            coef[ok_nodes] = _interpolating_coefficients(s[ok_nodes], NODES_S)
+            # Newton's divided differences for all pieces at once (a compiled loop with a numpy
+            # twin), not one small linear solve per piece.
+            coef[ok_nodes] = kernels.interpolating_coefficients(s[ok_nodes], NODES_S)
         err = self._piece_errors(x0, w, total, coef)
         err = np.where(linear, total, err)
         err = np.where(~ok_nodes & ~linear, np.inf, err)
@@ -344,26 +346,6 @@ def _split(xa, xb, parts):
     end = np.where(geometric, end_g, a + (b - a) * (j + 1) / q)
     end = np.where(j == q - 1, b, end)
     return start, end
-
-
-def _interpolating_coefficients(s, values):
-    """Monomial coefficients of the polynomial through (s[i, j], values[j]) for every row i: Newton's
-    divided differences, then the Newton form multiplied out (Stoer & Bulirsch, Introduction to
-    Numerical Analysis, 3rd ed., 2.1.3), a few array operations for all pieces at once instead of one
-    small linear solve per piece. Rows need strictly increasing s."""
-    n, m = s.shape
-    d = np.broadcast_to(np.asarray(values, dtype=float), (n, m)).copy()
-    for j in range(1, m):
-        d[:, j:] = (d[:, j:] - d[:, j - 1:-1]) / (s[:, j:] - s[:, :-j])
-    coef = np.zeros((n, m))
-    coef[:, 0] = d[:, m - 1]
-    for j in range(m - 2, -1, -1):
-        # coef(s) <- coef(s) * (s - s_j) + d_j
-        shifted = np.zeros((n, m))
-        shifted[:, 1:] = coef[:, :-1]
-        coef = shifted - s[:, j:j + 1] * coef
-        coef[:, 0] += d[:, j]
-    return coef
 
 
 def _horner(coef, s):
