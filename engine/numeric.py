@@ -507,6 +507,15 @@ def invert_monotone(cdf: Callable, sf: Callable, u, mapping: SupportMap, pdf: Ca
 
 
 def bracket_grid(cdf, mapping: SupportMap):
+    """A grid of ages over the support (``mapped_grid``) and the cdf on it, made non-decreasing."""
+    t_grid = mapped_grid(mapping)
+    c_grid = np.maximum.accumulate(np.clip(np.asarray(cdf(t_grid), dtype=float), 0.0, 1.0))
+    return t_grid, c_grid
+
+
+def mapped_grid(mapping: SupportMap) -> np.ndarray:
+    """Ages at equal steps of the mapped coordinate, geometrically denser towards its ends (down to
+    2^-60 of its range), with the finite ends of the support themselves."""
     ylo, yhi = mapping.y_range
     span = yhi - ylo
     # Dense near the ends of the y-range, where infinite supports are compressed.
@@ -519,8 +528,7 @@ def bracket_grid(cdf, mapping: SupportMap):
         t_grid = np.concatenate([[lo], t_grid[t_grid > lo]])
     if np.isfinite(hi):
         t_grid = np.concatenate([t_grid[t_grid < hi], [hi]])
-    c_grid = np.maximum.accumulate(np.clip(np.asarray(cdf(t_grid), dtype=float), 0.0, 1.0))
-    return t_grid, c_grid
+    return t_grid
 
 
 def _polish(cdf, sf, pdf, upper, goal, a, b, max_iter: int = 80):

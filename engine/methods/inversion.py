@@ -17,7 +17,7 @@ import numpy as np
 from .. import kernels, table_checks
 from ..check import measure_u_error
 from ..errors import MethodNotApplicable
-from ..numeric import bracket_grid
+from ..numeric import mapped_grid
 from ..target import Target
 from .base import Sampler
 
@@ -124,24 +124,34 @@ class NumericalInversion(Inversion):
         Any end with at most ``cut`` beyond it will do (the mass actually cut is
         measured and counted in the u-error), so a scan of the coordinate grid
         replaces root solving. The same scan gives a point near the median, where
-        ``_delta_u`` changes from F to the survival function.
+        ``_delta_u`` changes from F to the survival function. F is evaluated on the
+        grid only for an infinite lower end or a finite support, R only for an
+        infinite upper end.
         """
         t = self.target
         cut = 0.05 * self.tolerance
         lo, hi = t.support
-        grid, F = bracket_grid(t.cdf, t.mapping)
-        finite = np.isfinite(grid)
-        grid, F = grid[finite], F[finite]
-        a, b = lo, hi
-        if not np.isfinite(lo):
-            a = float(grid[F <= cut][-1]) if np.any(F <= cut) else float(grid[0])
+        grid = mapped_grid(t.mapping)
+        a, b, lost = lo, hi, 0.0
+        median = None
+        if not np.isfinite(lo) or np.isfinite(hi):
+            F_raw = np.asarray(t.cdf(grid), dtype=float)
+            F = np.maximum.accumulate(np.clip(F_raw, 0.0, 1.0))
+            median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
+            if not np.isfinite(lo):
+                i = int(np.flatnonzero(F <= cut)[-1]) if np.any(F <= cut) else 0
+                a, lost = float(grid[i]), lost + float(F_raw[i])
         if not np.isfinite(hi):
-            S = t.sf(grid)
-            b = float(grid[S <= cut][0]) if np.any(S <= cut) else float(grid[-1])
+            S_raw = np.asarray(t.sf(grid), dtype=float)
+            S = np.minimum.accumulate(np.clip(S_raw, 0.0, 1.0))
+            i = int(np.flatnonzero(S <= cut)[0]) if np.any(S <= cut) else grid.size - 1
+            b, lost = float(grid[i]), lost + float(S_raw[i])
+            if median is None:
+                median = float(grid[int(np.argmax(S <= 0.5))] if np.any(S <= 0.5) else grid[-1])
         if not (np.isfinite(a) and np.isfinite(b) and a < b):
             raise MethodNotApplicable("method", "numerical inversion could not bound the model's tails")
-        self._median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
-        return a, b, float(t.cdf(a) + t.sf(b))
+        self._median = median
+        return a, b, lost
 
     def _initial_edges(self, a, b):
         """A first partition from the target's coordinate map (no root solving):
