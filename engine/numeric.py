@@ -315,13 +315,12 @@ class CumulativeIntegral:
     def series(self) -> PieceSeries:
         """The Chebyshev series of each piece (engine/piece_series.py), built on first use: a
         value of G then costs a short sum instead of a 10-point rule, where the series is resolved.
-        Pieces whose series is not resolved are split once, and the end pieces geometrically (a finite
-        lower end may hold a pole or a fractional power; the upper end is where R keeps small digits)."""
+        Pieces whose series is not resolved, or whose small masses near an end would drown in the
+        rounding of the sum, are cut once more (PieceSeries.build)."""
         if self._series is None:
             with np.errstate(all="ignore"):
                 series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
-                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
-                                           last_end=True)
+                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo))
             self._series = series
         return self._series
 

@@ -18,7 +18,7 @@ from . import kernels
 NODES = 24
 # Relative accuracy demanded of a tabulated value: the quadrature it replaces reaches about 1e-14.
 RELATIVE = 1e-14
-# Parts of a geometric split towards the lower end: the innermost one is 2^-40 of the piece.
+# Parts of a geometric cut towards an end of a piece: the innermost one is 2^-40 of the piece.
 GEOMETRIC_STEPS = 40
 
 _theta = np.pi * (np.arange(NODES) + 0.5) / NODES
@@ -64,22 +64,25 @@ class PieceSeries:
         self.limit = np.where(resolved, self.error / RELATIVE, np.inf)
 
     @classmethod
-    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
-              last_end: bool) -> "PieceSeries":
+    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool) -> "PieceSeries":
         """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
         and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
-        it over pieces. Pieces whose series is not resolved are split once (``refine``), and so are
-        the first and last piece where ``first_end`` / ``last_end`` ask for it; only the new parts are
-        evaluated and integrated."""
+        it over pieces. One refinement follows (``refine``): a piece whose series is not resolved is
+        cut in four; a piece whose mass below (above) it is too small to be summed with its own
+        series near its start (end) is cut geometrically towards that end, so that small masses keep
+        their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
+        a fractional power). Only the new parts are evaluated and integrated."""
         reference = pieces
         values = integrand(cls.nodes(edges[:-1], edges[1:]))
         series = cls(edges, values, reference, before, after)
-        split = ~series.resolved
-        split[0] |= first_end
-        split[-1] |= last_end
-        if not split.any():
+        mode = np.where(series.resolved, KEEP, QUARTERS)
+        mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
+        mode[series.resolved & (series.before < series.limit)] = TOWARDS_START
+        if first_end:
+            mode[0] = TOWARDS_START
+        if np.all(mode == KEEP):
             return series
-        edges, parent, new = refine(edges, split)
+        edges, parent, new = refine(edges, mode)
         kept = np.empty((parent.size, NODES))
         kept[~new] = values[parent[~new]]
         kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
@@ -88,13 +91,14 @@ class PieceSeries:
         fresh[new] = quadrature(edges[:-1][new], edges[1:][new])
         # Masses before and after each part: its whole piece's, plus its siblings' (summed within
         # the piece, so that a tail piece keeps its digits).
-        above, below = np.asarray(before, dtype=float)[parent], np.asarray(after, dtype=float)[parent]
+        mass_before, mass_after = series.before[parent], series.after[parent]
         for k in np.unique(parent[new]):
             rows = np.flatnonzero(parent == k)
             part = fresh[rows]
-            above[rows] += np.cumsum(part) - part
-            below[rows] += np.cumsum(part[::-1])[::-1] - part
-        return cls(edges, kept, fresh, above, below)
+            mass_before[rows] += np.cumsum(part) - part
+            mass_after[rows] += np.cumsum(part[::-1])[::-1] - part
+        # One round only: a second one was measured to double the pieces for a few points fewer.
+        return cls(edges, kept, fresh, mass_before, mass_after)
 
     @staticmethod
     def nodes(a, b):
@@ -108,25 +112,29 @@ class PieceSeries:
                                             self.after if upper else self.before, self.limit)
 
 
-def refine(edges, split):
-    """Split the pieces marked ``split``: the first and the last piece geometrically towards the
-    ends of the partition (where a fractional power, a pole or a thin tail makes the integrand
-    vary on ever smaller scales, and where small masses must keep their digits: each part is
-    smooth on its own scale and carries its own small integral), every other one into four.
-    Returns the new edges and, per new piece, the index of the piece it came from and whether
-    it is new."""
-    m = edges.size - 1
+KEEP, QUARTERS, TOWARDS_START, TOWARDS_END = 0, 1, 2, 3
+_GEOMETRIC = 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)
+# Where each kind of cut starts its parts, as fractions of the piece.
+_PARTS = {KEEP: np.array([0.0]), QUARTERS: np.arange(4) / 4.0,
+          TOWARDS_START: np.concatenate([[0.0], _GEOMETRIC]),
+          TOWARDS_END: np.concatenate([[0.0], 1.0 - _GEOMETRIC[::-1]])}
+
+
+def refine(edges, mode):
+    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END,
+    down to 2^-GEOMETRIC_STEPS of the piece: each part is then smooth on its own scale and carries its
+    own small mass). Returns the new edges and, per new piece, the index of the piece it came from
+    and whether it is new."""
     a, b = edges[:-1], edges[1:]
-    counts = np.where(split, 4, 1)
-    ends = [k for k in (0, m - 1) if split[k]]
-    for k in ends:
-        counts[k] = GEOMETRIC_STEPS + 1
-    parent = np.repeat(np.arange(m), counts)
-    j = np.arange(parent.size) - np.repeat(np.cumsum(counts) - counts, counts)
-    starts = a[parent] + (b - a)[parent] * j / counts[parent]
-    steps = np.concatenate([[0.0], 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)])
-    if 0 in ends:
-        starts[:counts[0]] = a[0] + (b[0] - a[0]) * steps
-    if m - 1 in ends and m > 1:
-        starts[-counts[-1]:] = b[-1] - (b[-1] - a[-1]) * 2.0 ** -np.arange(GEOMETRIC_STEPS + 1)
-    return np.concatenate([starts, edges[-1:]]), parent, split[parent]
+    fractions = [_PARTS[int(k)] for k in mode]
+    counts = np.array([f.size for f in fractions])
+    parent = np.repeat(np.arange(a.size), counts)
+    starts = a[parent] + (b - a)[parent] * np.concatenate(fractions)
+    if np.any(mode == TOWARDS_END):
+        # b - w * 2^-j directly: a + w * (1 - 2^-j) rounds the small steps away next to b.
+        end = np.flatnonzero(mode[parent] == TOWARDS_END)
+        j = np.concatenate([np.arange(GEOMETRIC_STEPS + 1)] * int(np.sum(mode == TOWARDS_END)))
+        starts[end] = np.where(j == 0, a[parent[end]], b[parent[end]] - (b - a)[parent[end]] * 2.0 ** -j)
+    keep = np.concatenate([[True], np.diff(starts) > 0])     # parts that rounded together are dropped
+    starts, parent = starts[keep], parent[keep]
+    return np.concatenate([starts, edges[-1:]]), parent, (mode != KEEP)[parent]
