@@ -92,11 +92,12 @@ class PieceSeries:
         # Masses before and after each part: its whole piece's, plus its siblings' (summed within
         # the piece, so that a tail piece keeps its digits).
         mass_before, mass_after = series.before[parent], series.after[parent]
-        for k in np.unique(parent[new]):
-            rows = np.flatnonzero(parent == k)
-            part = fresh[rows]
-            mass_before[rows] += np.cumsum(part) - part
-            mass_after[rows] += np.cumsum(part[::-1])[::-1] - part
+        starts = np.flatnonzero(np.concatenate([[True], np.diff(parent) > 0]))
+        ends = np.concatenate([starts[1:], [parent.size]])
+        for first, stop in zip(starts[new[starts]], ends[new[starts]]):
+            part = fresh[first:stop]
+            mass_before[first:stop] += np.cumsum(part) - part
+            mass_after[first:stop] += np.cumsum(part[::-1])[::-1] - part
         # One round only: a second one was measured to double the pieces for a few points fewer.
         return cls(edges, kept, fresh, mass_before, mass_after)
 
