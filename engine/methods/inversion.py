@@ -92,31 +92,29 @@ class NumericalInversion(Inversion):
                                                 "this model has atoms (use exact inversion)")
 
     # ---- set-up ------------------------------------------------------------------
-    def _delta_u(self, x0, x):
-        """F(x) - F(x0) for rows of x, and F(x0): from the survival function in the upper half
-        (where F's digits run out), each row evaluated by one of the two only, in one call each.
-        A row is upper when x0 lies at or beyond the model's median (found by ``_domain``)."""
+    def _delta_u(self, x0, x, base=None):
+        """F(x) - F(x0) for rows of x, and each row's base: F(x0), or R(x0) in the upper rows, where
+        the survival function keeps the digits that F runs out of. A row is upper when x0 lies at
+        or beyond the model's median (found by ``_domain``); each row is evaluated by one of the two
+        only, in one call each, and a base already known is not evaluated again."""
         t = self.target
         x0 = np.asarray(x0, dtype=float)
         x = np.asarray(x, dtype=float)
         upper_rows = x0 >= self._median
-        lower_rows = ~upper_rows
         out = np.empty(x.shape)
-        F_at = np.empty(x0.shape)
-        n_low = int(lower_rows.sum())
-        if n_low:
-            xl = x[lower_rows]
-            F = np.asarray(t.cdf(np.concatenate([x0[lower_rows], xl.ravel()])), dtype=float)
-            F0 = F[:n_low]
-            out[lower_rows] = F[n_low:].reshape(xl.shape) - F0[:, None]
-            F_at[lower_rows] = F0
-        if n_low < x0.size:
-            xu = x[upper_rows]
-            S = np.asarray(t.sf(np.concatenate([x0[upper_rows], xu.ravel()])), dtype=float)
-            S0 = S[:x0.size - n_low]
-            out[upper_rows] = S0[:, None] - S[S0.size:].reshape(xu.shape)
-            F_at[upper_rows] = 1.0 - S0
-        return out, F_at
+        known = base is not None
+        if not known:
+            base = np.empty(x0.shape)
+        for rows, fn, sign in ((~upper_rows, t.cdf, 1.0), (upper_rows, t.sf, -1.0)):
+            n = int(rows.sum())
+            if not n:
+                continue
+            xr = x[rows].ravel()
+            values = np.asarray(fn(xr if known else np.concatenate([x0[rows], xr])), dtype=float)
+            if not known:
+                base[rows], values = values[:n], values[n:]
+            out[rows] = sign * (values.reshape(-1, x.shape[1]) - base[rows][:, None])
+        return out, base
 
     def _domain(self) -> tuple[float, float, float]:
         """Computational domain: tails beyond mass ``cut`` are cut (DHL 2010, sec. 4).
@@ -176,8 +174,9 @@ class NumericalInversion(Inversion):
         k = ORDER
         w = (x1 - x0)
         xs = x0[:, None] + w[:, None] * NODES_S[None, :]
-        du, F_at = self._delta_u(x0, xs)
-        du[:, 0] = 0.0
+        du = np.zeros(xs.shape)
+        du[:, 1:], base = self._delta_u(x0, xs[:, 1:])      # the first node is x0 itself
+        F_at = np.where(x0 >= self._median, 1.0 - base, base)
         total = du[:, -1].copy()
         linear = total <= 0.5 * self.tolerance
         safe_total = np.where(total > 0, total, 1.0)
@@ -189,17 +188,18 @@ class NumericalInversion(Inversion):
             # Newton's divided differences for all pieces at once (a compiled loop with a numpy
             # twin), not one small linear solve per piece.
             coef[ok_nodes] = kernels.interpolating_coefficients(s[ok_nodes], NODES_S)
-        err = self._piece_errors(x0, w, total, coef)
+        err = self._piece_errors(x0, w, total, coef, base)
         err = np.where(linear, total, err)
         err = np.where(~ok_nodes & ~linear, np.inf, err)
         return coef, total, F_at, err
 
-    def _piece_errors(self, x0, w, total, coef):
-        """The u-error of each piece at TEST_S, inf where the polynomial is not increasing there."""
+    def _piece_errors(self, x0, w, total, coef, base):
+        """The u-error of each piece at TEST_S, inf where the polynomial is not increasing there
+        (``base``: each row's F(x0) or R(x0), from ``_delta_u``)."""
         x = x0[:, None] + w[:, None] * _horner(coef[:, None, :], TEST_S[None, :])
         xs = np.concatenate([x0[:, None], x, (x0 + w)[:, None]], axis=1)
         monotone = np.all(np.diff(xs, axis=1) >= 0, axis=1)         # TEST_S is sorted
-        du, _ = self._delta_u(x0, x)
+        du, _ = self._delta_u(x0, x, base)
         err = np.max(np.abs(du - total[:, None] * TEST_S[None, :]), axis=1)
         return np.where(monotone, err, np.inf)
 
