@@ -13,7 +13,7 @@ import time
 
 from lifedraw.engine.formula import forget_parsed
 
-REPEATS = 9
+REPEATS = 15
 
 
 def setup_rows(name, build_sampler, build_reference, repeats: int = REPEATS) -> list[dict]:
@@ -31,11 +31,12 @@ def setup_rows(name, build_sampler, build_reference, repeats: int = REPEATS) -> 
             times["ref"].append(time.perf_counter() - start)
     ref = statistics.median(times["ref"])
     rows = []
-    for kind, what in (("warm", "formula parsed before (a slider move: new numbers, same text)"),
+    for kind, what in (("warm", "formula parsed before, as after a slider move (every number computed afresh)"),
                        ("cold", "formula parsed for the first time")):
         ours = statistics.median(times[kind])
-        section = "1b. set-up time vs NumericalInversePolynomial" + (", cold" if kind == "cold" else "")
-        rows.append(dict(section=section, target=name, ours=ours * 1e3, ref=ref * 1e3, ratio=ours / ref,
+        rows.append(dict(section="1b. set-up time vs NumericalInversePolynomial",
+                         target=name + (", cold" if kind == "cold" else ""), ours=ours * 1e3, ref=ref * 1e3,
+                         ratio=ours / ref,
                          goal=-1.0, note=f"milliseconds, model built from its formula plus the sampler's "
                                          f"set-up; {what}; median of {repeats} alternating runs"))
     return rows
