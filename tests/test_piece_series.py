@@ -49,7 +49,7 @@ class Root:
         return np.where(rb > 0, mass, 0.0)
 
 
-def test_the_series_of_a_smooth_integrand_give_its_integral_to_rounding():
+def test_the_series_of_a_smooth_integrand_gives_its_integral_to_rounding():
     edges = np.linspace(-1.0, 1.0, 9)
     series = _series_of(Exp(), edges)
     assert series.resolved.all()
