@@ -622,6 +622,22 @@ def _derive(node):
 
 # --- The public face ------------------------------------------------------------------------
 
+#: How many parsed formulas ``Formula.parse`` keeps (each a few kilobytes of tree and closures).
+PARSED_KEPT = 256
+
+
+@functools.lru_cache(maxsize=PARSED_KEPT)
+def _parsed(cls, text: str, params: tuple, field: str):
+    # Formulas are immutable once built (tree, closures, text), so one object can serve every
+    # model written with the same text; errors are raised, never kept.
+    return cls._parse_new(text, params, field)
+
+
+def forget_parsed() -> None:
+    """Empty the store of parsed formulas: the next model of every text starts cold (for timings)."""
+    _parsed.cache_clear()
+
+
 class Formula:
     """A function of age ``t`` typed by a user, checked, compiled to vectorised numpy.
 
@@ -644,17 +660,24 @@ class Formula:
         self.field = field
         self.text = _pretty(tree) if text is None else text
         self._fn = _compile(tree)
+        self._derivative: Formula | None = None
 
     @classmethod
     def parse(cls, text: str, params=(), field: str = "formula") -> "Formula":
+        """The checked, compiled formula. A formula depends only on its text, its parameter names
+        and its field, never on parameter values, so the last PARSED_KEPT of them are kept: a
+        slider that moves a parameter rebuilds the model with the same Formula object."""
         if not isinstance(text, str):
             raise ModelError(field, f"must be text, got {type(text).__name__}")
+        return _parsed(cls, text, _check_params(params, field), field)
+
+    @classmethod
+    def _parse_new(cls, text: str, params: tuple, field: str) -> "Formula":
         if not text.strip():
             raise ModelError(field, "formula is empty")
         if len(text) > MAX_LENGTH:
             raise ModelError(field, f"formula is {len(text)} characters long; the limit "
                                     f"is {MAX_LENGTH}")
-        params = _check_params(params, field)
         tree = _Reader(text, params, field).read()
         size = tree_size(tree)
         if size > MAX_NODES:
@@ -670,17 +693,19 @@ class Formula:
         return lambda t: self._run(t, dict(env))
 
     def derivative(self) -> "Formula":
-        """d/dt as a new Formula (exact, by rule; only trivial simplification)."""
-        try:
-            tree = _derive(self._tree)
-        except RecursionError:
-            tree = None
-        size = tree_size(tree) if tree is not None else MAX_NODES + 1
-        if size > MAX_NODES:
-            raise ModelError(self.field, f"the exact derivative of this formula grows to more than "
-                                         f"{MAX_NODES:,} terms (deeply nested functions); simplify the "
-                                         "formula, or use a method that needs no derivative (inversion)")
-        return Formula(tree, self.params, self.field)
+        """d/dt as a new Formula (exact, by rule; only trivial simplification), made once per formula."""
+        if self._derivative is None:
+            try:
+                tree = _derive(self._tree)
+            except RecursionError:
+                tree = None
+            size = tree_size(tree) if tree is not None else MAX_NODES + 1
+            if size > MAX_NODES:
+                raise ModelError(self.field, f"the exact derivative of this formula grows to more than "
+                                             f"{MAX_NODES:,} terms (deeply nested functions); simplify the "
+                                             "formula, or use a method that needs no derivative (inversion)")
+            self._derivative = Formula(tree, self.params, self.field)
+        return self._derivative
 
     def uses_t(self) -> bool:
         return _uses_t(self._tree)

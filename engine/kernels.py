@@ -451,3 +451,147 @@ def window_pass(x, mean, times, lo, hi, room, *, use_jit=True):
     fn = _window_pass_jit if use_jit and _window_pass_jit is not None else _window_pass_numpy
     m2, bad, in_windows = fn(x, float(mean), times, lo, hi, survivors, below, inside, kept)
     return float(m2), int(bad), survivors, below, inside, kept[:min(int(in_windows), kept.size)], int(in_windows)
+
+
+# ---- Chebyshev sums of a piecewise integral (engine/piece_series.py) -----------------------
+#
+# For each point y: its piece k (binary search in edges), x = its place in the piece on [-1, 1],
+# the piece's series sum_m table[k, which, m] T_m(x) by Clenshaw's recurrence (ATAP ch. 3), plus
+# base[k]; trusted where the result is at least limit[k] (below it the rounding of the sum is too
+# large beside the value: the caller integrates those points itself).
+
+def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
+    n = y.shape[0]
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
+    top = table.shape[2] - 1
+    piece = np.empty(n, dtype=np.int64)
+    place = np.empty(n)
+    for i in range(n):
+        yi = y[i]
+        k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
+        k = min(max(k, 0), m - 1)
+        a = edges[k]
+        b = edges[k + 1]
+        piece[i] = k
+        # A piece of zero width (edges that rounded together) has no inside: its middle, x = 0.
+        place[i] = min(max((2.0 * yi - a - b) / (b - a), -1.0), 1.0) if b > a else 0.0
+    # Four points at a time: four independent recurrences keep the pipeline full
+    # (one recurrence alone waits on its own previous step).
+    quads = n - n % 4
+    for i in range(0, quads, 4):
+        p0, p1, p2, p3 = piece[i], piece[i + 1], piece[i + 2], piece[i + 3]
+        x0, x1, x2, x3 = place[i], place[i + 1], place[i + 2], place[i + 3]
+        a0 = a1 = a2 = a3 = 0.0
+        c0 = c1 = c2 = c3 = 0.0
+        for j in range(top, 0, -1):
+            a0, c0 = table[p0, which, j] + 2.0 * x0 * a0 - c0, a0
+            a1, c1 = table[p1, which, j] + 2.0 * x1 * a1 - c1, a1
+            a2, c2 = table[p2, which, j] + 2.0 * x2 * a2 - c2, a2
+            a3, c3 = table[p3, which, j] + 2.0 * x3 * a3 - c3, a3
+        out[i] = base[p0] + (table[p0, which, 0] + x0 * a0 - c0)
+        out[i + 1] = base[p1] + (table[p1, which, 0] + x1 * a1 - c1)
+        out[i + 2] = base[p2] + (table[p2, which, 0] + x2 * a2 - c2)
+        out[i + 3] = base[p3] + (table[p3, which, 0] + x3 * a3 - c3)
+    for i in range(quads, n):
+        p = piece[i]
+        x = place[i]
+        b1 = 0.0
+        b2 = 0.0
+        for j in range(top, 0, -1):
+            b1, b2 = table[p, which, j] + 2.0 * x * b1 - b2, b1
+        out[i] = base[p] + (table[p, which, 0] + x * b1 - b2)
+    for i in range(n):
+        trusted[i] = abs(out[i]) >= limit[piece[i]]
+    return out
+
+
+_chebyshev_piece_sums_jit = _jit(_chebyshev_piece_sums_py)
+
+
+def _chebyshev_piece_sums_numpy(y, edges, table, which, base, limit, out, trusted):
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
+    k = np.minimum(np.maximum(np.searchsorted(edges[:m + 1], y, side="right") - 1, 0), m - 1)
+    a, b = edges[k], edges[k + 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x = np.where(b > a, np.minimum(np.maximum((2.0 * y - a - b) / (b - a), -1.0), 1.0), 0.0)
+    rows = table[k, which]
+    b1 = np.zeros_like(y)
+    b2 = np.zeros_like(y)
+    for j in range(table.shape[2] - 1, 0, -1):
+        b1, b2 = rows[:, j] + 2.0 * x * b1 - b2, b1
+    np.add(base[k], rows[:, 0] + x * b1 - b2, out=out)
+    np.greater_equal(np.abs(out), limit[k], out=trusted)
+    return out
+
+
+def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
+    """(values, trusted) for the points y of a piecewise Chebyshev table; see above."""
+    y = np.ascontiguousarray(np.ravel(y), dtype=np.float64)
+    out = np.empty_like(y)
+    trusted = np.empty(y.shape, dtype=np.bool_)
+    args = (y, np.ascontiguousarray(edges, dtype=np.float64), np.ascontiguousarray(table, dtype=np.float64),
+            int(which), np.ascontiguousarray(base, dtype=np.float64), np.ascontiguousarray(limit, dtype=np.float64),
+            out, trusted)
+    if use_jit and _chebyshev_piece_sums_jit is not None:
+        _chebyshev_piece_sums_jit(*args)
+    else:
+        _chebyshev_piece_sums_numpy(*args)
+    return out, trusted
+
+
+# ---- interpolating polynomials of the inverse-CDF pieces (engine/methods/inversion.py) ---------
+#
+# Row by row: Newton's divided differences of (s[i, j], values[j]), then the Newton form multiplied
+# out into monomial coefficients (Stoer & Bulirsch, Introduction to Numerical Analysis, 3rd ed., 2.1.3).
+
+def _interpolating_coefficients_py(s, values, out):
+    n, m = s.shape
+    d = np.empty(m)
+    c = np.empty(m)
+    for i in range(n):
+        for j in range(m):
+            d[j] = values[j]
+        for j in range(1, m):
+            for r in range(m - 1, j - 1, -1):
+                d[r] = (d[r] - d[r - 1]) / (s[i, r] - s[i, r - j])
+        for j in range(m):
+            c[j] = 0.0
+        c[0] = d[m - 1]
+        for j in range(m - 2, -1, -1):
+            # c(s) <- c(s) * (s - s_j) + d_j
+            for r in range(m - 1, 0, -1):
+                c[r] = c[r - 1] - s[i, j] * c[r]
+            c[0] = d[j] - s[i, j] * c[0]
+        for j in range(m):
+            out[i, j] = c[j]
+    return out
+
+
+_interpolating_coefficients_jit = _jit(_interpolating_coefficients_py)
+
+
+def _interpolating_coefficients_numpy(s, values, out):
+    n, m = s.shape
+    d = np.broadcast_to(values, (n, m)).copy()
+    for j in range(1, m):
+        d[:, j:] = (d[:, j:] - d[:, j - 1:-1]) / (s[:, j:] - s[:, :-j])
+    c = np.zeros((n, m))
+    c[:, 0] = d[:, m - 1]
+    for j in range(m - 2, -1, -1):
+        shifted = np.zeros((n, m))
+        shifted[:, 1:] = c[:, :-1]
+        c = shifted - s[:, j:j + 1] * c
+        c[:, 0] += d[:, j]
+    out[:] = c
+    return out
+
+
+def interpolating_coefficients(s, values, *, use_jit=True):
+    """Monomial coefficients of the polynomial through (s[i, j], values[j]) for every row i
+    (rows of strictly increasing s; see above)."""
+    s = np.ascontiguousarray(s, dtype=np.float64)
+    values = np.ascontiguousarray(values, dtype=np.float64)
+    out = np.empty(s.shape)
+    if use_jit and _interpolating_coefficients_jit is not None:
+        return _interpolating_coefficients_jit(s, values, out)
+    return _interpolating_coefficients_numpy(s, values, out)

@@ -7,6 +7,7 @@ Chandrupatla's bracketing method (Chandrupatla 1997, Adv. Eng. Software 28(3)).
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from typing import Callable
 
@@ -14,9 +15,23 @@ import numpy as np
 from scipy import special
 
 from .errors import ModelError
+from .piece_series import PieceSeries
 
 _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(10)
+# Parts of a graded split of the first piece at a finite lower end (the smallest is 2^-8 of it).
+GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
+
+
+@functools.lru_cache(maxsize=64)
+def _jacobi_rule(alpha: float):
+    """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
+    [-1, 1], s = (1+x)/2); kept by exponent, as the same model is often rebuilt."""
+    x, w = special.roots_jacobi(12, 0.0, alpha)
+    nodes, weights = (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0)
+    nodes.setflags(write=False)
+    weights.setflags(write=False)
+    return nodes, weights, alpha
 
 
 @dataclass(frozen=True)
@@ -284,10 +299,7 @@ class CumulativeIntegral:
             width = (mapping.hi - mapping.lo) if far else mapping.scale
             alpha = lower_end_exponent(integrand, mapping.lo, width)
             if alpha is not None and alpha > 0 and abs(alpha - round(alpha)) > 1e-9:
-                # Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the
-                # (1-x)**0 (1+x)**alpha rule on [-1, 1], s = (1+x)/2).
-                x, w = special.roots_jacobi(12, 0.0, alpha)
-                self._jacobi = ((1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha)
+                self._jacobi = _jacobi_rule(alpha)
         inner = [float(mapping.to_y(b)) for b in breakpoints
                  if np.isfinite(b) and mapping.lo < b < mapping.hi]
         grid = np.unique(np.concatenate([np.linspace(ylo, yhi, 65), inner]))
@@ -297,6 +309,20 @@ class CumulativeIntegral:
         self.total = float(self.cumulative[-1])
         # Mass after each piece, summed from the top so the far tail keeps its digits.
         self._after = np.concatenate([np.cumsum(self.pieces[::-1])[::-1][1:], [0.0]])
+        self._floor = 1e-17 * float(np.sum(np.abs(self.pieces)))
+        self._series: PieceSeries | None = None
+
+    def series(self) -> PieceSeries:
+        """The Chebyshev series of each piece (engine/piece_series.py), built on first use: a
+        value of G then costs a short sum instead of a 10-point rule, where the series is resolved.
+        Pieces whose series is not resolved, or whose small masses near an end would drown in the
+        rounding of the sum, are cut once more (PieceSeries.build)."""
+        if self._series is None:
+            with np.errstate(all="ignore"):
+                series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
+                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo))
+            self._series = series
+        return self._series
 
     def _g_of_y(self, y):
         t = self.mapping.to_t(y)
@@ -337,7 +363,8 @@ class CumulativeIntegral:
         while a.size:
             rounds += 1
             m = 0.5 * (a + b)
-            left, right = self._rule(a, m), self._rule(m, b)
+            # Both halves of every piece in one pass over the integrand.
+            left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
             halves = left + right
             if not np.all(np.isfinite(halves)):
                 raise ModelError(self.field, "the integral is not finite (a non-integrable "
@@ -353,6 +380,19 @@ class CumulativeIntegral:
             a_new = np.concatenate([a[keep], m[keep]])
             b_new = np.concatenate([m[keep], b[keep]])
             whole = np.concatenate([left[keep], right[keep]])
+            if rounds > 1 and np.isfinite(self.mapping.lo):
+                # The piece at a finite lower end failing again: the integrand is not smooth there
+                # (a power of the age), and halving it would take a round per binary digit. Split it
+                # geometrically instead, towards the end, as quadrature near an end singularity does
+                # (Davis & Rabinowitz 2nd ed., 2.12.7 on graded meshes).
+                first = np.flatnonzero(a_new == self._ylo)
+                if first.size:
+                    i = int(first[0])
+                    cuts = a_new[i] + (b_new[i] - a_new[i]) * 2.0 ** -np.arange(GRADED_STEPS, 0, -1)
+                    starts, ends = np.concatenate([[a_new[i]], cuts]), np.concatenate([cuts, [b_new[i]]])
+                    a_new = np.concatenate([np.delete(a_new, i), starts])
+                    b_new = np.concatenate([np.delete(b_new, i), ends])
+                    whole = np.concatenate([np.delete(whole, i), self._rule(starts, ends)])
             a, b = a_new, b_new
             pieces = sum(x.size for x in done_a) + a.size
             if pieces > self.max_pieces or rounds > 2000:
@@ -366,21 +406,30 @@ class CumulativeIntegral:
         edges = np.concatenate([a, b[-1:]])
         return edges, v
 
-    def _locate(self, t):
-        y = self.mapping.to_y(np.asarray(t, dtype=float)).ravel()
-        k = np.clip(np.searchsorted(self.edges, y, side="right") - 1, 0, self.pieces.size - 1)
-        return y, k
-
     def _partial(self, a, b):
         with np.errstate(all="ignore"):
             value = self._rule(a, np.maximum(a, b))
         return np.where(b > a, value, 0.0)
 
+    def _piece_sums(self, y, upper: bool):
+        """The mass below (or above) y: from the series where that is trusted, else the mass
+        before (after) y's piece plus the 10-point rule on the part of the piece below (above) y."""
+        value, trusted = self.series().sums(y, upper)
+        rest = np.flatnonzero(~trusted)
+        if rest.size:
+            yr = y[rest]
+            kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
+            if upper:
+                value[rest] = self._after[kr] + self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
+            else:
+                value[rest] = self.cumulative[kr] + self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
+        return value
+
     def __call__(self, t):
         """G(t), vectorised, clipped to [0, total] outside the support."""
         t = np.asarray(t, dtype=float)
-        y, k = self._locate(t)
-        value = self.cumulative[k] + self._partial(self.edges[k], np.minimum(y, self.edges[k + 1]))
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper=False)
         value = np.where(y >= self.edges[-1], self.total, value)
         value = np.where(y <= self.edges[0], 0.0, value)
         return value.reshape(t.shape)
@@ -388,8 +437,8 @@ class CumulativeIntegral:
     def upper(self, t):
         """Integral from t to the upper end, without cancellation in the tail."""
         t = np.asarray(t, dtype=float)
-        y, k = self._locate(t)
-        value = self._after[k] + self._partial(np.maximum(y, self.edges[k]), self.edges[k + 1])
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper=True)
         value = np.where(y >= self.edges[-1], 0.0, value)
         value = np.where(y <= self.edges[0], self.total, value)
         return value.reshape(t.shape)
@@ -457,6 +506,15 @@ def invert_monotone(cdf: Callable, sf: Callable, u, mapping: SupportMap, pdf: Ca
 
 
 def bracket_grid(cdf, mapping: SupportMap):
+    """A grid of ages over the support (``mapped_grid``) and the cdf on it, made non-decreasing."""
+    t_grid = mapped_grid(mapping)
+    c_grid = np.maximum.accumulate(np.clip(np.asarray(cdf(t_grid), dtype=float), 0.0, 1.0))
+    return t_grid, c_grid
+
+
+def mapped_grid(mapping: SupportMap) -> np.ndarray:
+    """Ages at equal steps of the mapped coordinate, geometrically denser towards its ends (down to
+    2^-60 of its range), with the finite ends of the support themselves."""
     ylo, yhi = mapping.y_range
     span = yhi - ylo
     # Dense near the ends of the y-range, where infinite supports are compressed.
@@ -469,8 +527,7 @@ def bracket_grid(cdf, mapping: SupportMap):
         t_grid = np.concatenate([[lo], t_grid[t_grid > lo]])
     if np.isfinite(hi):
         t_grid = np.concatenate([t_grid[t_grid < hi], [hi]])
-    c_grid = np.maximum.accumulate(np.clip(np.asarray(cdf(t_grid), dtype=float), 0.0, 1.0))
-    return t_grid, c_grid
+    return t_grid
 
 
 def _polish(cdf, sf, pdf, upper, goal, a, b, max_iter: int = 80):

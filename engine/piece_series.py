@@ -1,0 +1,141 @@
+"""Chebyshev series of a piecewise integral, so that G(y) at many points costs a short sum, not a quadrature.
+Interpolation at Chebyshev points, coefficients by the discrete cosine sums, term-by-term integration and
+Clenshaw's recurrence (Trefethen, Approximation Theory and Approximation Practice, 2013, ch. 3, 8, 19).
+
+On each piece [a, b] of a partition the integrand is interpolated at ``NODES`` Chebyshev points; the
+series' integrals from a and to b are kept. A piece is tabulated only if the series is resolved (its last
+coefficients are at rounding level) and agrees with the piece's adaptive quadrature; an evaluation is
+trusted only where the rounding of the sum is small beside the value asked for. Everything else stays
+with the caller's quadrature, so the series can make evaluations cheaper but never less accurate.
+"""
+from __future__ import annotations
+
+import numpy as np
+from numpy.polynomial import chebyshev
+
+from . import kernels
+
+NODES = 24
+# Relative accuracy demanded of a tabulated value: the quadrature it replaces reaches about 1e-14.
+RELATIVE = 1e-14
+# Parts of a geometric cut towards an end of a piece: the innermost one is 2^-40 of the piece.
+GEOMETRIC_STEPS = 40
+
+_theta = np.pi * (np.arange(NODES) + 0.5) / NODES
+#: Chebyshev points of the first kind on [-1, 1] (ATAP ch. 3 uses the second kind; the first kind
+#: never touches an end of the piece, where a mapped integrand may be a limit only).
+POINTS = np.cos(_theta)
+# c = values @ _TO_COEF: c_m = (2/N) sum_j f(x_j) cos(m theta_j), c_0 halved (ATAP ch. 3 for the first kind).
+_TO_COEF = (2.0 / NODES) * np.cos(np.outer(_theta, np.arange(NODES)))
+_TO_COEF[:, 0] *= 0.5
+# Integrals from -1 (lower) and to +1 (upper) as coefficient maps: chebint of each unit series.
+_LOWER = np.stack([chebyshev.chebint(np.eye(NODES)[m], lbnd=-1.0) for m in range(NODES)])
+_UPPER = -np.stack([chebyshev.chebint(np.eye(NODES)[m], lbnd=1.0) for m in range(NODES)])
+
+
+class PieceSeries:
+    """Integrals of one integrand over parts of each piece [edges[k], edges[k+1]], as Chebyshev series.
+
+    ``values`` holds the integrand at ``nodes(edges)`` (pieces x NODES), ``reference`` an adaptive
+    quadrature of each whole piece, ``before`` and ``after`` the mass below and above each piece.
+    """
+
+    def __init__(self, edges, values, reference, before, after):
+        half = 0.5 * np.diff(edges)
+        coef = values @ _TO_COEF
+        lower = (coef @ _LOWER) * half[:, None]
+        upper = (coef @ _UPPER) * half[:, None]
+        size = np.sum(np.abs(lower), axis=1)
+        # Resolved: the last three coefficients of the integral at rounding level (ATAP ch. 8, a
+        # chebfun-style test), and the series' whole-piece integral equal to the quadrature's.
+        tail = np.sum(np.abs(lower[:, -3:]), axis=1)
+        whole = np.sum(lower, axis=1)                              # the series at x = 1
+        scale = np.abs(reference)
+        with np.errstate(invalid="ignore"):
+            resolved = ((tail <= 1e-15 * scale) & (np.abs(whole - reference) <= 1e-14 * scale)
+                        & np.all(np.isfinite(coef), axis=1))
+        self.edges = np.asarray(edges, dtype=float)
+        self.resolved = resolved
+        self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
+        self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
+        # What the series may be off by: its truncation plus the rounding of a sum of such terms;
+        # a value is trusted where that is at most RELATIVE of it (never on an unresolved piece).
+        self.error = tail + 4e-16 * size
+        self.limit = np.where(resolved, self.error / RELATIVE, np.inf)
+
+    @classmethod
+    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool) -> "PieceSeries":
+        """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
+        and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
+        it over pieces. One refinement follows (``refine``): a piece whose series is not resolved is
+        cut in four; a piece whose mass below (above) it is too small to be summed with its own
+        series near its start (end) is cut geometrically towards that end, so that small masses keep
+        their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
+        a fractional power). Only the new parts are evaluated and integrated."""
+        reference = pieces
+        values = integrand(cls.nodes(edges[:-1], edges[1:]))
+        series = cls(edges, values, reference, before, after)
+        mode = np.where(series.resolved, KEEP, QUARTERS)
+        mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
+        mode[series.resolved & (series.before < series.limit)] = TOWARDS_START
+        if first_end:
+            mode[0] = TOWARDS_START
+        if np.all(mode == KEEP):
+            return series
+        edges, parent, new = refine(edges, mode)
+        kept = np.empty((parent.size, NODES))
+        kept[~new] = values[parent[~new]]
+        kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
+        fresh = np.empty(parent.size)
+        fresh[~new] = reference[parent[~new]]
+        fresh[new] = quadrature(edges[:-1][new], edges[1:][new])
+        # Masses before and after each part: its whole piece's, plus its siblings' (summed within
+        # the piece, so that a tail piece keeps its digits).
+        mass_before, mass_after = series.before[parent], series.after[parent]
+        starts = np.flatnonzero(np.concatenate([[True], np.diff(parent) > 0]))
+        ends = np.concatenate([starts[1:], [parent.size]])
+        for first, stop in zip(starts[new[starts]], ends[new[starts]]):
+            part = fresh[first:stop]
+            mass_before[first:stop] += np.cumsum(part) - part
+            mass_after[first:stop] += np.cumsum(part[::-1])[::-1] - part
+        # One round only: a second one was measured to double the pieces for a few points fewer.
+        return cls(edges, kept, fresh, mass_before, mass_after)
+
+    @staticmethod
+    def nodes(a, b):
+        """Where the integrand is needed: NODES Chebyshev points on each piece [a_k, b_k]."""
+        return 0.5 * (a + b)[:, None] + 0.5 * (b - a)[:, None] * POINTS[None, :]
+
+    def sums(self, y, upper: bool):
+        """The mass below y (or above it, ``upper``), and where the series can be trusted for it
+        (False: the caller's quadrature must supply that point). y inside [edges[0], edges[-1]]."""
+        return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
+                                            self.after if upper else self.before, self.limit)
+
+
+KEEP, QUARTERS, TOWARDS_START, TOWARDS_END = 0, 1, 2, 3
+_GEOMETRIC = 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)
+# Where each kind of cut starts its parts, as fractions of the piece.
+_PARTS = {KEEP: np.array([0.0]), QUARTERS: np.arange(4) / 4.0,
+          TOWARDS_START: np.concatenate([[0.0], _GEOMETRIC]),
+          TOWARDS_END: np.concatenate([[0.0], 1.0 - _GEOMETRIC[::-1]])}
+
+
+def refine(edges, mode):
+    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END,
+    down to 2^-GEOMETRIC_STEPS of the piece: each part is then smooth on its own scale and carries its
+    own small mass). Returns the new edges and, per new piece, the index of the piece it came from
+    and whether it is new."""
+    a, b = edges[:-1], edges[1:]
+    fractions = [_PARTS[int(k)] for k in mode]
+    counts = np.array([f.size for f in fractions])
+    parent = np.repeat(np.arange(a.size), counts)
+    starts = a[parent] + (b - a)[parent] * np.concatenate(fractions)
+    if np.any(mode == TOWARDS_END):
+        # b - w * 2^-j directly: a + w * (1 - 2^-j) rounds the small steps away next to b.
+        end = np.flatnonzero(mode[parent] == TOWARDS_END)
+        j = np.concatenate([np.arange(GEOMETRIC_STEPS + 1)] * int(np.sum(mode == TOWARDS_END)))
+        starts[end] = np.where(j == 0, a[parent[end]], b[parent[end]] - (b - a)[parent[end]] * 2.0 ** -j)
+    keep = np.concatenate([[True], np.diff(starts) > 0])     # parts that rounded together are dropped
+    starts, parent = starts[keep], parent[keep]
+    return np.concatenate([starts, edges[-1:]]), parent, (mode != KEEP)[parent]
