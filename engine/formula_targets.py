@@ -39,6 +39,12 @@ def _check_params(params: Mapping[str, float]) -> dict[str, float]:
     return {str(k): finite_number(str(k), v) for k, v in params.items()}
 
 
+def _inside_from_start(t: np.ndarray, support) -> bool:
+    """True for a 1-d array of ages in [lo, hi) with no NaN: where ``cdf_or_sf`` needs no masking."""
+    lo, hi = support
+    return t.ndim == 1 and bool(np.all((t >= lo) & (t < hi)))
+
+
 def _probe_points(lo: float, hi: float) -> np.ndarray:
     """Ages spread over the support (log-spaced next to the ends) for validity probes."""
     fractions = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33),
@@ -265,6 +271,14 @@ class DensityTarget(_FormulaTarget):
     def _sf(self, t):
         return self.integral.upper(t) / self.area
 
+    def cdf_or_sf(self, t, upper):
+        t = np.asarray(t, dtype=float)
+        if not _inside_from_start(t, self.support):
+            return super().cdf_or_sf(t, upper)
+        # One pass of the integral, each point on its own side (at lo: F = 0, R = total/area = 1).
+        with np.errstate(all="ignore"):
+            return self.integral.sided(t, upper) / self.area
+
     def _dpdf_exact(self):
         """f'(t) as a vectorised function (exact, from the formula's derivative)."""
         d = self.expression.derivative().bind(**self.params)
@@ -350,6 +364,15 @@ class HazardTarget(_FormulaTarget):
                 return math.inf
         total = CumulativeIntegral(weight, self.mapping, rtol=1e-13, field="formula").total
         return float(lo**k + total) if np.isfinite(total) else math.inf
+
+    def cdf_or_sf(self, t, upper):
+        t = np.asarray(t, dtype=float)
+        if not _inside_from_start(t, self.support):
+            return super().cdf_or_sf(t, upper)
+        # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there).
+        with np.errstate(all="ignore"):
+            H = self.H(t)
+            return np.where(upper, np.exp(-H), -np.expm1(-H))
 
     def _sf(self, t):
         return np.exp(-self.H(t))

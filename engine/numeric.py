@@ -411,18 +411,19 @@ class CumulativeIntegral:
             value = self._rule(a, np.maximum(a, b))
         return np.where(b > a, value, 0.0)
 
-    def _piece_sums(self, y, upper: bool):
-        """The mass below (or above) y: from the series where that is trusted, else the mass
-        before (after) y's piece plus the 10-point rule on the part of the piece below (above) y."""
+    def _piece_sums(self, y, upper):
+        """The mass below (or above, where ``upper``: one flag or one per point) y: from the series
+        where that is trusted, else the mass before (after) y's piece plus the 10-point rule on the
+        part of the piece below (above) y, all such points in one pass."""
         value, trusted = self.series().sums(y, upper)
         rest = np.flatnonzero(~trusted)
         if rest.size:
             yr = y[rest]
             kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
-            if upper:
-                value[rest] = self._after[kr] + self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
-            else:
-                value[rest] = self.cumulative[kr] + self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
+            up = np.broadcast_to(upper, y.shape)[rest]
+            start = np.where(up, np.maximum(yr, self.edges[kr]), self.edges[kr])
+            end = np.where(up, self.edges[kr + 1], np.minimum(yr, self.edges[kr + 1]))
+            value[rest] = np.where(up, self._after[kr], self.cumulative[kr]) + self._partial(start, end)
         return value
 
     def __call__(self, t):
@@ -441,6 +442,17 @@ class CumulativeIntegral:
         value = self._piece_sums(y, upper=True)
         value = np.where(y >= self.edges[-1], 0.0, value)
         value = np.where(y <= self.edges[0], self.total, value)
+        return value.reshape(t.shape)
+
+    def sided(self, t, upper):
+        """The integral below t where ``upper`` is False and above t where it is True, in one pass
+        (each point on the side that keeps its digits: ``upper`` near the end, below it near the start)."""
+        t = np.asarray(t, dtype=float)
+        upper = np.broadcast_to(np.asarray(upper, dtype=bool), t.shape).ravel()
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper)
+        value = np.where(y >= self.edges[-1], np.where(upper, 0.0, self.total), value)
+        value = np.where(y <= self.edges[0], np.where(upper, self.total, 0.0), value)
         return value.reshape(t.shape)
 
 

@@ -57,6 +57,7 @@ class PieceSeries:
         self.edges = np.asarray(edges, dtype=float)
         self.resolved = resolved
         self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
+        self.masses = np.stack([self.before, self.after])          # 2 x pieces: below and above each
         self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
         # What the series may be off by: its truncation plus the rounding of a sum of such terms;
         # a value is trusted where that is at most RELATIVE of it (never on an unresolved piece).
@@ -106,11 +107,14 @@ class PieceSeries:
         """Where the integrand is needed: NODES Chebyshev points on each piece [a_k, b_k]."""
         return 0.5 * (a + b)[:, None] + 0.5 * (b - a)[:, None] * POINTS[None, :]
 
-    def sums(self, y, upper: bool):
-        """The mass below y (or above it, ``upper``), and where the series can be trusted for it
-        (False: the caller's quadrature must supply that point). y inside [edges[0], edges[-1]]."""
-        return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
-                                            self.after if upper else self.before, self.limit)
+    def sums(self, y, upper):
+        """The mass below y (or above it, where ``upper``: one flag for all points or one per point),
+        and where the series can be trusted for it (False: the caller's quadrature must supply that
+        point). y inside [edges[0], edges[-1]]."""
+        if np.ndim(upper) == 0:
+            return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
+                                                self.after if upper else self.before, self.limit)
+        return kernels.chebyshev_piece_sums(y, self.edges, self.table, upper, self.masses, self.limit)
 
 
 KEEP, QUARTERS, TOWARDS_START, TOWARDS_END = 0, 1, 2, 3

@@ -92,29 +92,17 @@ class NumericalInversion(Inversion):
                                                 "this model has atoms (use exact inversion)")
 
     # ---- set-up ------------------------------------------------------------------
-    def _delta_u(self, x0, x, base=None):
-        """F(x) - F(x0) for rows of x, and each row's base: F(x0), or R(x0) in the upper rows, where
-        the survival function keeps the digits that F runs out of. A row is upper when x0 lies at
-        or beyond the model's median (found by ``_domain``); each row is evaluated by one of the two
-        only, in one call each, and a base already known is not evaluated again."""
-        t = self.target
-        x0 = np.asarray(x0, dtype=float)
-        x = np.asarray(x, dtype=float)
-        upper_rows = x0 >= self._median
-        out = np.empty(x.shape)
-        known = base is not None
-        if not known:
-            base = np.empty(x0.shape)
-        for rows, fn, sign in ((~upper_rows, t.cdf, 1.0), (upper_rows, t.sf, -1.0)):
-            n = int(rows.sum())
-            if not n:
-                continue
-            xr = x[rows].ravel()
-            values = np.asarray(fn(xr if known else np.concatenate([x0[rows], xr])), dtype=float)
-            if not known:
-                base[rows], values = values[:n], values[n:]
-            out[rows] = sign * (values.reshape(-1, x.shape[1]) - base[rows][:, None])
-        return out, base
+    def _delta_u(self, upper, x, base=None):
+        """F(x) - F(x_0) for rows of ages x, x_0 = the row's first age, and each row's base: F(x_0),
+        or R(x_0) in the ``upper`` rows (x_0 at or beyond the model's median, found by ``_domain``),
+        where the survival function keeps the digits that F runs out of. All rows in one call of the
+        model (``Target.cdf_or_sf``); a base already known is passed in and x then omits x_0."""
+        values = np.asarray(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
+                            dtype=float).reshape(x.shape)
+        if base is None:
+            base = values[:, 0].copy()
+        sign = np.where(upper, -1.0, 1.0)
+        return sign[:, None] * (values - base[:, None]), base
 
     def _domain(self) -> tuple[float, float, float]:
         """Computational domain: tails beyond mass ``cut`` are cut (DHL 2010, sec. 4).
@@ -170,38 +158,19 @@ class NumericalInversion(Inversion):
 
     def _fit_pieces(self, x0, x1):
         """Fit the interpolating polynomial of each piece; return coefficients, masses, F at the
-        starts and u-errors."""
-        k = ORDER
-        w = (x1 - x0)
-        xs = x0[:, None] + w[:, None] * NODES_S[None, :]
-        du = np.zeros(xs.shape)
-        du[:, 1:], base = self._delta_u(x0, xs[:, 1:])      # the first node is x0 itself
-        F_at = np.where(x0 >= self._median, 1.0 - base, base)
+        starts and u-errors. Two calls of the model (the nodes, then the test points between them)
+        and two compiled passes (the polynomials and where they put the test points, then the
+        u-errors), each with a numpy twin."""
+        w = x1 - x0
+        upper = x0 >= self._median
+        xs = x0[:, None] + w[:, None] * NODES_S[None, :]     # the first node is x0 itself: the base
+        du, base = self._delta_u(upper, xs)
+        F_at = np.where(upper, 1.0 - base, base)
         total = du[:, -1].copy()
-        linear = total <= 0.5 * self.tolerance
-        safe_total = np.where(total > 0, total, 1.0)
-        s = du / safe_total[:, None]
-        ok_nodes = np.all(np.diff(s, axis=1) > 0, axis=1) & ~linear
-        coef = np.zeros((x0.size, k + 1))
-        coef[:, 1] = 1.0                                     # linear in s: x = x0 + w*s
-        if np.any(ok_nodes):
-            # Newton's divided differences for all pieces at once (a compiled loop with a numpy
-            # twin), not one small linear solve per piece.
-            coef[ok_nodes] = kernels.interpolating_coefficients(s[ok_nodes], NODES_S)
-        err = self._piece_errors(x0, w, total, coef, base)
-        err = np.where(linear, total, err)
-        err = np.where(~ok_nodes & ~linear, np.inf, err)
+        coef, x_test, status = kernels.inverse_pieces(x0, w, du, NODES_S, TEST_S, 0.5 * self.tolerance)
+        du_test, _ = self._delta_u(upper, x_test, base)
+        err = kernels.inverse_piece_errors(du_test, total, TEST_S, status)
         return coef, total, F_at, err
-
-    def _piece_errors(self, x0, w, total, coef, base):
-        """The u-error of each piece at TEST_S, inf where the polynomial is not increasing there
-        (``base``: each row's F(x0) or R(x0), from ``_delta_u``)."""
-        x = x0[:, None] + w[:, None] * _horner(coef[:, None, :], TEST_S[None, :])
-        xs = np.concatenate([x0[:, None], x, (x0 + w)[:, None]], axis=1)
-        monotone = np.all(np.diff(xs, axis=1) >= 0, axis=1)         # TEST_S is sorted
-        du, _ = self._delta_u(x0, x, base)
-        err = np.max(np.abs(du - total[:, None] * TEST_S[None, :]), axis=1)
-        return np.where(monotone, err, np.inf)
 
     def _construct(self, x0, x1):
         """Fit pieces, splitting the failing ones, until each passes its u-error test."""
@@ -358,11 +327,3 @@ def _split(xa, xb, parts):
     end = np.where(geometric, end_g, a + (b - a) * (j + 1) / q)
     end = np.where(j == q - 1, b, end)
     return start, end
-
-
-def _horner(coef, s):
-    """Evaluate sum_j coef[..., j] s^j by Horner's rule, broadcasting over pieces."""
-    out = coef[..., -1] * np.ones_like(s)
-    for j in range(coef.shape[-1] - 2, -1, -1):
-        out = out * s + coef[..., j]
-    return out
