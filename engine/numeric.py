@@ -7,7 +7,6 @@ Chandrupatla's bracketing method (Chandrupatla 1997, Adv. Eng. Software 28(3)).
 """
 from __future__ import annotations
 
-import functools
 from dataclasses import dataclass
 from typing import Callable
 
@@ -23,15 +22,12 @@ GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
 
 
-@functools.lru_cache(maxsize=64)
 def _jacobi_rule(alpha: float):
     """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
-    [-1, 1], s = (1+x)/2); kept by exponent, as the same model is often rebuilt."""
+    [-1, 1], s = (1+x)/2). Computed for every model: the exponent comes from the model's own
+    numbers, and no number is kept from one model to the next."""
     x, w = special.roots_jacobi(12, 0.0, alpha)
-    nodes, weights = (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0)
-    nodes.setflags(write=False)
-    weights.setflags(write=False)
-    return nodes, weights, alpha
+    return (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha
 
 
 @dataclass(frozen=True)
