@@ -24,6 +24,7 @@ from .base import Sampler
 ORDER = 5                    # polynomial degree of each piece (DHL 2010 recommend 3-5)
 MAX_PIECES = 50_000
 INITIAL_STEPS = 32           # first partition: equal steps of the target's mapped coordinate
+BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS
 #: Interpolation nodes of a piece in its own u-coordinate s: Chebyshev-Lobatto points on [0, 1].
 NODES_S = 0.5 * (1.0 - np.cos(np.pi * np.arange(ORDER + 1) / ORDER))
 #: u-error test points: three between each pair of neighbouring nodes (1/4, 1/2, 3/4 of the gap),
@@ -124,6 +125,7 @@ class NumericalInversion(Inversion):
             F_raw = np.asarray(t.cdf(grid), dtype=float)
             F = np.maximum.accumulate(np.clip(F_raw, 0.0, 1.0))
             median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
+            self._scan = (grid, F)
             if not np.isfinite(lo):
                 i = int(np.flatnonzero(F <= cut)[-1]) if np.any(F <= cut) else 0
                 a, lost = float(grid[i]), lost + float(F_raw[i])
@@ -134,6 +136,7 @@ class NumericalInversion(Inversion):
             b, lost = float(grid[i]), lost + float(S_raw[i])
             if median is None:
                 median = float(grid[int(np.argmax(S <= 0.5))] if np.any(S <= 0.5) else grid[-1])
+                self._scan = (grid, 1.0 - S)
         if not (np.isfinite(a) and np.isfinite(b) and a < b):
             raise MethodNotApplicable("method", "numerical inversion could not bound the model's tails")
         self._median = median
@@ -147,7 +150,11 @@ class NumericalInversion(Inversion):
         ylo, yhi = m.y_range
         grid = m.to_t(np.linspace(ylo, yhi, INITIAL_STEPS + 1)[1:-1])
         extra = [x for x in getattr(t, "breakpoints", lambda: [])()]
-        pts = [grid, [a, b], extra]
+        # Ages near the quantiles k/BULK_STEPS, read off the domain's scan (F on the mapped grid,
+        # linear between its points): the mapped grid follows the support map, these follow the mass.
+        scan_t, scan_F = self._scan
+        quantiles = np.interp(np.arange(1, BULK_STEPS) / BULK_STEPS, scan_F, scan_t)
+        pts = [grid, [a, b], extra, quantiles]
         if np.isfinite(t.support[0]) and a == t.support[0]:
             # Geometric steps towards a finite start of life: a pole there, or a density that
             # starts like a power of the age, leaves F^-1 far from polynomial next to it.
@@ -192,7 +199,7 @@ class NumericalInversion(Inversion):
             # as that rate says it needs, with a margin: few rounds, not bisection.
             with np.errstate(divide="ignore", invalid="ignore"):
                 parts = np.ceil(1.25 * (eb / budget) ** (1.0 / (ORDER + 1)))
-            parts = np.where(np.isfinite(parts), parts, 8.0)
+            parts = np.where(np.isfinite(parts), parts, 16.0)
             parts = np.clip(parts, 2, 64).astype(np.int64)
             x0, x1 = _split(xa, xb, parts)
             self._pieces_so_far = sum(d[0].size for d in done) + x0.size
