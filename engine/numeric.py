@@ -338,16 +338,18 @@ class CumulativeIntegral:
         half = 0.5 * (b - a)
         mid = 0.5 * (b + a)
         y = mid[:, None] + half[:, None] * _GL_NODES[None, :]
-        values = self._g_of_y(y)
-        out = half * (values @ _GL_WEIGHTS)
-        if self._jacobi is not None:
-            first = a <= self._ylo
-            if np.any(first):
-                nodes, weights, alpha = self._jacobi
-                width = b[first] - self._ylo
-                ys = self._ylo + width[:, None] * nodes[None, :]
-                phi = self._g_of_y(ys) / (ys - self._ylo) ** alpha
-                out[first] = width ** (alpha + 1.0) * (phi @ weights)
+        first = a <= self._ylo if self._jacobi is not None else None
+        if first is None or not np.any(first):
+            return half * (self._g_of_y(y) @ _GL_WEIGHTS)
+        # The Gauss-Jacobi nodes of the pieces at the lower end go through the integrand in the
+        # same pass as the Gauss-Legendre nodes of all pieces.
+        nodes, weights, alpha = self._jacobi
+        width = b[first] - self._ylo
+        ys = self._ylo + width[:, None] * nodes[None, :]
+        values = self._g_of_y(np.concatenate([y.ravel(), ys.ravel()]))
+        out = half * (values[:y.size].reshape(y.shape) @ _GL_WEIGHTS)
+        phi = values[y.size:].reshape(ys.shape) / (ys - self._ylo) ** alpha
+        out[first] = width ** (alpha + 1.0) * (phi @ weights)
         return out
 
     def _partition(self, grid, rtol):
