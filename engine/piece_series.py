@@ -72,7 +72,8 @@ class PieceSeries:
         cut in four; a piece whose mass below (above) it is too small to be summed with its own
         series near its start (end) is cut geometrically towards that end, so that small masses keep
         their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
-        a fractional power). Only the new parts are evaluated and integrated."""
+        a fractional power). A geometric cut goes only as deep as that piece needs (``depth``). Only
+        the new parts are evaluated and integrated."""
         reference = pieces
         values = integrand(cls.nodes(edges[:-1], edges[1:]))
         series = cls(edges, values, reference, before, after)
@@ -83,7 +84,11 @@ class PieceSeries:
             mode[0] = TOWARDS_START
         if np.all(mode == KEEP):
             return series
-        edges, parent, new = refine(edges, mode)
+        steps = np.where(mode == TOWARDS_END, depth(reference, series.after),
+                         np.where(mode == TOWARDS_START, depth(reference, series.before), 0))
+        if first_end:
+            steps[0] = GEOMETRIC_STEPS
+        edges, parent, new = refine(edges, mode, steps)
         kept = np.empty((parent.size, NODES))
         kept[~new] = values[parent[~new]]
         kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
@@ -118,27 +123,49 @@ class PieceSeries:
 
 
 KEEP, QUARTERS, TOWARDS_START, TOWARDS_END = 0, 1, 2, 3
-_GEOMETRIC = 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)
-# Where each kind of cut starts its parts, as fractions of the piece.
-_PARTS = {KEEP: np.array([0.0]), QUARTERS: np.arange(4) / 4.0,
-          TOWARDS_START: np.concatenate([[0.0], _GEOMETRIC]),
-          TOWARDS_END: np.concatenate([[0.0], 1.0 - _GEOMETRIC[::-1]])}
+_QUARTERS = np.arange(4) / 4.0
 
 
-def refine(edges, mode):
-    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END,
-    down to 2^-GEOMETRIC_STEPS of the piece: each part is then smooth on its own scale and carries its
-    own small mass). Returns the new edges and, per new piece, the index of the piece it came from
-    and whether it is new."""
+def depth(mass, beside):
+    """Steps of a geometric cut of pieces of mass ``mass`` towards an end with the mass ``beside``
+    beyond it. A value next to that end is trusted when the mass beyond its part is at least 1/25 of
+    the part's own (the rounding of the part's terms, 4e-16 of them, against RELATIVE = 1e-14 of the
+    value). The part at depth j holds at most 2^-j of the piece where the integrand does not rise
+    towards that end (a tail), so j = log2(mass / (25 beside)) + 2 leaves a fourfold margin; the
+    full GEOMETRIC_STEPS where nothing lies beyond (the last piece) or the ratio is not finite."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        j = np.ceil(np.log2(np.abs(mass) / (25.0 * beside))) + 2.0
+    return np.where(np.isfinite(j) & (beside > 0), np.clip(j, 1, GEOMETRIC_STEPS), GEOMETRIC_STEPS).astype(np.int64)
+
+
+def refine(edges, mode, steps=None):
+    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END
+    in ``steps`` halvings, GEOMETRIC_STEPS unless given: down to 2^-steps of the piece, each part is
+    then smooth on its own scale and carries its own small mass). Returns the new edges and, per
+    new piece, the index of the piece it came from and whether it is new."""
     a, b = edges[:-1], edges[1:]
-    fractions = [_PARTS[int(k)] for k in mode]
+    if steps is None:
+        steps = np.full(mode.shape, GEOMETRIC_STEPS)
+    fractions, levels = [], []
+    for k, j in zip(mode.tolist(), steps.tolist()):
+        if k == KEEP:
+            fractions.append(_QUARTERS[:1]); levels.append(_QUARTERS[:1])
+        elif k == QUARTERS:
+            fractions.append(_QUARTERS); levels.append(_QUARTERS)
+        else:
+            # Parts start at 0, then 2^-j ... 2^-1 (towards the start) or 1 - 2^-1 ... 1 - 2^-j (end);
+            # ``levels`` keeps the exponents of the end's cut, written b - w 2^-i below.
+            powers = np.arange(j, 0, -1) if k == TOWARDS_START else np.arange(1, j + 1)
+            halves = 2.0 ** -powers
+            fractions.append(np.concatenate([[0.0], halves if k == TOWARDS_START else 1.0 - halves]))
+            levels.append(np.concatenate([[0.0], powers]))
     counts = np.array([f.size for f in fractions])
     parent = np.repeat(np.arange(a.size), counts)
     starts = a[parent] + (b - a)[parent] * np.concatenate(fractions)
     if np.any(mode == TOWARDS_END):
         # b - w * 2^-j directly: a + w * (1 - 2^-j) rounds the small steps away next to b.
         end = np.flatnonzero(mode[parent] == TOWARDS_END)
-        j = np.concatenate([np.arange(GEOMETRIC_STEPS + 1)] * int(np.sum(mode == TOWARDS_END)))
+        j = np.concatenate(levels)[end]
         starts[end] = np.where(j == 0, a[parent[end]], b[parent[end]] - (b - a)[parent[end]] * 2.0 ** -j)
     keep = np.concatenate([[True], np.diff(starts) > 0])     # parts that rounded together are dropped
     starts, parent = starts[keep], parent[keep]
