@@ -39,10 +39,10 @@ def _check_params(params: Mapping[str, float]) -> dict[str, float]:
     return {str(k): finite_number(str(k), v) for k, v in params.items()}
 
 
-def _inside_from_start(t: np.ndarray, support) -> bool:
-    """True for a 1-d array of ages in [lo, hi) with no NaN: where ``cdf_or_sf`` needs no masking."""
+def _on_support(t: np.ndarray, support) -> bool:
+    """True for a 1-d array of ages in [lo, hi] with no NaN: where ``cdf_or_sf`` needs no masking."""
     lo, hi = support
-    return t.ndim == 1 and bool(np.all((t >= lo) & (t < hi)))
+    return t.ndim == 1 and bool(np.all((t >= lo) & (t <= hi)))
 
 
 def _probe_points(lo: float, hi: float) -> np.ndarray:
@@ -297,9 +297,10 @@ class DensityTarget(_FormulaTarget):
 
     def cdf_or_sf(self, t, upper):
         t = np.asarray(t, dtype=float)
-        if not _inside_from_start(t, self.support):
+        if not _on_support(t, self.support):
             return super().cdf_or_sf(t, upper)
-        # One pass of the integral, each point on its own side (at lo: F = 0, R = total/area = 1).
+        # One pass of the integral, each point on its own side (at lo: F = 0, R = total/area = 1;
+        # at hi: F = 1, R = 0).
         with np.errstate(all="ignore"):
             return self.integral.sided(t, upper) / self.area
 
@@ -391,12 +392,14 @@ class HazardTarget(_FormulaTarget):
 
     def cdf_or_sf(self, t, upper):
         t = np.asarray(t, dtype=float)
-        if not _inside_from_start(t, self.support):
+        if not _on_support(t, self.support):
             return super().cdf_or_sf(t, upper)
-        # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there).
+        # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there); at the end of the support,
+        # where R(t) underflows, F = 1 and R = 0 as ``cdf`` and ``sf`` give.
         with np.errstate(all="ignore"):
             H = self.H(t)
-            return np.where(upper, np.exp(-H), -np.expm1(-H))
+            out = np.where(upper, np.exp(-H), -np.expm1(-H))
+        return np.where(t >= self.support[1], np.where(upper, 0.0, 1.0), out)
 
     def _sf(self, t):
         return np.exp(-self.H(t))

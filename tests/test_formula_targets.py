@@ -246,12 +246,12 @@ def test_weibull_cdf_formula_mean_is_eta_gamma_one_plus_one_over_beta():
 ])
 def test_cdf_or_sf_answers_each_point_as_cdf_or_sf_would(build):
     # The one-pass form that numerical inversion calls: F where the flag is off, R where it is on,
-    # bit for bit as the two separate calls give, at the start of life, inside, and beyond the support.
+    # bit for bit as the two separate calls give, at both ends of the support, inside, and beyond it.
     target = build()
     lo, hi = target.support
     rng = np.random.default_rng(8)
     inside = target.quantile(np.sort(rng.random(997)))
-    t = np.concatenate([[lo] if np.isfinite(lo) else [], inside])
+    t = np.concatenate([[lo] if np.isfinite(lo) else [], inside, [hi] if np.isfinite(hi) else []])
     upper = rng.random(t.size) < 0.5
     np.testing.assert_array_equal(target.cdf_or_sf(t, upper), np.where(upper, target.sf(t), target.cdf(t)))
     beyond = np.concatenate([t, [hi if np.isfinite(hi) else 1e300, np.nan]])
