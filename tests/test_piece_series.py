@@ -147,3 +147,14 @@ def test_a_tail_piece_is_cut_only_as_deep_as_its_mass_beyond_needs_and_stays_tru
     np.testing.assert_allclose(value, Decay.mass(y, 1.0), rtol=2e-14, atol=0)
     inner = series.edges[(series.edges > edges[1]) & (series.edges < edges[11])]
     assert inner.size <= 10 * 11                     # pieces 1 to 10, each cut 10 deep, not 40
+
+
+def test_survival_next_to_a_fractional_power_start_is_one_minus_a_tiny_mass():
+    # f ~ t^1.5 exp(-t^1.6) at t -> 0 (scipy's gengamma(a=2.5/1.6, c=1.6)): R(t) = 1 - F(t) with F below
+    # 1e-15, so R must be 1 to rounding (4 ulps). A Gauss-Legendre rule from t up to the end of the first
+    # piece misses t^1.5's digits there (R was 1 - 1e-11 at t = 1e-18); the piece's Gauss-Jacobi mass
+    # less the part below t keeps them.
+    target = lifedraw.density_formula("t**(k - 1)*exp(-t**p)", (0, math.inf), dict(k=2.5, p=1.6))
+    t = np.array([1e-18, 1e-15, 1e-12, 1e-9, 1e-7])
+    ref = stats.gengamma(a=2.5 / 1.6, c=1.6)
+    np.testing.assert_allclose(target.sf(t), ref.sf(t), rtol=0, atol=4 * np.finfo(float).eps)

@@ -159,7 +159,12 @@ class NumericalInversion(Inversion):
             # Geometric steps towards a finite start of life: a pole there, or a density that
             # starts like a power of the age, leaves F^-1 far from polynomial next to it.
             first = grid[grid > a][0] if np.any(grid > a) else b
-            pts.append(a + (first - a) * np.logspace(-12, 0, 13))
+            steps = a + (first - a) * np.logspace(-12, 0, 13)
+            # Below the last step where the scan finds next to no mass (F <= 1e-14 at the grid age
+            # above it) one piece does (linear, its u-error at most its mass): the steps under it
+            # would only cost evaluations next to the start.
+            empty = np.flatnonzero(np.interp(steps, scan_t, scan_F) <= 1e-14)
+            pts.append(steps[empty[-1]:] if empty.size else steps)
         edges = np.unique(np.concatenate([np.asarray(p, dtype=float) for p in pts]))
         return edges[(edges >= a) & (edges <= b) & np.isfinite(edges)]
 
