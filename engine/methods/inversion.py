@@ -24,7 +24,9 @@ from .base import Sampler
 ORDER = 5                    # polynomial degree of each piece (DHL 2010 recommend 3-5)
 MAX_PIECES = 50_000
 INITIAL_STEPS = 32           # first partition: equal steps of the target's mapped coordinate
-BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS
+BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS, and 2^-k, 1 - 2^-k (k = 6, 7.5, ... 33) in the tails
+QUANTILE_LEVELS = np.concatenate([np.arange(1, BULK_STEPS) / BULK_STEPS, 2.0 ** -np.arange(6.0, 34.0, 1.5),
+                                  1.0 - 2.0 ** -np.arange(6.0, 34.0, 1.5)])
 #: Interpolation nodes of a piece in its own u-coordinate s: Chebyshev-Lobatto points on [0, 1].
 NODES_S = 0.5 * (1.0 - np.cos(np.pi * np.arange(ORDER + 1) / ORDER))
 #: u-error test points: three between each pair of neighbouring nodes (1/4, 1/2, 3/4 of the gap),
@@ -153,7 +155,7 @@ class NumericalInversion(Inversion):
         # Ages near the quantiles k/BULK_STEPS, read off the domain's scan (F on the mapped grid,
         # linear between its points): the mapped grid follows the support map, these follow the mass.
         scan_t, scan_F = self._scan
-        quantiles = np.interp(np.arange(1, BULK_STEPS) / BULK_STEPS, scan_F, scan_t)
+        quantiles = np.interp(QUANTILE_LEVELS, scan_F, scan_t)
         pts = [grid, [a, b], extra, quantiles]
         if np.isfinite(t.support[0]) and a == t.support[0]:
             # Geometric steps towards a finite start of life: a pole there, or a density that
