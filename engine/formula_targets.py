@@ -346,8 +346,10 @@ class HazardTarget(_FormulaTarget):
             values = np.asarray(h(probe), dtype=float)
         self._values_ok(probe, values, "hazard rate")
         while True:
+            # R = exp(-H) and F = -expm1(-H) read H from the start of life only (upper_sums=False).
             self.H = CumulativeIntegral(h, reach.mapping(end, h), rtol=1e-14, field="formula",
-                                        check=lambda t, g: self._values_ok(t, g, "hazard rate"))
+                                        check=lambda t, g: self._values_ok(t, g, "hazard rate"),
+                                        upper_sums=False)
             # The rough bracket can fall short for a decreasing hazard: push on
             # until R(end) is negligible (H > 40 leaves < 5e-18 of the units).
             if self.H.total >= H_NEGLIGIBLE or end >= reach.limit or end - lo > 1e300:

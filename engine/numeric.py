@@ -282,8 +282,11 @@ class CumulativeIntegral:
 
     def __init__(self, integrand: Callable, mapping: SupportMap, *, rtol: float = 1e-13,
                  field: str = "formula", check: Callable | None = None,
-                 breakpoints=()):
+                 breakpoints=(), upper_sums: bool = True):
         self.integrand = integrand
+        # False where only integrals from the lower end are asked for (a cumulative hazard): the
+        # series then makes no cuts for the digits of the mass above t (``upper`` stays right, slower).
+        self.upper_sums = upper_sums
         self.mapping = mapping
         self.field = field
         self._check = check
@@ -316,7 +319,8 @@ class CumulativeIntegral:
         if self._series is None:
             with np.errstate(all="ignore"):
                 series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
-                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo))
+                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
+                                           upper_sums=self.upper_sums)
             self._series = series
         return self._series
 

@@ -65,20 +65,23 @@ class PieceSeries:
         self.limit = np.where(resolved, self.error / RELATIVE, np.inf)
 
     @classmethod
-    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool) -> "PieceSeries":
+    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
+              upper_sums: bool = True) -> "PieceSeries":
         """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
         and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
         it over pieces. One refinement follows (``refine``): a piece whose series is not resolved is
         cut in four; a piece whose mass below (above) it is too small to be summed with its own
         series near its start (end) is cut geometrically towards that end, so that small masses keep
         their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
-        a fractional power). A geometric cut goes only as deep as that piece needs (``depth``). Only
+        a fractional power). A geometric cut goes only as deep as that piece needs (``depth``); no cut
+        towards an end where ``upper_sums`` is False (only masses below a point will be asked for). Only
         the new parts are evaluated and integrated."""
         reference = pieces
         values = integrand(cls.nodes(edges[:-1], edges[1:]))
         series = cls(edges, values, reference, before, after)
         mode = np.where(series.resolved, KEEP, QUARTERS)
-        mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
+        if upper_sums:
+            mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
         mode[series.resolved & (series.before < series.limit)] = TOWARDS_START
         if first_end:
             mode[0] = TOWARDS_START
