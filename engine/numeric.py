@@ -418,6 +418,8 @@ class CumulativeIntegral:
         where that is trusted, else the mass before (after) y's piece plus the 10-point rule on the
         part of the piece below (above) y, all such points in one pass."""
         value, trusted = self.series().sums(y, upper)
+        if trusted.all():
+            return value
         # Points at or beyond the ends are answered by the callers (0 or the total).
         rest = np.flatnonzero(~trusted & (y > self.edges[0]) & (y < self.edges[-1]))
         if rest.size:
@@ -458,7 +460,8 @@ class CumulativeIntegral:
         """The integral below t where ``upper`` is False and above t where it is True, in one pass
         (each point on the side that keeps its digits: ``upper`` near the end, below it near the start)."""
         t = np.asarray(t, dtype=float)
-        upper = np.broadcast_to(np.asarray(upper, dtype=bool), t.shape).ravel()
+        upper = np.asarray(upper, dtype=bool)
+        upper = (upper if upper.shape == t.shape else np.broadcast_to(upper, t.shape)).ravel()
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper)
         value = np.where(y >= self.edges[-1], np.where(upper, 0.0, self.total), value)
