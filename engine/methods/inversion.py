@@ -114,8 +114,8 @@ class NumericalInversion(Inversion):
         measured and counted in the u-error), so a scan of the coordinate grid
         replaces root solving. The same scan gives a point near the median, where
         ``_delta_u`` changes from F to the survival function. F is evaluated on the
-        grid only for an infinite lower end or a finite support, R only for an
-        infinite upper end.
+        grid only for an infinite lower end or a finite support (whose upper tail
+        is then cut by 1 - F), R only for an infinite upper end.
         """
         t = self.target
         cut = 0.05 * self.tolerance
@@ -131,6 +131,12 @@ class NumericalInversion(Inversion):
             if not np.isfinite(lo):
                 i = int(np.flatnonzero(F <= cut)[-1]) if np.any(F <= cut) else 0
                 a, lost = float(grid[i]), lost + float(F_raw[i])
+            if np.isfinite(hi):
+                # The upper tail of a finite support is cut as an infinite one is (1 - F keeps its
+                # absolute digits to about 1e-16, far below the cut): a hazard model's support ends
+                # where R underflows, far beyond the last mass that a uniform resolves.
+                i = int(np.flatnonzero(1.0 - F <= cut)[0])
+                b, lost = float(grid[i]), lost + max(float(1.0 - F_raw[i]), 0.0)
         if not np.isfinite(hi):
             S_raw = np.asarray(t.sf(grid), dtype=float)
             S = np.minimum.accumulate(np.clip(S_raw, 0.0, 1.0))
