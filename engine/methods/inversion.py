@@ -151,8 +151,9 @@ class NumericalInversion(Inversion):
         return a, b, lost
 
     def _initial_edges(self, a, b):
-        """A first partition from the target's coordinate map (no root solving):
-        equal steps in the mapped coordinate put points where the mass is."""
+        """A first partition from the target's coordinate map (no root solving): equal steps in the
+        mapped coordinate, plus ages near fixed quantiles read off the domain's scan; together they
+        leave two fitting rounds (the first splits what fails, the second confirms) on the bench targets."""
         t = self.target
         m = t.mapping
         ylo, yhi = m.y_range
@@ -212,6 +213,8 @@ class NumericalInversion(Inversion):
             # as that rate says it needs, with a margin: few rounds, not bisection.
             with np.errstate(divide="ignore", invalid="ignore"):
                 parts = np.ceil(1.25 * (eb / budget) ** (1.0 / (ORDER + 1)))
+            # A piece whose polynomial failed outright (not increasing: no error to go by) is cut in 16,
+            # which the bench targets' pieces next to a power-law start or in a tail were measured to need.
             parts = np.where(np.isfinite(parts), parts, 16.0)
             parts = np.clip(parts, 2, 64).astype(np.int64)
             x0, x1 = _split(xa, xb, parts)
