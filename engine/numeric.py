@@ -382,9 +382,10 @@ class CumulativeIntegral:
             a_new = np.concatenate([a[keep], m[keep]])
             b_new = np.concatenate([m[keep], b[keep]])
             whole = np.concatenate([left[keep], right[keep]])
-            if rounds > 1 and np.isfinite(self.mapping.lo):
-                # The piece at a finite lower end failing again: the integrand is not smooth there
-                # (a power of the age), and halving it would take a round per binary digit. Split it
+            if (rounds > 1 or self._jacobi is None) and np.isfinite(self.mapping.lo):
+                # The piece at a finite lower end failing again (or at once, where no Gauss-Jacobi rule
+                # takes its leading power): the integrand is not smooth there (a power of the age, or
+                # a constant plus one), and halving it would take a round per binary digit. Split it
                 # geometrically instead, towards the end, as quadrature near an end singularity does
                 # (Davis & Rabinowitz 2nd ed., 2.12.7 on graded meshes).
                 first = np.flatnonzero(a_new == self._ylo)
