@@ -400,21 +400,23 @@ def _verdict(row) -> str:
 # What limits each goal when it is missed (measured and reasoned, kept beside the numbers).
 GAPS = {
     "1": ("the compiled loop is a guide-table look-up plus a degree-5 Horner step per draw (the "
-          "order that keeps the u-error under 1e-10 with about 170-200 pieces, engine/methods/inversion.py); the 2x goal "
+          "order that keeps the u-error under 1e-10 with about 200-240 pieces, engine/methods/inversion.py); the 2x goal "
           "needs either fewer operations per draw (a lower order with many more pieces, which costs "
           "set-up time, the row below) or a wider vector loop than Numba emits here. Not attempted in this "
           "round: set-up time and rejection came first."),
     "1c": ("each draw is one uniform plus the inversion loop (guide look-up and Horner step, about 9-10 ns "
            "against numpy's ~3 ns per uniform); see row 1."),
-    "1b": ("set-up is Python driving about forty vectorised passes over all pieces at once: the model (probes, "
-           "a 64-piece adaptive Gauss-Legendre partition of the cumulative integral, then Chebyshev series of "
-           "every piece so that F and R cost a short compiled sum, engine/piece_series.py) and the inversion (one "
-           "scan of the mapped grid, then about three fitting rounds of two passes each: the nodes, then the test "
-           "points between them; the piece fitting is a compiled kernel). What is left is the fixed cost of those "
-           "passes, 20-150 us each, beside UNU.RAN's compiled loop, which needs fewer density evaluations where "
-           "the law is smooth; lifedraw is faster next to a pole and about level on the lognormal-like formula, "
-           "and the hazard-rate model also brackets its cumulative hazard over 300 decades. Cold and warm differ "
-           "by the parse only: every number is computed afresh for every model (no numbers are kept between "
+    "1b": ("set-up is Python driving vectorised passes, each over all pieces at once: the model "
+           "(probes, a 64-piece adaptive Gauss-Legendre partition of the cumulative integral, then Chebyshev series "
+           "of every piece so that F and R cost a short compiled sum, engine/piece_series.py, cut towards a tail "
+           "only as deep as its masses need) and the inversion (one scan of the mapped grid, which also places the "
+           "first partition near the quantiles, then two fitting rounds of two passes each, one call of the model "
+           "per pass and the fitting compiled). The arithmetic is small (about 16 calls of the formula on arrays, "
+           "some 7,000 ages in all, 0.1-0.3 ms); what is left is the fixed cost of a few hundred numpy calls "
+           "around them (1-20 us each), beside UNU.RAN's compiled loop, so lifedraw is faster next "
+           "to a pole and on the lognormal-like formula and still slower on the smooth generalised gamma and "
+           "hazard-rate formulas. Cold and warm differ by the parse only: every number, the Gauss-Jacobi rule of a "
+           "fractional-power start included, is computed afresh for every model (no numbers are kept between "
            "models, so a rebuilt model never depends on what was built before it)."),
     "2": ("after this round each candidate costs one uniform (immediate acceptance below its row's squeeze "
           "floor) and no logarithm in the bulk (flat steps), so what is left per draw is the guide-table "

@@ -39,6 +39,12 @@ def _check_params(params: Mapping[str, float]) -> dict[str, float]:
     return {str(k): finite_number(str(k), v) for k, v in params.items()}
 
 
+def _on_support(t: np.ndarray, support) -> bool:
+    """True for a 1-d array of ages in [lo, hi] with no NaN: where ``cdf_or_sf`` needs no masking."""
+    lo, hi = support
+    return t.ndim == 1 and bool(np.all((t >= lo) & (t <= hi)))
+
+
 def _probe_points(lo: float, hi: float) -> np.ndarray:
     """Ages spread over the support (log-spaced next to the ends) for validity probes."""
     fractions = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33),
@@ -58,6 +64,8 @@ def _probe_points(lo: float, hi: float) -> np.ndarray:
 H_NEGLIGIBLE = 40.0
 # The farthest age (past the start of life) that the hazard path follows H to.
 MAX_AGE_SPAN = 1e300
+# Decades of age (from 1e-12 past the start) scanned first for where H passes the underflow.
+FIRST_DECADES = 40
 
 
 class _Reach:
@@ -81,7 +89,11 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
 
     H is summed by the trapezoid rule in log-age, H = integral of (t - lo)·h(t) d ln(t - lo),
     on a grid of 20 points per decade out to the declared end or 1e300 past the start,
-    so H growing like log t (Lomax, log-logistic) is followed as far as doubles reach.
+    so H growing like log t (Lomax, log-logistic) is followed as far as doubles reach; the
+    first 40 decades are scanned first, and the rest only if H has not passed the underflow
+    by then (a hazard is then not examined where no unit survives: its sign there, or a
+    breakdown that would only have lowered ``limit``, the end that a slowly rising H may be
+    followed to, do not matter once H is past the underflow).
     A hazard that overflows to NaN (inf/inf) where no unit survives (H > 40) ends the
     support there. If H stays below the underflow level, ``_levelled_off`` decides
     whether H grows without bound (accepted while R at the largest age is negligible)
@@ -91,8 +103,42 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     # with a practical coefficient, near enough that dt/dy of the log-age map stays finite.
     top = min(hi - lo, MAX_AGE_SPAN)
     first = min(-12.0, math.log10(top) - 12.0)
-    offsets = np.logspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
-    offsets[-1] = top
+    exponents = np.linspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+    # The scan runs in two stages over the same grid: the first FIRST_DECADES decades, where the
+    # cumulative hazard of a practical model passes the underflow (and the scan stops there, as
+    # nothing beyond the first crossing is used), then, only if it has not, the whole grid.
+    for stop in (min(exponents.size, int(20 * FIRST_DECADES) + 1), exponents.size):
+        whole = stop == exponents.size
+        t, g, crude, usable = _log_age_scan(h, lo, top, exponents[:stop], whole)
+        if whole or usable < stop or np.any(~(crude <= 2 * _H_UNDERFLOW)):
+            break
+    # The map's scale: where H reaches 1e-3, below which the law is nearly uniform in t.
+    early = np.flatnonzero(crude > 1e-3)
+    scale = float(t[early[0]] - lo) if early.size else float(t[-1] - lo)
+    # Where the whole grid was scanned, ``usable`` counts its usable ages; where the first stage
+    # crossed the underflow, the grid beyond it is not examined (no unit survives there).
+    unbroken = usable == stop
+    limit = hi if hi - lo <= MAX_AGE_SPAN and unbroken else (float(t[-1]) if whole or not unbroken else lo + top)
+    # The trapezoid in log-age is only a bracket: stay past twice the underflow level.
+    over = np.flatnonzero(~(crude <= 2 * _H_UNDERFLOW))
+    if over.size:
+        return _Reach(float(t[over[0]]), limit, lo, scale)
+    if hi - lo <= MAX_AGE_SPAN and unbroken:
+        return _Reach(hi, hi, lo, scale)
+
+    def accurate_H():
+        return CumulativeIntegral(h, log_age_map(lo, float(t[-1]), scale, h), rtol=1e-12).total
+
+    _levelled_off(t - lo, g, float(crude[-1]), float(t[-1]), accurate_H)
+    return _Reach(float(t[-1]), limit, lo, scale)
+
+
+def _log_age_scan(h, lo: float, top: float, exponents, whole: bool):
+    """h on the ages lo + 10**exponents and H by the trapezoid rule in log-age (see
+    ``_cumulative_hazard_reach``): the ages, g = (t - lo)·h(t), H and how many ages are usable."""
+    offsets = np.power(10.0, exponents)
+    if whole:
+        offsets[-1] = top
     t = lo + offsets
     with np.errstate(all="ignore"):
         values = np.asarray(h(t), dtype=float) * np.ones_like(t)
@@ -122,23 +168,7 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
         elif np.isnan(values[i]):
             raise ModelError("formula", f"the hazard rate is not a number at t = {t[i]:.6g}; "
                                         "it must be finite and >= 0")
-    t, g, crude = t[:usable], g[:usable], crude[:usable]
-    # The map's scale: where H reaches 1e-3, below which the law is nearly uniform in t.
-    early = np.flatnonzero(crude > 1e-3)
-    scale = float(t[early[0]] - lo) if early.size else float(t[-1] - lo)
-    limit = hi if hi - lo <= MAX_AGE_SPAN and usable == offsets.size else float(t[-1])
-    # The trapezoid in log-age is only a bracket: stay past twice the underflow level.
-    over = np.flatnonzero(~(crude <= 2 * _H_UNDERFLOW))
-    if over.size:
-        return _Reach(float(t[over[0]]), limit, lo, scale)
-    if hi - lo <= MAX_AGE_SPAN and usable == offsets.size:
-        return _Reach(hi, hi, lo, scale)
-
-    def accurate_H():
-        return CumulativeIntegral(h, log_age_map(lo, float(t[-1]), scale, h), rtol=1e-12).total
-
-    _levelled_off(t - lo, g, float(crude[-1]), float(t[-1]), accurate_H)
-    return _Reach(float(t[-1]), limit, lo, scale)
+    return t[:usable], g[:usable], crude[:usable], usable
 
 
 def _levelled_off(offsets, g, H_top: float, t_top: float, accurate_H) -> None:
@@ -265,6 +295,15 @@ class DensityTarget(_FormulaTarget):
     def _sf(self, t):
         return self.integral.upper(t) / self.area
 
+    def cdf_or_sf(self, t, upper):
+        t = np.asarray(t, dtype=float)
+        if not _on_support(t, self.support):
+            return super().cdf_or_sf(t, upper)
+        # One pass of the integral, each point on its own side (at lo: F = 0, R = total/area = 1;
+        # at hi: F = 1, R = 0).
+        with np.errstate(all="ignore"):
+            return self.integral.sided(t, upper) / self.area
+
     def _dpdf_exact(self):
         """f'(t) as a vectorised function (exact, from the formula's derivative)."""
         d = self.expression.derivative().bind(**self.params)
@@ -307,8 +346,10 @@ class HazardTarget(_FormulaTarget):
             values = np.asarray(h(probe), dtype=float)
         self._values_ok(probe, values, "hazard rate")
         while True:
+            # R = exp(-H) and F = -expm1(-H) read H from the start of life only (upper_sums=False).
             self.H = CumulativeIntegral(h, reach.mapping(end, h), rtol=1e-14, field="formula",
-                                        check=lambda t, g: self._values_ok(t, g, "hazard rate"))
+                                        check=lambda t, g: self._values_ok(t, g, "hazard rate"),
+                                        upper_sums=False)
             # The rough bracket can fall short for a decreasing hazard: push on
             # until R(end) is negligible (H > 40 leaves < 5e-18 of the units).
             if self.H.total >= H_NEGLIGIBLE or end >= reach.limit or end - lo > 1e300:
@@ -350,6 +391,17 @@ class HazardTarget(_FormulaTarget):
                 return math.inf
         total = CumulativeIntegral(weight, self.mapping, rtol=1e-13, field="formula").total
         return float(lo**k + total) if np.isfinite(total) else math.inf
+
+    def cdf_or_sf(self, t, upper):
+        t = np.asarray(t, dtype=float)
+        if not _on_support(t, self.support):
+            return super().cdf_or_sf(t, upper)
+        # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there); at the end of the support,
+        # where R(t) underflows, F = 1 and R = 0 as ``cdf`` and ``sf`` give.
+        with np.errstate(all="ignore"):
+            H = self.H(t)
+            out = np.where(upper, np.exp(-H), -np.expm1(-H))
+        return np.where(t >= self.support[1], np.where(upper, 0.0, 1.0), out)
 
     def _sf(self, t):
         return np.exp(-self.H(t))

@@ -456,13 +456,14 @@ def window_pass(x, mean, times, lo, hi, room, *, use_jit=True):
 # ---- Chebyshev sums of a piecewise integral (engine/piece_series.py) -----------------------
 #
 # For each point y: its piece k (binary search in edges), x = its place in the piece on [-1, 1],
-# the piece's series sum_m table[k, which, m] T_m(x) by Clenshaw's recurrence (ATAP ch. 3), plus
-# base[k]; trusted where the result is at least limit[k] (below it the rounding of the sum is too
-# large beside the value: the caller integrates those points itself).
+# the piece's series sum_m table[k, w, m] T_m(x) by Clenshaw's recurrence (ATAP ch. 3), plus
+# base[w, k], where w = which[i] is the point's side (0: the mass below y, 1: above); trusted where
+# the result is at least limit[k] (below it the rounding of the sum is too large beside the value:
+# the caller integrates those points itself).
 
 def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
     n = y.shape[0]
-    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[1], limit.shape[0])
     top = table.shape[2] - 1
     piece = np.empty(n, dtype=np.int64)
     place = np.empty(n)
@@ -480,26 +481,28 @@ def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
     quads = n - n % 4
     for i in range(0, quads, 4):
         p0, p1, p2, p3 = piece[i], piece[i + 1], piece[i + 2], piece[i + 3]
+        w0, w1, w2, w3 = which[i], which[i + 1], which[i + 2], which[i + 3]
         x0, x1, x2, x3 = place[i], place[i + 1], place[i + 2], place[i + 3]
         a0 = a1 = a2 = a3 = 0.0
         c0 = c1 = c2 = c3 = 0.0
         for j in range(top, 0, -1):
-            a0, c0 = table[p0, which, j] + 2.0 * x0 * a0 - c0, a0
-            a1, c1 = table[p1, which, j] + 2.0 * x1 * a1 - c1, a1
-            a2, c2 = table[p2, which, j] + 2.0 * x2 * a2 - c2, a2
-            a3, c3 = table[p3, which, j] + 2.0 * x3 * a3 - c3, a3
-        out[i] = base[p0] + (table[p0, which, 0] + x0 * a0 - c0)
-        out[i + 1] = base[p1] + (table[p1, which, 0] + x1 * a1 - c1)
-        out[i + 2] = base[p2] + (table[p2, which, 0] + x2 * a2 - c2)
-        out[i + 3] = base[p3] + (table[p3, which, 0] + x3 * a3 - c3)
+            a0, c0 = table[p0, w0, j] + 2.0 * x0 * a0 - c0, a0
+            a1, c1 = table[p1, w1, j] + 2.0 * x1 * a1 - c1, a1
+            a2, c2 = table[p2, w2, j] + 2.0 * x2 * a2 - c2, a2
+            a3, c3 = table[p3, w3, j] + 2.0 * x3 * a3 - c3, a3
+        out[i] = base[w0, p0] + (table[p0, w0, 0] + x0 * a0 - c0)
+        out[i + 1] = base[w1, p1] + (table[p1, w1, 0] + x1 * a1 - c1)
+        out[i + 2] = base[w2, p2] + (table[p2, w2, 0] + x2 * a2 - c2)
+        out[i + 3] = base[w3, p3] + (table[p3, w3, 0] + x3 * a3 - c3)
     for i in range(quads, n):
         p = piece[i]
+        w = which[i]
         x = place[i]
         b1 = 0.0
         b2 = 0.0
         for j in range(top, 0, -1):
-            b1, b2 = table[p, which, j] + 2.0 * x * b1 - b2, b1
-        out[i] = base[p] + (table[p, which, 0] + x * b1 - b2)
+            b1, b2 = table[p, w, j] + 2.0 * x * b1 - b2, b1
+        out[i] = base[w, p] + (table[p, w, 0] + x * b1 - b2)
     for i in range(n):
         trusted[i] = abs(out[i]) >= limit[piece[i]]
     return out
@@ -509,7 +512,7 @@ _chebyshev_piece_sums_jit = _jit(_chebyshev_piece_sums_py)
 
 
 def _chebyshev_piece_sums_numpy(y, edges, table, which, base, limit, out, trusted):
-    m = min(table.shape[0], edges.shape[0] - 1, base.shape[0], limit.shape[0])
+    m = min(table.shape[0], edges.shape[0] - 1, base.shape[1], limit.shape[0])
     k = np.minimum(np.maximum(np.searchsorted(edges[:m + 1], y, side="right") - 1, 0), m - 1)
     a, b = edges[k], edges[k + 1]
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -519,18 +522,30 @@ def _chebyshev_piece_sums_numpy(y, edges, table, which, base, limit, out, truste
     b2 = np.zeros_like(y)
     for j in range(table.shape[2] - 1, 0, -1):
         b1, b2 = rows[:, j] + 2.0 * x * b1 - b2, b1
-    np.add(base[k], rows[:, 0] + x * b1 - b2, out=out)
+    np.add(base[which, k], rows[:, 0] + x * b1 - b2, out=out)
     np.greater_equal(np.abs(out), limit[k], out=trusted)
     return out
 
 
 def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
-    """(values, trusted) for the points y of a piecewise Chebyshev table; see above."""
+    """(values, trusted) for the points y of a piecewise Chebyshev table; see above. ``which`` is one
+    side for all points (0 or 1, ``base`` then that side's masses, one per piece) or one side per point
+    (an array, ``base`` then both sides' masses, 2 x pieces)."""
     y = np.ascontiguousarray(np.ravel(y), dtype=np.float64)
     out = np.empty_like(y)
     trusted = np.empty(y.shape, dtype=np.bool_)
+    base = np.asarray(base, dtype=np.float64)
+    if np.ndim(which) == 0:
+        which = np.full(y.shape, 1 if which else 0, dtype=np.int64)
+        base = np.stack([base, base]) if base.ndim == 1 else base
+    else:
+        which = (np.ravel(which) != 0).astype(np.int64)     # 0 or 1 only: the kernel indexes with it
+        if which.shape != y.shape:
+            raise ValueError("chebyshev_piece_sums: one side per point")
+    if base.ndim != 2 or base.shape[0] != 2:
+        raise ValueError("chebyshev_piece_sums: base must hold the masses below and above each piece")
     args = (y, np.ascontiguousarray(edges, dtype=np.float64), np.ascontiguousarray(table, dtype=np.float64),
-            int(which), np.ascontiguousarray(base, dtype=np.float64), np.ascontiguousarray(limit, dtype=np.float64),
+            which, np.ascontiguousarray(base), np.ascontiguousarray(limit, dtype=np.float64),
             out, trusted)
     if use_jit and _chebyshev_piece_sums_jit is not None:
         _chebyshev_piece_sums_jit(*args)
@@ -595,3 +610,158 @@ def interpolating_coefficients(s, values, *, use_jit=True):
     if use_jit and _interpolating_coefficients_jit is not None:
         return _interpolating_coefficients_jit(s, values, out)
     return _interpolating_coefficients_numpy(s, values, out)
+
+
+# ---- one fitting round of the inverse-CDF pieces (engine/methods/inversion.py) -------------
+#
+# Row by row, from the u-increments du[i, j] = F(x_ij) - F(x0_i) at the nodes x_ij = x0_i + w_i NODES_S[j]:
+# the polynomial x(s) through (du/du_last, NODES_S) (Newton's divided differences, as above), the ages
+# where it puts the test points s = test_s[j] (Horner's rule), and the row's status: FITTED, LINEAR (the
+# piece holds at most ``negligible`` of the mass: x = x0 + w s), NODES_NOT_INCREASING (F did not rise
+# from node to node) or NOT_MONOTONE (the polynomial turns back between x0 and x0 + w). Then, with
+# the u-increments at the test ages, each row's u-error: max_j |du_test - du_last test_s[j]| (DHL 2010).
+
+FITTED, LINEAR, NODES_NOT_INCREASING, NOT_MONOTONE = 0, 1, 2, 3
+
+
+def _inverse_pieces_py(x0, w, du, nodes, test_s, negligible, coef, x_test, status):
+    n, m = du.shape
+    t = test_s.shape[0]
+    s = np.empty(m)
+    d = np.empty(m)
+    c = np.empty(m)
+    for i in range(n):
+        total = du[i, m - 1]
+        scale = total if total > 0 else 1.0
+        for j in range(m):
+            s[j] = du[i, j] / scale
+        increasing = True
+        for j in range(1, m):
+            if not s[j] - s[j - 1] > 0:
+                increasing = False
+        for j in range(m):
+            c[j] = 0.0
+        c[1] = 1.0
+        if total <= negligible:
+            status[i] = LINEAR
+        elif not increasing:
+            status[i] = NODES_NOT_INCREASING
+        else:
+            status[i] = FITTED
+            for j in range(m):
+                d[j] = nodes[j]
+            for j in range(1, m):
+                for r in range(m - 1, j - 1, -1):
+                    d[r] = (d[r] - d[r - 1]) / (s[r] - s[r - j])
+            for j in range(m):
+                c[j] = 0.0
+            c[0] = d[m - 1]
+            for j in range(m - 2, -1, -1):
+                for r in range(m - 1, 0, -1):
+                    c[r] = c[r - 1] - s[j] * c[r]
+                c[0] = d[j] - s[j] * c[0]
+        for j in range(m):
+            coef[i, j] = c[j]
+        last = x0[i]
+        monotone = True
+        for j in range(t):
+            h = c[m - 1]
+            for r in range(m - 2, -1, -1):
+                h = h * test_s[j] + c[r]
+            x = x0[i] + w[i] * h
+            x_test[i, j] = x
+            if not x - last >= 0:
+                monotone = False
+            last = x
+        if not (x0[i] + w[i]) - last >= 0:
+            monotone = False
+        if status[i] == FITTED and not monotone:
+            status[i] = NOT_MONOTONE
+    return coef
+
+
+_inverse_pieces_jit = _jit(_inverse_pieces_py)
+
+
+def _inverse_pieces_numpy(x0, w, du, nodes, test_s, negligible, coef, x_test, status):
+    n, m = du.shape
+    total = du[:, -1]
+    linear = total <= negligible
+    s = du / np.where(total > 0, total, 1.0)[:, None]
+    increasing = np.all(np.diff(s, axis=1) > 0, axis=1)
+    fitted = increasing & ~linear
+    coef[:] = 0.0
+    coef[:, 1] = 1.0
+    if np.any(fitted):
+        coef[fitted] = _interpolating_coefficients_numpy(s[fitted], nodes, np.empty((int(fitted.sum()), m)))
+    h = coef[:, None, m - 1] * np.ones(test_s.shape)
+    for r in range(m - 2, -1, -1):
+        h = h * test_s[None, :] + coef[:, None, r]
+    x_test[:] = x0[:, None] + w[:, None] * h
+    ends = np.concatenate([x0[:, None], x_test, (x0 + w)[:, None]], axis=1)
+    monotone = np.all(np.diff(ends, axis=1) >= 0, axis=1)
+    status[:] = np.where(linear, LINEAR, np.where(~increasing, NODES_NOT_INCREASING,
+                                                  np.where(monotone, FITTED, NOT_MONOTONE)))
+    return coef
+
+
+def inverse_pieces(x0, w, du, nodes, test_s, negligible, *, use_jit=True):
+    """(coef, x_test, status) for pieces [x0, x0 + w] with u-increments du at their nodes; see above."""
+    x0 = np.ascontiguousarray(x0, dtype=np.float64)
+    w = np.ascontiguousarray(w, dtype=np.float64)
+    du = np.ascontiguousarray(du, dtype=np.float64)
+    nodes = np.ascontiguousarray(nodes, dtype=np.float64)
+    test_s = np.ascontiguousarray(test_s, dtype=np.float64)
+    if du.ndim != 2 or du.shape != (x0.size, nodes.size) or w.shape != x0.shape or nodes.size < 2:
+        raise ValueError("inverse_pieces: du must hold one row of node increments per piece")
+    coef = np.empty(du.shape)
+    x_test = np.empty((x0.size, test_s.size))
+    status = np.empty(x0.size, dtype=np.int64)
+    args = (x0, w, du, nodes, test_s, float(negligible), coef, x_test, status)
+    if use_jit and _inverse_pieces_jit is not None:
+        _inverse_pieces_jit(*args)
+    else:
+        _inverse_pieces_numpy(*args)
+    return coef, x_test, status
+
+
+def _inverse_piece_errors_py(du_test, total, test_s, status, err):
+    n, t = du_test.shape
+    for i in range(n):
+        if status[i] == LINEAR:
+            err[i] = total[i]
+        elif status[i] != FITTED:
+            err[i] = np.inf
+        else:
+            worst = 0.0
+            for j in range(t):
+                e = abs(du_test[i, j] - total[i] * test_s[j])
+                if e > worst or e != e:
+                    worst = e
+                    if e != e:
+                        break
+            err[i] = worst
+    return err
+
+
+_inverse_piece_errors_jit = _jit(_inverse_piece_errors_py)
+
+
+def _inverse_piece_errors_numpy(du_test, total, test_s, status, err):
+    worst = np.max(np.abs(du_test - total[:, None] * test_s[None, :]), axis=1)
+    err[:] = np.where(status == LINEAR, total, np.where(status == FITTED, worst, np.inf))
+    return err
+
+
+def inverse_piece_errors(du_test, total, test_s, status, *, use_jit=True):
+    """Each piece's u-error from the u-increments at its test points (see above)."""
+    du_test = np.ascontiguousarray(du_test, dtype=np.float64)
+    total = np.ascontiguousarray(total, dtype=np.float64)
+    test_s = np.ascontiguousarray(test_s, dtype=np.float64)
+    status = np.ascontiguousarray(status, dtype=np.int64)
+    if du_test.shape != (total.size, test_s.size) or status.shape != total.shape:
+        raise ValueError("inverse_piece_errors: one row of test increments per piece")
+    err = np.empty(total.shape)
+    if use_jit and _inverse_piece_errors_jit is not None:
+        return _inverse_piece_errors_jit(du_test, total, test_s, status, err)
+    return _inverse_piece_errors_numpy(du_test, total, test_s, status, err)

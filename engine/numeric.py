@@ -7,7 +7,6 @@ Chandrupatla's bracketing method (Chandrupatla 1997, Adv. Eng. Software 28(3)).
 """
 from __future__ import annotations
 
-import functools
 from dataclasses import dataclass
 from typing import Callable
 
@@ -23,15 +22,12 @@ GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
 
 
-@functools.lru_cache(maxsize=64)
 def _jacobi_rule(alpha: float):
     """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
-    [-1, 1], s = (1+x)/2); kept by exponent, as the same model is often rebuilt."""
+    [-1, 1], s = (1+x)/2). Computed for every model: the exponent comes from the model's own
+    numbers, and no number is kept from one model to the next."""
     x, w = special.roots_jacobi(12, 0.0, alpha)
-    nodes, weights = (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0)
-    nodes.setflags(write=False)
-    weights.setflags(write=False)
-    return nodes, weights, alpha
+    return (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha
 
 
 @dataclass(frozen=True)
@@ -286,8 +282,11 @@ class CumulativeIntegral:
 
     def __init__(self, integrand: Callable, mapping: SupportMap, *, rtol: float = 1e-13,
                  field: str = "formula", check: Callable | None = None,
-                 breakpoints=()):
+                 breakpoints=(), upper_sums: bool = True):
         self.integrand = integrand
+        # False where only integrals from the lower end are asked for (a cumulative hazard): the
+        # series then makes no cuts for the digits of the mass above t (``upper`` stays right, slower).
+        self.upper_sums = upper_sums
         self.mapping = mapping
         self.field = field
         self._check = check
@@ -320,7 +319,8 @@ class CumulativeIntegral:
         if self._series is None:
             with np.errstate(all="ignore"):
                 series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
-                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo))
+                                           self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
+                                           upper_sums=self.upper_sums)
             self._series = series
         return self._series
 
@@ -342,16 +342,18 @@ class CumulativeIntegral:
         half = 0.5 * (b - a)
         mid = 0.5 * (b + a)
         y = mid[:, None] + half[:, None] * _GL_NODES[None, :]
-        values = self._g_of_y(y)
-        out = half * (values @ _GL_WEIGHTS)
-        if self._jacobi is not None:
-            first = a <= self._ylo
-            if np.any(first):
-                nodes, weights, alpha = self._jacobi
-                width = b[first] - self._ylo
-                ys = self._ylo + width[:, None] * nodes[None, :]
-                phi = self._g_of_y(ys) / (ys - self._ylo) ** alpha
-                out[first] = width ** (alpha + 1.0) * (phi @ weights)
+        first = a <= self._ylo if self._jacobi is not None else None
+        if first is None or not np.any(first):
+            return half * (self._g_of_y(y) @ _GL_WEIGHTS)
+        # The Gauss-Jacobi nodes of the pieces at the lower end go through the integrand in the
+        # same pass as the Gauss-Legendre nodes of all pieces.
+        nodes, weights, alpha = self._jacobi
+        width = b[first] - self._ylo
+        ys = self._ylo + width[:, None] * nodes[None, :]
+        values = self._g_of_y(np.concatenate([y.ravel(), ys.ravel()]))
+        out = half * (values[:y.size].reshape(y.shape) @ _GL_WEIGHTS)
+        phi = values[y.size:].reshape(ys.shape) / (ys - self._ylo) ** alpha
+        out[first] = width ** (alpha + 1.0) * (phi @ weights)
         return out
 
     def _partition(self, grid, rtol):
@@ -380,9 +382,10 @@ class CumulativeIntegral:
             a_new = np.concatenate([a[keep], m[keep]])
             b_new = np.concatenate([m[keep], b[keep]])
             whole = np.concatenate([left[keep], right[keep]])
-            if rounds > 1 and np.isfinite(self.mapping.lo):
-                # The piece at a finite lower end failing again: the integrand is not smooth there
-                # (a power of the age), and halving it would take a round per binary digit. Split it
+            if (rounds > 1 or self._jacobi is None) and np.isfinite(self.mapping.lo):
+                # The piece at a finite lower end failing again (or at once, where no Gauss-Jacobi rule
+                # takes its leading power): the integrand is not smooth there (a power of the age, or
+                # a constant plus one), and halving it would take a round per binary digit. Split it
                 # geometrically instead, towards the end, as quadrature near an end singularity does
                 # (Davis & Rabinowitz 2nd ed., 2.12.7 on graded meshes).
                 first = np.flatnonzero(a_new == self._ylo)
@@ -411,18 +414,29 @@ class CumulativeIntegral:
             value = self._rule(a, np.maximum(a, b))
         return np.where(b > a, value, 0.0)
 
-    def _piece_sums(self, y, upper: bool):
-        """The mass below (or above) y: from the series where that is trusted, else the mass
-        before (after) y's piece plus the 10-point rule on the part of the piece below (above) y."""
+    def _piece_sums(self, y, upper):
+        """The mass below (or above, where ``upper``: one flag or one per point) y: from the series
+        where that is trusted, else the mass before (after) y's piece plus the 10-point rule on the
+        part of the piece below (above) y, all such points in one pass."""
         value, trusted = self.series().sums(y, upper)
-        rest = np.flatnonzero(~trusted)
+        if trusted.all():
+            return value
+        # Points at or beyond the ends are answered by the callers (0 or the total).
+        rest = np.flatnonzero(~trusted & (y > self.edges[0]) & (y < self.edges[-1]))
         if rest.size:
             yr = y[rest]
             kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
-            if upper:
-                value[rest] = self._after[kr] + self._partial(np.maximum(yr, self.edges[kr]), self.edges[kr + 1])
-            else:
-                value[rest] = self.cumulative[kr] + self._partial(self.edges[kr], np.minimum(yr, self.edges[kr + 1]))
+            up = np.broadcast_to(upper, y.shape)[rest]
+            # Above y in the first piece of a fractional power at the start: the piece's mass less the
+            # part below y, which the Gauss-Jacobi rule integrates (a Gauss-Legendre rule from y up
+            # would miss the power's digits, about 1e-11 of the piece).
+            from_start = up & (kr == 0) if self._jacobi is not None else np.zeros(up.shape, dtype=bool)
+            lower = ~up | from_start
+            start = np.where(lower, self.edges[kr], np.maximum(yr, self.edges[kr]))
+            end = np.where(lower, np.minimum(yr, self.edges[kr + 1]), self.edges[kr + 1])
+            part = self._partial(start, end)
+            value[rest] = np.where(from_start, self._after[kr] + (self.pieces[kr] - part),
+                                   np.where(up, self._after[kr], self.cumulative[kr]) + part)
         return value
 
     def __call__(self, t):
@@ -441,6 +455,18 @@ class CumulativeIntegral:
         value = self._piece_sums(y, upper=True)
         value = np.where(y >= self.edges[-1], 0.0, value)
         value = np.where(y <= self.edges[0], self.total, value)
+        return value.reshape(t.shape)
+
+    def sided(self, t, upper):
+        """The integral below t where ``upper`` is False and above t where it is True, in one pass
+        (each point on the side that keeps its digits: ``upper`` near the end, below it near the start)."""
+        t = np.asarray(t, dtype=float)
+        upper = np.asarray(upper, dtype=bool)
+        upper = (upper if upper.shape == t.shape else np.broadcast_to(upper, t.shape)).ravel()
+        y = self.mapping.to_y(t).ravel()
+        value = self._piece_sums(y, upper)
+        value = np.where(y >= self.edges[-1], np.where(upper, 0.0, self.total), value)
+        value = np.where(y <= self.edges[0], np.where(upper, self.total, 0.0), value)
         return value.reshape(t.shape)
 
 

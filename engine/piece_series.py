@@ -57,6 +57,7 @@ class PieceSeries:
         self.edges = np.asarray(edges, dtype=float)
         self.resolved = resolved
         self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
+        self.masses = np.stack([self.before, self.after])          # 2 x pieces: below and above each
         self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
         # What the series may be off by: its truncation plus the rounding of a sum of such terms;
         # a value is trusted where that is at most RELATIVE of it (never on an unresolved piece).
@@ -64,25 +65,33 @@ class PieceSeries:
         self.limit = np.where(resolved, self.error / RELATIVE, np.inf)
 
     @classmethod
-    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool) -> "PieceSeries":
+    def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
+              upper_sums: bool = True) -> "PieceSeries":
         """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
         and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
         it over pieces. One refinement follows (``refine``): a piece whose series is not resolved is
         cut in four; a piece whose mass below (above) it is too small to be summed with its own
         series near its start (end) is cut geometrically towards that end, so that small masses keep
         their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
-        a fractional power). Only the new parts are evaluated and integrated."""
+        a fractional power). A geometric cut goes only as deep as that piece needs (``depth``); no cut
+        towards an end where ``upper_sums`` is False (only masses below a point will be asked for). Only
+        the new parts are evaluated and integrated."""
         reference = pieces
         values = integrand(cls.nodes(edges[:-1], edges[1:]))
         series = cls(edges, values, reference, before, after)
         mode = np.where(series.resolved, KEEP, QUARTERS)
-        mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
+        if upper_sums:
+            mode[series.resolved & (series.after < series.limit)] = TOWARDS_END
         mode[series.resolved & (series.before < series.limit)] = TOWARDS_START
         if first_end:
             mode[0] = TOWARDS_START
         if np.all(mode == KEEP):
             return series
-        edges, parent, new = refine(edges, mode)
+        steps = np.where(mode == TOWARDS_END, depth(reference, series.after),
+                         np.where(mode == TOWARDS_START, depth(reference, series.before), 0))
+        if first_end:
+            steps[0] = GEOMETRIC_STEPS
+        edges, parent, new = refine(edges, mode, steps)
         kept = np.empty((parent.size, NODES))
         kept[~new] = values[parent[~new]]
         kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
@@ -94,10 +103,21 @@ class PieceSeries:
         mass_before, mass_after = series.before[parent], series.after[parent]
         starts = np.flatnonzero(np.concatenate([[True], np.diff(parent) > 0]))
         ends = np.concatenate([starts[1:], [parent.size]])
-        for first, stop in zip(starts[new[starts]], ends[new[starts]]):
-            part = fresh[first:stop]
-            mass_before[first:stop] += np.cumsum(part) - part
-            mass_after[first:stop] += np.cumsum(part[::-1])[::-1] - part
+        first, stop = starts[new[starts]], ends[new[starts]]
+        if first.size:
+            # Each cut piece's parts as one row (zero-padded at the end), summed along the rows: the
+            # same left-to-right sums as one cumsum per piece, all at once.
+            width = int(np.max(stop - first))
+            index = first[:, None] + np.arange(width)[None, :]
+            inside = index < stop[:, None]
+            rows = np.where(inside, fresh[np.minimum(index, parent.size - 1)], 0.0)
+            below = np.cumsum(rows, axis=1) - rows
+            # Above: the rows reversed within their own length, so the zero padding stays at the end.
+            backwards = np.where(inside, stop[:, None] - 1 - np.arange(width)[None, :], 0)
+            flipped = np.where(inside, fresh[backwards], 0.0)
+            above = np.cumsum(flipped, axis=1) - flipped
+            mass_before[index[inside]] += below[inside]
+            mass_after[backwards[inside]] += above[inside]
         # One round only: a second one was measured to double the pieces for a few points fewer.
         return cls(edges, kept, fresh, mass_before, mass_after)
 
@@ -106,35 +126,60 @@ class PieceSeries:
         """Where the integrand is needed: NODES Chebyshev points on each piece [a_k, b_k]."""
         return 0.5 * (a + b)[:, None] + 0.5 * (b - a)[:, None] * POINTS[None, :]
 
-    def sums(self, y, upper: bool):
-        """The mass below y (or above it, ``upper``), and where the series can be trusted for it
-        (False: the caller's quadrature must supply that point). y inside [edges[0], edges[-1]]."""
-        return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
-                                            self.after if upper else self.before, self.limit)
+    def sums(self, y, upper):
+        """The mass below y (or above it, where ``upper``: one flag for all points or one per point),
+        and where the series can be trusted for it (False: the caller's quadrature must supply that
+        point). y inside [edges[0], edges[-1]]."""
+        if np.ndim(upper) == 0:
+            return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
+                                                self.after if upper else self.before, self.limit)
+        return kernels.chebyshev_piece_sums(y, self.edges, self.table, upper, self.masses, self.limit)
 
 
 KEEP, QUARTERS, TOWARDS_START, TOWARDS_END = 0, 1, 2, 3
-_GEOMETRIC = 2.0 ** -np.arange(GEOMETRIC_STEPS, 0, -1)
-# Where each kind of cut starts its parts, as fractions of the piece.
-_PARTS = {KEEP: np.array([0.0]), QUARTERS: np.arange(4) / 4.0,
-          TOWARDS_START: np.concatenate([[0.0], _GEOMETRIC]),
-          TOWARDS_END: np.concatenate([[0.0], 1.0 - _GEOMETRIC[::-1]])}
+_QUARTERS = np.arange(4) / 4.0
 
 
-def refine(edges, mode):
-    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END,
-    down to 2^-GEOMETRIC_STEPS of the piece: each part is then smooth on its own scale and carries its
-    own small mass). Returns the new edges and, per new piece, the index of the piece it came from
-    and whether it is new."""
+def depth(mass, beside):
+    """Steps of a geometric cut of pieces of mass ``mass`` towards an end with the mass ``beside``
+    beyond it. A value next to that end is trusted when the mass beyond its part is at least 1/25 of
+    the part's own (the rounding of the part's terms, 4e-16 of them, against RELATIVE = 1e-14 of the
+    value). The part at depth j holds at most 2^-j of the piece where the integrand does not rise
+    towards that end (a tail), so j = log2(mass / (25 beside)) + 2 leaves a fourfold margin; the
+    full GEOMETRIC_STEPS where nothing lies beyond (the last piece) or the ratio is not finite."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        j = np.ceil(np.log2(np.abs(mass) / (25.0 * beside))) + 2.0
+    return np.where(np.isfinite(j) & (beside > 0), np.clip(j, 1, GEOMETRIC_STEPS), GEOMETRIC_STEPS).astype(np.int64)
+
+
+def refine(edges, mode, steps=None):
+    """Cut each piece as ``mode`` says (KEEP, QUARTERS, or geometrically TOWARDS_START / TOWARDS_END
+    in ``steps`` halvings, GEOMETRIC_STEPS unless given: down to 2^-steps of the piece, each part is
+    then smooth on its own scale and carries its own small mass). Returns the new edges and, per
+    new piece, the index of the piece it came from and whether it is new."""
     a, b = edges[:-1], edges[1:]
-    fractions = [_PARTS[int(k)] for k in mode]
+    if steps is None:
+        steps = np.full(mode.shape, GEOMETRIC_STEPS)
+    fractions = [_QUARTERS[:1]] * a.size
+    levels = [_QUARTERS[:1]] * a.size
+    for i in np.flatnonzero(mode != KEEP).tolist():
+        k, j = int(mode[i]), int(steps[i])
+        if k == QUARTERS:
+            fractions[i] = levels[i] = _QUARTERS
+        else:
+            # Parts start at 0, then 2^-j ... 2^-1 (towards the start) or 1 - 2^-1 ... 1 - 2^-j (end);
+            # ``levels`` keeps the exponents of the end's cut, written b - w 2^-i below.
+            powers = np.arange(j, 0, -1) if k == TOWARDS_START else np.arange(1, j + 1)
+            halves = 2.0 ** -powers
+            fractions[i] = np.concatenate([[0.0], halves if k == TOWARDS_START else 1.0 - halves])
+            levels[i] = np.concatenate([[0.0], powers])
     counts = np.array([f.size for f in fractions])
     parent = np.repeat(np.arange(a.size), counts)
     starts = a[parent] + (b - a)[parent] * np.concatenate(fractions)
     if np.any(mode == TOWARDS_END):
         # b - w * 2^-j directly: a + w * (1 - 2^-j) rounds the small steps away next to b.
         end = np.flatnonzero(mode[parent] == TOWARDS_END)
-        j = np.concatenate([np.arange(GEOMETRIC_STEPS + 1)] * int(np.sum(mode == TOWARDS_END)))
+        j = np.concatenate(levels)[end]
         starts[end] = np.where(j == 0, a[parent[end]], b[parent[end]] - (b - a)[parent[end]] * 2.0 ** -j)
     keep = np.concatenate([[True], np.diff(starts) > 0])     # parts that rounded together are dropped
     starts, parent = starts[keep], parent[keep]

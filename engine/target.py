@@ -131,6 +131,19 @@ class Target:
         """R(t) = P(T > t), the reliability (survival) function."""
         return self._masked(t, self._sf, 1.0, 0.0)
 
+    def cdf_or_sf(self, t, upper):
+        """F(t) where ``upper`` is False and R(t) where it is True (a flag per point), so each point
+        is read on the side that keeps its digits; a model whose F and R come from one computation
+        answers all points in one pass."""
+        t = np.asarray(t, dtype=float)
+        upper = np.broadcast_to(np.asarray(upper, dtype=bool), t.shape)
+        out = np.empty(t.shape)
+        if not upper.all():
+            out[~upper] = self.cdf(t[~upper])
+        if upper.any():
+            out[upper] = self.sf(t[upper])
+        return out
+
     def hazard(self, t):
         """h(t) = f(t)/R(t), the instantaneous failure rate."""
         return self._masked(t, self._hazard, 0.0, np.nan)

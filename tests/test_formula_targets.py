@@ -237,3 +237,23 @@ def test_weibull_cdf_formula_quantile_matches_scipy():
 def test_weibull_cdf_formula_mean_is_eta_gamma_one_plus_one_over_beta():
     # NIST e-Handbook 8.1.6.2 (from memory).
     assert weibull_cdf_formula().mean() == pytest.approx(300.0 * special.gamma(1 + 1 / 1.7), rel=RTOL)
+
+
+@pytest.mark.parametrize("build", [
+    lambda: lifedraw.density_formula("t**(k - 1)*exp(-(t/s)**p)", (0, math.inf), dict(k=2.5, p=1.6, s=1.0)),
+    lambda: lifedraw.hazard_formula("a*b*t**(b - 1) + c", (0, math.inf), dict(a=1.0, b=2.5, c=0.05)),
+    lambda: lifedraw.density_formula("exp(-t**2/2)", (-math.inf, math.inf)),
+])
+def test_cdf_or_sf_answers_each_point_as_cdf_or_sf_would(build):
+    # The one-pass form that numerical inversion calls: F where the flag is off, R where it is on,
+    # bit for bit as the two separate calls give, at both ends of the support, inside, and beyond it.
+    target = build()
+    lo, hi = target.support
+    rng = np.random.default_rng(8)
+    inside = target.quantile(np.sort(rng.random(997)))
+    t = np.concatenate([[lo] if np.isfinite(lo) else [], inside, [hi] if np.isfinite(hi) else []])
+    upper = rng.random(t.size) < 0.5
+    np.testing.assert_array_equal(target.cdf_or_sf(t, upper), np.where(upper, target.sf(t), target.cdf(t)))
+    beyond = np.concatenate([t, [hi if np.isfinite(hi) else 1e300, np.nan]])
+    flags = np.concatenate([upper, [True, False]])
+    np.testing.assert_array_equal(target.cdf_or_sf(beyond, flags), np.where(flags, target.sf(beyond), target.cdf(beyond)))

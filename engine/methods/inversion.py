@@ -24,6 +24,9 @@ from .base import Sampler
 ORDER = 5                    # polynomial degree of each piece (DHL 2010 recommend 3-5)
 MAX_PIECES = 50_000
 INITIAL_STEPS = 32           # first partition: equal steps of the target's mapped coordinate
+BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS, and 2^-k, 1 - 2^-k (k = 6, 7.5, ... 33) in the tails
+QUANTILE_LEVELS = np.concatenate([np.arange(1, BULK_STEPS) / BULK_STEPS, 2.0 ** -np.arange(6.0, 34.0, 1.5),
+                                  1.0 - 2.0 ** -np.arange(6.0, 34.0, 1.5)])
 #: Interpolation nodes of a piece in its own u-coordinate s: Chebyshev-Lobatto points on [0, 1].
 NODES_S = 0.5 * (1.0 - np.cos(np.pi * np.arange(ORDER + 1) / ORDER))
 #: u-error test points: three between each pair of neighbouring nodes (1/4, 1/2, 3/4 of the gap),
@@ -92,29 +95,17 @@ class NumericalInversion(Inversion):
                                                 "this model has atoms (use exact inversion)")
 
     # ---- set-up ------------------------------------------------------------------
-    def _delta_u(self, x0, x, base=None):
-        """F(x) - F(x0) for rows of x, and each row's base: F(x0), or R(x0) in the upper rows, where
-        the survival function keeps the digits that F runs out of. A row is upper when x0 lies at
-        or beyond the model's median (found by ``_domain``); each row is evaluated by one of the two
-        only, in one call each, and a base already known is not evaluated again."""
-        t = self.target
-        x0 = np.asarray(x0, dtype=float)
-        x = np.asarray(x, dtype=float)
-        upper_rows = x0 >= self._median
-        out = np.empty(x.shape)
-        known = base is not None
-        if not known:
-            base = np.empty(x0.shape)
-        for rows, fn, sign in ((~upper_rows, t.cdf, 1.0), (upper_rows, t.sf, -1.0)):
-            n = int(rows.sum())
-            if not n:
-                continue
-            xr = x[rows].ravel()
-            values = np.asarray(fn(xr if known else np.concatenate([x0[rows], xr])), dtype=float)
-            if not known:
-                base[rows], values = values[:n], values[n:]
-            out[rows] = sign * (values.reshape(-1, x.shape[1]) - base[rows][:, None])
-        return out, base
+    def _delta_u(self, upper, x, base=None):
+        """F(x) - F(x_0) for rows of ages x, x_0 = the row's first age, and each row's base: F(x_0),
+        or R(x_0) in the ``upper`` rows (x_0 at or beyond the model's median, found by ``_domain``),
+        where the survival function keeps the digits that F runs out of. All rows in one call of the
+        model (``Target.cdf_or_sf``); a base already known is passed in and x then omits x_0."""
+        values = np.asarray(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
+                            dtype=float).reshape(x.shape)
+        if base is None:
+            base = values[:, 0].copy()
+        sign = np.where(upper, -1.0, 1.0)
+        return sign[:, None] * (values - base[:, None]), base
 
     def _domain(self) -> tuple[float, float, float]:
         """Computational domain: tails beyond mass ``cut`` are cut (DHL 2010, sec. 4).
@@ -123,8 +114,8 @@ class NumericalInversion(Inversion):
         measured and counted in the u-error), so a scan of the coordinate grid
         replaces root solving. The same scan gives a point near the median, where
         ``_delta_u`` changes from F to the survival function. F is evaluated on the
-        grid only for an infinite lower end or a finite support, R only for an
-        infinite upper end.
+        grid only for an infinite lower end or a finite support (whose upper tail
+        is then cut by 1 - F), R only for an infinite upper end.
         """
         t = self.target
         cut = 0.05 * self.tolerance
@@ -136,9 +127,16 @@ class NumericalInversion(Inversion):
             F_raw = np.asarray(t.cdf(grid), dtype=float)
             F = np.maximum.accumulate(np.clip(F_raw, 0.0, 1.0))
             median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
+            self._scan = (grid, F)
             if not np.isfinite(lo):
                 i = int(np.flatnonzero(F <= cut)[-1]) if np.any(F <= cut) else 0
                 a, lost = float(grid[i]), lost + float(F_raw[i])
+            if np.isfinite(hi):
+                # The upper tail of a finite support is cut as an infinite one is (1 - F keeps its
+                # absolute digits to about 1e-16, far below the cut): a hazard model's support ends
+                # where R underflows, far beyond the last mass that a uniform resolves.
+                i = int(np.flatnonzero(1.0 - F <= cut)[0])
+                b, lost = float(grid[i]), lost + max(float(1.0 - F_raw[i]), 0.0)
         if not np.isfinite(hi):
             S_raw = np.asarray(t.sf(grid), dtype=float)
             S = np.minimum.accumulate(np.clip(S_raw, 0.0, 1.0))
@@ -146,62 +144,54 @@ class NumericalInversion(Inversion):
             b, lost = float(grid[i]), lost + float(S_raw[i])
             if median is None:
                 median = float(grid[int(np.argmax(S <= 0.5))] if np.any(S <= 0.5) else grid[-1])
+                self._scan = (grid, 1.0 - S)
         if not (np.isfinite(a) and np.isfinite(b) and a < b):
             raise MethodNotApplicable("method", "numerical inversion could not bound the model's tails")
         self._median = median
         return a, b, lost
 
     def _initial_edges(self, a, b):
-        """A first partition from the target's coordinate map (no root solving):
-        equal steps in the mapped coordinate put points where the mass is."""
+        """A first partition from the target's coordinate map (no root solving): equal steps in the
+        mapped coordinate, plus ages near fixed quantiles read off the domain's scan; together they
+        leave two fitting rounds (the first splits what fails, the second confirms) on the bench targets."""
         t = self.target
         m = t.mapping
         ylo, yhi = m.y_range
         grid = m.to_t(np.linspace(ylo, yhi, INITIAL_STEPS + 1)[1:-1])
         extra = [x for x in getattr(t, "breakpoints", lambda: [])()]
-        pts = [grid, [a, b], extra]
+        # Ages near the quantiles k/BULK_STEPS, read off the domain's scan (F on the mapped grid,
+        # linear between its points): the mapped grid follows the support map, these follow the mass.
+        scan_t, scan_F = self._scan
+        quantiles = np.interp(QUANTILE_LEVELS, scan_F, scan_t)
+        pts = [grid, [a, b], extra, quantiles]
         if np.isfinite(t.support[0]) and a == t.support[0]:
             # Geometric steps towards a finite start of life: a pole there, or a density that
             # starts like a power of the age, leaves F^-1 far from polynomial next to it.
             first = grid[grid > a][0] if np.any(grid > a) else b
-            pts.append(a + (first - a) * np.logspace(-12, 0, 13))
+            steps = a + (first - a) * np.logspace(-12, 0, 13)
+            # Below the last step where the scan finds next to no mass (F <= 1e-14 at the grid age
+            # above it) one piece does (linear, its u-error at most its mass): the steps under it
+            # would only cost evaluations next to the start.
+            empty = np.flatnonzero(np.interp(steps, scan_t, scan_F) <= 1e-14)
+            pts.append(steps[empty[-1]:] if empty.size else steps)
         edges = np.unique(np.concatenate([np.asarray(p, dtype=float) for p in pts]))
         return edges[(edges >= a) & (edges <= b) & np.isfinite(edges)]
 
     def _fit_pieces(self, x0, x1):
         """Fit the interpolating polynomial of each piece; return coefficients, masses, F at the
-        starts and u-errors."""
-        k = ORDER
-        w = (x1 - x0)
-        xs = x0[:, None] + w[:, None] * NODES_S[None, :]
-        du = np.zeros(xs.shape)
-        du[:, 1:], base = self._delta_u(x0, xs[:, 1:])      # the first node is x0 itself
-        F_at = np.where(x0 >= self._median, 1.0 - base, base)
+        starts and u-errors. Two calls of the model (the nodes, then the test points between them)
+        and two compiled passes (the polynomials and where they put the test points, then the
+        u-errors), each with a numpy twin."""
+        w = x1 - x0
+        upper = x0 >= self._median
+        xs = x0[:, None] + w[:, None] * NODES_S[None, :]     # the first node is x0 itself: the base
+        du, base = self._delta_u(upper, xs)
+        F_at = np.where(upper, 1.0 - base, base)
         total = du[:, -1].copy()
-        linear = total <= 0.5 * self.tolerance
-        safe_total = np.where(total > 0, total, 1.0)
-        s = du / safe_total[:, None]
-        ok_nodes = np.all(np.diff(s, axis=1) > 0, axis=1) & ~linear
-        coef = np.zeros((x0.size, k + 1))
-        coef[:, 1] = 1.0                                     # linear in s: x = x0 + w*s
-        if np.any(ok_nodes):
-            # Newton's divided differences for all pieces at once (a compiled loop with a numpy
-            # twin), not one small linear solve per piece.
-            coef[ok_nodes] = kernels.interpolating_coefficients(s[ok_nodes], NODES_S)
-        err = self._piece_errors(x0, w, total, coef, base)
-        err = np.where(linear, total, err)
-        err = np.where(~ok_nodes & ~linear, np.inf, err)
+        coef, x_test, status = kernels.inverse_pieces(x0, w, du, NODES_S, TEST_S, 0.5 * self.tolerance)
+        du_test, _ = self._delta_u(upper, x_test, base)
+        err = kernels.inverse_piece_errors(du_test, total, TEST_S, status)
         return coef, total, F_at, err
-
-    def _piece_errors(self, x0, w, total, coef, base):
-        """The u-error of each piece at TEST_S, inf where the polynomial is not increasing there
-        (``base``: each row's F(x0) or R(x0), from ``_delta_u``)."""
-        x = x0[:, None] + w[:, None] * _horner(coef[:, None, :], TEST_S[None, :])
-        xs = np.concatenate([x0[:, None], x, (x0 + w)[:, None]], axis=1)
-        monotone = np.all(np.diff(xs, axis=1) >= 0, axis=1)         # TEST_S is sorted
-        du, _ = self._delta_u(x0, x, base)
-        err = np.max(np.abs(du - total[:, None] * TEST_S[None, :]), axis=1)
-        return np.where(monotone, err, np.inf)
 
     def _construct(self, x0, x1):
         """Fit pieces, splitting the failing ones, until each passes its u-error test."""
@@ -223,7 +213,9 @@ class NumericalInversion(Inversion):
             # as that rate says it needs, with a margin: few rounds, not bisection.
             with np.errstate(divide="ignore", invalid="ignore"):
                 parts = np.ceil(1.25 * (eb / budget) ** (1.0 / (ORDER + 1)))
-            parts = np.where(np.isfinite(parts), parts, 8.0)
+            # A piece whose polynomial failed outright (not increasing: no error to go by) is cut in 16,
+            # which the bench targets' pieces next to a power-law start or in a tail were measured to need.
+            parts = np.where(np.isfinite(parts), parts, 16.0)
             parts = np.clip(parts, 2, 64).astype(np.int64)
             x0, x1 = _split(xa, xb, parts)
             self._pieces_so_far = sum(d[0].size for d in done) + x0.size
@@ -358,11 +350,3 @@ def _split(xa, xb, parts):
     end = np.where(geometric, end_g, a + (b - a) * (j + 1) / q)
     end = np.where(j == q - 1, b, end)
     return start, end
-
-
-def _horner(coef, s):
-    """Evaluate sum_j coef[..., j] s^j by Horner's rule, broadcasting over pieces."""
-    out = coef[..., -1] * np.ones_like(s)
-    for j in range(coef.shape[-1] - 2, -1, -1):
-        out = out * s + coef[..., j]
-    return out
