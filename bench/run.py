@@ -307,6 +307,9 @@ else:
         rows.append(dict(section="6. scaling and memory", target="-", note=f"could not run: {err}"))
 
 
+DASHBOARD_P95_MS = 150.0      # issue 13: slider release -> redraw, p95 (was 250 ms)
+
+
 def bench_dashboard(rows):
     script = HERE / "dashboard_latency.py"
     if not script.exists():
@@ -319,9 +322,9 @@ def bench_dashboard(rows):
             res = json.loads(out)
             rows.append(dict(section="7. dashboard slider-to-redraw latency (headless Chromium)",
                              target=f"{res.get('batch', 50000):,} draws per batch, {label}", ours=res["p95_ms"],
-                             ref=250.0, ratio=res["p95_ms"] / 250.0, goal=-1.0,
+                             ref=DASHBOARD_P95_MS, ratio=res["p95_ms"] / DASHBOARD_P95_MS, goal=-1.0,
                              note=f"p95 {res['p95_ms']:.0f} ms, median {res['median_ms']:.0f} ms over "
-                                  f"{res['trials']} releases (goal p95 <= 250 ms)"))
+                                  f"{res['trials']} releases (goal p95 <= {DASHBOARD_P95_MS:g} ms)"))
         except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
             rows.append(dict(section="7. dashboard latency", target=label, note=f"could not run: {err}"))
 
@@ -423,14 +426,19 @@ GAPS = {
     "6": ("the machine's second core was shared with other processes during the run (see the load average "
           "below); two threads draw in parallel (the compiled kernels release the GIL), so the ratio is bounded "
           "by the idle capacity of the second core, not by the sampler."),
-    "8": ("about two thirds of the command is fixed cost before any work: Python importing scipy, numpy, numba "
+    "8": ("about half of the command's CPU time is spent before any work, in imports: scipy, numpy and numba "
           "(the engine), HoloViews, Bokeh and Panel (HoloViews' Bokeh renderer imports Panel) and pandas "
-          "(HoloViews keeps element data in data frames), about 2 s of CPU together; the rest is HoloViews "
-          "turning 16 pictures into Bokeh models (about 0.9 s), serialising them (0.4 s), and the method "
-          "comparison it measures (0.3 s). See bench/results.md for the breakdown."),
-    "7": ("measured while other processes shared the 2 cores (see the load averages below): the page's "
-          "server and the headless browser compete for the same cores as the draws; the earlier run on a quiet "
-          "machine met both goals (p95 176 and 234 ms)."),
+          "(HoloViews keeps element data in data frames), about 2 s of CPU on this machine; the rest is "
+          "HoloViews turning 16 pictures into Bokeh models (about 0.9 s), serialising them (0.4 s), the method "
+          "comparison it measures (0.3 s) and the fleet study (0.1 s). The interpreter's last garbage "
+          "collection (0.7 s) is skipped. Measured while other processes shared the 2 cores."),
+    "7": ("what a release costs now, measured by aligning the browser's and the server's clocks on this "
+          "machine: the slider's release travelling from headless Chromium to the server (about 40-60 ms), the "
+          "refit with its first batch of 50,000 draws and HoloViews redrawing the histogram off the page (about "
+          "40 ms; MirroredPlot copies the new values onto the page, so Bokeh no longer walks the page's ~640 "
+          "models after each redraw), and Chromium applying the change (20-40 ms). While the stream runs, a "
+          "release can also wait for the one piece of work in progress (a batch or one secondary picture, "
+          "about 20-60 ms). Measured while other processes shared the 2 cores (see the load averages below)."),
 }
 
 
