@@ -14,7 +14,10 @@ from typing import Callable
 
 import holoviews as hv
 import numpy as np
+from bokeh.document import Document
+from bokeh.io.doc import patch_curdoc
 from bokeh.model import Model
+from holoviews.plotting.bokeh import BokehRenderer
 
 
 def models_in_order(root: Model) -> list[Model]:
@@ -92,8 +95,14 @@ class MirroredPlot:
         self.pipe = hv.streams.Pipe(data=data)
         dmap = hv.DynamicMap(lambda data: self.picture(data), streams=[self.pipe]).opts(framewise=True,
                                                                                          axiswise=True)
-        self.offstage = hv.renderer("bokeh").get_plot(dmap)     # in no document: redraws need no freeze
-        self.figure = hv.render(self.picture(data), backend="bokeh")
+        # HoloViews gives every plot it makes the current Bokeh document (``curdoc()``), which in a server
+        # callback may be any session's, even a closed one's: these plots get a document of their own that
+        # is never shown. Asked of the renderer class, not of HoloViews' shared renderer, which would keep
+        # the last plot it made (another session's) alive.
+        self._document = Document()
+        with patch_curdoc(self._document):
+            self.offstage = BokehRenderer.get_plot(dmap)     # its figure is in no document: no freeze per redraw
+            self.figure = BokehRenderer.get_plot(self.picture(data)).state
         self._pairs, self._shape = self._pair(), _shape(self.offstage.state)
 
     def _pair(self):
