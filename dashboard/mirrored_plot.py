@@ -88,21 +88,27 @@ class MirroredPlot:
     def __init__(self, picture: Callable[[dict], hv.Element], data: dict):
         self.picture = picture
         self.replaced = False
-        self._start(data)
+        # HoloViews gives every plot it makes the current Bokeh document (``curdoc()``), which in a server
+        # callback may be any session's, even a closed one's: these plots get a document of their own that
+        # is never shown.
+        self._document = Document()
+        self.figure = self._render(picture(data)).state
+        self.offstage = self.pipe = None        # made at the first new frame, so a new page costs one rendering
+        self._pairs, self._shape = None, None
 
-    def _start(self, data: dict) -> None:
-        """Render ``data`` twice: off the page (redrawn by HoloViews for each frame) and for the page."""
+    def _render(self, element_or_map):
+        """A HoloViews plot of ``element_or_map``, asked of the renderer class, not of HoloViews' shared
+        renderer, which would keep the last plot it made (another session's) alive."""
+        with patch_curdoc(self._document):
+            return BokehRenderer.get_plot(element_or_map)
+
+    def _follow(self, data: dict) -> None:
+        """The plot off the page, drawing ``data``; HoloViews redraws it for each new frame. Its figure is
+        in no document, so a redraw needs no freeze."""
         self.pipe = hv.streams.Pipe(data=data)
         dmap = hv.DynamicMap(lambda data: self.picture(data), streams=[self.pipe]).opts(framewise=True,
                                                                                          axiswise=True)
-        # HoloViews gives every plot it makes the current Bokeh document (``curdoc()``), which in a server
-        # callback may be any session's, even a closed one's: these plots get a document of their own that
-        # is never shown. Asked of the renderer class, not of HoloViews' shared renderer, which would keep
-        # the last plot it made (another session's) alive.
-        self._document = Document()
-        with patch_curdoc(self._document):
-            self.offstage = BokehRenderer.get_plot(dmap)     # its figure is in no document: no freeze per redraw
-            self.figure = BokehRenderer.get_plot(self.picture(data)).state
+        self.offstage = self._render(dmap)
         self._pairs, self._shape = self._pair(), _shape(self.offstage.state)
 
     def _pair(self):
@@ -121,16 +127,20 @@ class MirroredPlot:
 
     def show(self, data: dict) -> int:
         """Draw ``data``; returns the number of property values copied onto the page (-1: drawn afresh)."""
-        self.pipe.send(data)
-        shape = _shape(self.offstage.state)
-        if shape != self._shape or self._pairs is None:
-            # HoloViews made new models for this frame: pair them anew (values set for the first
-            # time are picked up here too).
-            self._pairs, self._shape = self._pair(), shape
+        if self.offstage is None:
+            self._follow(data)
+        else:
+            self.pipe.send(data)
+            shape = _shape(self.offstage.state)
+            if shape != self._shape or self._pairs is None:
+                # HoloViews made new models for this frame: pair them anew (values set for the first
+                # time are picked up here too).
+                self._pairs, self._shape = self._pair(), shape
         if self._pairs is None:
             # Another set of layers (field data, a log axis): HoloViews cannot grow the plot off the page
             # either, so both renderings start again from this frame.
-            self._start(data)
+            self.figure = self._render(self.picture(data)).state
+            self._follow(data)
             self.replaced = True
             return -1
         copied = 0
