@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import os
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"):
+_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
+_THREAD_VARIABLES_BEFORE = {_var: os.environ.get(_var) for _var in _THREAD_VARIABLES}
+for _var in _THREAD_VARIABLES:
     os.environ[_var] = "1"
 
 import argparse
@@ -318,6 +320,9 @@ else:
         rows.append(dict(section="6. scaling and memory", target="-", note=f"could not run: {err}"))
 
 
+DASHBOARD_P95_MS = 150.0      # issue 13: slider release -> redraw, p95 (was 250 ms)
+
+
 def bench_dashboard(rows):
     script = HERE / "dashboard_latency.py"
     if not script.exists():
@@ -330,9 +335,9 @@ def bench_dashboard(rows):
             res = json.loads(out)
             rows.append(dict(section="7. dashboard slider-to-redraw latency (headless Chromium)",
                              target=f"{res.get('batch', 50000):,} draws per batch, {label}", ours=res["p95_ms"],
-                             ref=250.0, ratio=res["p95_ms"] / 250.0, goal=-1.0,
+                             ref=DASHBOARD_P95_MS, ratio=res["p95_ms"] / DASHBOARD_P95_MS, goal=-1.0,
                              note=f"p95 {res['p95_ms']:.0f} ms, median {res['median_ms']:.0f} ms over "
-                                  f"{res['trials']} releases (goal p95 <= 250 ms)"))
+                                  f"{res['trials']} releases (goal p95 <= {DASHBOARD_P95_MS:g} ms)"))
         except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
             rows.append(dict(section="7. dashboard latency", target=label, note=f"could not run: {err}"))
 
@@ -362,6 +367,45 @@ def bench_life(rows, n=10**9):
                               "over the draws"))
     except (subprocess.SubprocessError, json.JSONDecodeError, IndexError, KeyError) as err:
         rows.append(dict(section=section, target="-", note=f"could not run: {err}"))
+
+
+REPORT_SCENARIO = "gearbox-wearout"
+REPORT_SECONDS = 3.0          # issue 13: the whole `lifedraw report` command
+REPORT_BYTES = 600_000        # ... and the file it writes
+
+
+def bench_report(rows, runs: int = 3):
+    """`lifedraw report` as a user runs it: a fresh process each time (imports, drawing, checks, the method
+    comparison, the fleet study, rendering and packing the plots, writing the file), median wall time."""
+    import resource
+    import tempfile
+    # The user's environment, not this script's single-thread settings.
+    env = {k: v for k, v in os.environ.items() if k not in _THREAD_VARIABLES}
+    env.update({k: v for k, v in _THREAD_VARIABLES_BEFORE.items() if v is not None})
+    walls, cpus, size = [], [], None
+    try:
+        with tempfile.TemporaryDirectory() as folder:
+            out = Path(folder) / "report.html"
+            for _ in range(runs):
+                before = resource.getrusage(resource.RUSAGE_CHILDREN)
+                start = time.perf_counter()
+                subprocess.run([sys.executable, "-m", "lifedraw", "report", REPORT_SCENARIO, "-o", str(out),
+                                "--force"], check=True, capture_output=True, env=env, cwd=HERE.parent, timeout=300)
+                walls.append(time.perf_counter() - start)
+                after = resource.getrusage(resource.RUSAGE_CHILDREN)
+                cpus.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
+                size = out.stat().st_size
+    except (subprocess.SubprocessError, OSError) as err:
+        rows.append(dict(section="9. report", target=REPORT_SCENARIO, note=f"could not run: {err}"))
+        return
+    wall, cpu = statistics.median(walls), statistics.median(cpus)
+    rows.append(dict(section="9. report: the whole `lifedraw report` command", target=REPORT_SCENARIO,
+                     ours=wall, ref=REPORT_SECONDS, ratio=wall / REPORT_SECONDS, goal=-1.0,
+                     note=f"seconds, median of {runs} fresh processes (CPU {cpu:.2f} s; runs "
+                          f"{', '.join(f'{w:.2f}' for w in walls)} s); goal <= {REPORT_SECONDS:g} s"))
+    rows.append(dict(section="9. report: size of the file", target=REPORT_SCENARIO, ours=size / 1e3,
+                     ref=REPORT_BYTES / 1e3, ratio=size / REPORT_BYTES, goal=-1.0,
+                     note=f"kB, standalone (BokehJS and plots gzip-packed inside); goal <= {REPORT_BYTES / 1e3:g} kB"))
 
 
 def _machine() -> str:
@@ -432,9 +476,19 @@ GAPS = {
           "chunk (about 3-4 ns a draw against 40-60 ns to draw it) and a sort of the first chunk on each worker; "
           "a ratio above the goal means the machine was busy (compare the worker CPU ratio in the notes) or the "
           "first chunks misled the windows and the radix select ran two more passes (the notes count the passes)."),
-    "7": ("measured while other processes shared the 2 cores (see the load averages below): the page's "
-          "server and the headless browser compete for the same cores as the draws; the earlier run on a quiet "
-          "machine met both goals (p95 176 and 234 ms)."),
+    "7": ("what a release costs now, measured by aligning the browser's and the server's clocks on this "
+          "machine: the slider's release travelling from headless Chromium to the server (about 40-60 ms), the "
+          "refit with its first batch of 50,000 draws and HoloViews redrawing the histogram off the page (about "
+          "40 ms; MirroredPlot copies the new values onto the page, so Bokeh no longer walks the page's ~640 "
+          "models after each redraw), and Chromium applying the change (20-40 ms). While the stream runs, a "
+          "release can also wait for the one piece of work in progress (a batch or one secondary picture, "
+          "about 20-60 ms). Measured while other processes shared the 2 cores (see the load averages below)."),
+    "9": ("about half of the command's CPU time is spent before any work, in imports: scipy, numpy and numba "
+          "(the engine), HoloViews, Bokeh and Panel (HoloViews' Bokeh renderer imports Panel) and pandas "
+          "(HoloViews keeps element data in data frames), about 2 s of CPU on this machine; the rest is "
+          "HoloViews turning 16 pictures into Bokeh models (about 0.9 s), serialising them (0.4 s), the method "
+          "comparison it measures (0.3 s) and the fleet study (0.1 s). The interpreter's last garbage "
+          "collection (0.7 s) is skipped. Measured while other processes shared the 2 cores."),
 }
 
 
@@ -472,13 +526,13 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--out", default=str(HERE / "results.md"))
     parser.add_argument("--skip", nargs="*", default=[], help="sections to skip: inversion rejection normal "
-                                                               "generic refit threads dashboard life scaling")
+                                                               "generic refit threads dashboard life report scaling")
     args = parser.parse_args(argv)
     rows: list[dict] = []
     load_at_start = " / ".join(f"{v:.2f}" for v in os.getloadavg()) + " (1, 5, 15 min; 2 cores)"
     sections = [("inversion", bench_inversion), ("rejection", bench_rejection_and_rou), ("normal", bench_normal),
                 ("generic", bench_generic), ("refit", bench_refit), ("threads", bench_threads),
-                ("dashboard", bench_dashboard), ("life", bench_life)]
+                ("dashboard", bench_dashboard), ("life", bench_life), ("report", bench_report)]
     for key, fn in sections:
         if key in args.skip:
             continue

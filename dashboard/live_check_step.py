@@ -1,13 +1,24 @@
 """Step 3, the live check: histogram, hazard rate and cumulative hazard, Weibull probability
-plot, QQ/PP, KS and acceptance traces; live plots are DynamicMaps fed by hv.streams.Pipe."""
+plot, QQ/PP, KS and acceptance traces; each live plot is a MirroredPlot (new frames drawn off the
+page by HoloViews, their values copied onto the shown Bokeh plot)."""
 from __future__ import annotations
 
-import holoviews as hv
 import panel as pn
 
 from . import plots
 from . import reliability_plots
+from .mirrored_plot import MirroredPlot
 from .step_base import Step, TEXT_CSS, text_pane
+
+#: Each picture of the step, drawn from plain data (shared with the report).
+PICTURES = {"hist": plots.density_histogram, "hazard": reliability_plots.hazard_plot,
+            "cumulative": reliability_plots.cumulative_hazard_plot, "weibull": reliability_plots.weibull_plot,
+            "qq": plots.qq_plot, "pp": plots.pp_plot, "ks": lambda data: plots.trace_plot(data, "ks_p"),
+            "acceptance": lambda data: plots.trace_plot(data, "acceptance")}
+#: The secondary pictures in the pieces that ``refresh_secondary`` redraws one at a time (traces with the texts).
+PIECE_PICTURES = {"qq": ("qq", "pp"), "hazard": ("hazard", "cumulative"), "weibull": ("weibull",),
+                  "trace": ("ks", "acceptance")}
+SECONDARY_PIECES = tuple(PIECE_PICTURES)
 
 
 # ---- 3. live check ---------------------------------------------------------------------------
@@ -27,92 +38,79 @@ class LiveCheckStep(Step):
         self.hazard_log = pn.widgets.Checkbox(name="log-log axes for the hazard (a Weibull is a straight line)",
                                               value=s.hazard_log, css_classes=["ld-hazard-log"])
         self.hazard_log.param.watch(lambda e: self.act(self._set_hazard_log, e.new), "value")
-        self.pipes = {k: hv.streams.Pipe(data=None) for k in ("hist", "qq", "pp", "trace", "hazard", "weibull")}
-        self._push_all()
-        self.hist = self._histogram_map()
-        self.weibull = hv.DynamicMap(lambda data: reliability_plots.weibull_plot(data), streams=[self.pipes["weibull"]])
-        self.qq = hv.DynamicMap(lambda data: plots.qq_plot(data), streams=[self.pipes["qq"]])
-        self.pp = hv.DynamicMap(lambda data: plots.pp_plot(data), streams=[self.pipes["pp"]])
-        self.ks_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "ks_p"), streams=[self.pipes["trace"]])
-        self.acc_trace = hv.DynamicMap(lambda data: plots.trace_plot(data, "acceptance"),
-                                       streams=[self.pipes["trace"]])
-        for dm in (self.qq, self.pp, self.ks_trace, self.acc_trace, self.weibull):
-            dm.opts(framewise=True, axiswise=True)
-        pane = lambda dm, h: pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=h, margin=(0, 6))
-        self.hist_pane = pane(self.hist, 330)
-        # Not linked to the other plots' axes: the hazard's age axis turns logarithmic on request,
-        # and a shared range would carry the linear axis's 0 onto the log axis.
-        self.hazard_panes = [pn.pane.HoloViews(dm, sizing_mode="stretch_width", height=300, margin=(0, 6),
-                                               linked_axes=False) for dm in self._hazard_maps()]
-        self.weibull_pane = pane(self.weibull, 340)
-        self.panes = [pane(self.qq, 290), pane(self.pp, 290), pane(self.ks_trace, 250), pane(self.acc_trace, 250)]
+        self.mirrors = {}
+        self.panes = {}
+        for key, height in (("hist", 330), ("hazard", 300), ("cumulative", 300), ("weibull", 340), ("qq", 290),
+                            ("pp", 290), ("ks", 250), ("acceptance", 250)):
+            self.mirrors[key] = MirroredPlot(PICTURES[key], self._data(key))
+            self.panes[key] = pn.pane.Bokeh(self.mirrors[key].figure, sizing_mode="stretch_width", height=height,
+                                            margin=(0, 6))
         self.counters = text_pane()
         self.summary = text_pane()
         self.marker = text_pane(css_classes=["ld-marker"])
-        self._stale = False
+        self._due: list[str] = []
         s.param.watch(lambda e: self.refresh(), "batch")
         self.refresh(push=False)
 
-    def _histogram_map(self) -> hv.DynamicMap:
-        return hv.DynamicMap(lambda data: plots.density_histogram(data), streams=[self.pipes["hist"]]).opts(
-            framewise=True, axiswise=True)
+    def _data(self, key: str) -> dict:
+        s = self.state
+        if key == "hist":
+            return s.histogram_data()
+        if key in ("hazard", "cumulative"):
+            return s.hazard_data()
+        if key == "weibull":
+            return s.weibull_data()
+        if key == "qq":
+            return s.qq_data()
+        if key == "pp":
+            return s.pp_data()
+        return {k: list(v) for k, v in s.trace.items()}
 
-    def _hazard_maps(self) -> list:
-        pipe = self.pipes["hazard"]
-        return [hv.DynamicMap(lambda data: reliability_plots.hazard_plot(data), streams=[pipe]).opts(
-                    framewise=True, axiswise=True),
-                hv.DynamicMap(lambda data: reliability_plots.cumulative_hazard_plot(data), streams=[pipe]).opts(
-                    framewise=True, axiswise=True)]
+    def _draw(self, key: str) -> None:
+        """Show the latest data in one picture (its values copied onto the page, see MirroredPlot)."""
+        mirror = self.mirrors[key]
+        mirror.show(self._data(key))
+        if mirror.take_replaced():
+            self.panes[key].object = mirror.figure
+
+    def _redraw_afresh(self, key: str) -> None:
+        # A Bokeh axis cannot switch between linear and log in place: the picture is made anew.
+        self.mirrors[key] = MirroredPlot(PICTURES[key], self._data(key))
+        self.panes[key].object = self.mirrors[key].figure
 
     def _set_hazard_log(self, value):
-        # As for the histogram: a Bokeh axis cannot switch between linear and log in place.
         self.state.hazard_log = bool(value)
-        self.pipes["hazard"].update(data=self.state.hazard_data())
-        for pane_, dm in zip(self.hazard_panes, self._hazard_maps()):
-            pane_.object = dm
+        self._redraw_afresh("hazard")
+        self._redraw_afresh("cumulative")
 
     def body(self):
-        qq, pp, ks, acc = self.panes
+        p = self.panes
         return [pn.Row(self.log, self.marker, margin=0),
-                self.hist_pane,
+                p["hist"],
                 self.hazard_log,
-                pn.Row(*self.hazard_panes, sizing_mode="stretch_width", margin=0),
-                self.weibull_pane,
-                pn.Row(qq, pp, sizing_mode="stretch_width", margin=0),
-                pn.Row(ks, acc, sizing_mode="stretch_width", margin=0),
+                pn.Row(p["hazard"], p["cumulative"], sizing_mode="stretch_width", margin=0),
+                p["weibull"],
+                pn.Row(p["qq"], p["pp"], sizing_mode="stretch_width", margin=0),
+                pn.Row(p["ks"], p["acceptance"], sizing_mode="stretch_width", margin=0),
                 pn.pane.HTML("<h3>What the check says</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
                 self.summary,
                 pn.pane.HTML("<h3>Sampler counters</h3>", stylesheets=[TEXT_CSS], margin=(0, 10)),
                 self.counters]
 
     def _set_log(self, value):
-        # A Bokeh axis cannot change between linear and log in place: draw the histogram anew.
         self.state.log_scale = bool(value)
-        self.pipes["hist"].update(data=self.state.histogram_data())
-        self.hist = self._histogram_map()
-        self.hist_pane.object = self.hist
-
-    def _push_all(self):
-        s = self.state
-        self.pipes["hist"].send(s.histogram_data())
-        self._push_secondary()
-
-    def _push_secondary(self):
-        s = self.state
-        self.pipes["qq"].send(s.qq_data())
-        self.pipes["pp"].send(s.pp_data())
-        self.pipes["hazard"].send(s.hazard_data())
-        self.pipes["weibull"].send(s.weibull_data())
-        self.pipes["trace"].send({k: list(v) for k, v in s.trace.items()})
+        self._redraw_afresh("hist")
 
     def refresh(self, push=True):
-        """After a batch: the histogram and the marker now, the other plots and the texts on
-        the next tick (``refresh_secondary``), so no single update holds the server long and
-        a slider release redraws first."""
+        """After a batch: the histogram and the marker now; the other plots and the texts later, one
+        piece per call of ``refresh_secondary``, so no single update holds the server long and a slider
+        release waits at most for one piece."""
         s = self.state
         if push:
-            self.pipes["hist"].send(s.histogram_data())
-            self._stale = True
+            self._draw("hist")
+            # Every piece is due again; those still waiting from the last batch keep their place in front,
+            # so while the stream runs each picture gets its turn.
+            self._due += [piece for piece in SECONDARY_PIECES if piece not in self._due]
         self.marker.object = (f'<span class="ld-redraw" data-version="{s.version}" data-batch="{s.batch}" '
                               f'data-draws="{s.n}">{s.n:,} draws so far</span>')
         if not push:
@@ -120,13 +118,17 @@ class LiveCheckStep(Step):
 
     @property
     def stale(self) -> bool:
-        return self._stale
+        return bool(self._due)
 
     def refresh_secondary(self):
-        if self._stale:
-            self._stale = False
-            self._push_secondary()
-            self._texts()
+        """Redraw the next due piece of the secondary pictures (QQ and PP, hazard, Weibull plot, traces
+        and texts) with the latest data."""
+        if self._due:
+            piece = self._due.pop(0)
+            for key in PIECE_PICTURES[piece]:
+                self._draw(key)
+            if piece == "trace":
+                self._texts()
 
     def _texts(self):
         s = self.state

@@ -143,7 +143,10 @@ class ModelStep(Step):
             w = pn.widgets.FloatSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
                                        format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
                                        css_classes=[css_token(name, "ld-slider")])
-            w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new), "value_throttled")
+            # A release refits and redraws the live check, whose plots copy plain values onto the page
+            # (MirroredPlot): no recomputation of the document's model graph is needed after it.
+            w.param.watch(lambda e, n=name: self.act(self.state.set_value, n, e.new, freeze=False),
+                          "value_throttled")
             w.param.watch(lambda e: self.on_drag(), "value")     # arrives while the handle moves
             widgets[name] = w
         self.slider_widgets = widgets

@@ -2,12 +2,13 @@
 An idle tab costs the server nothing: the periodic callback exists only while the stream runs or a step is stale.
 
 One bounded piece of work per tick keeps the server answering the next user
-action quickly: the live check's secondary plots and the life figures after a
-batch, the geometry after a refit, then the next batch while the stream runs.
+action quickly: one piece of the live check's secondary plots, the life figures, or
+the geometry after a refit (the stale steps take turns), and while the stream runs,
+batches and these pieces alternate, so a slider release waits at most for one piece.
 A change of the state (a batch, a refit, a start) wakes the callback; the first
 tick that finds nothing to do removes it again. Each tick's updates go out as
-one message (``pn.io.hold``), whose end recomputes the document's model graph:
-the cost an idle tab used to pay four times a second. While several tabs stream,
+one message (``pn.io.hold``); only a tick that redraws HoloViews plots inside the
+page (the geometry) ends in a recomputation of the document's model graph. While several tabs stream,
 their batches together take at most half of the loop (``LoopBudget``), so a new
 page opens and a slider answers between them.
 """
@@ -70,6 +71,8 @@ class PageUpdates:
         self.updates = 0          # ticks that changed the page (each one recomputes the document)
         self._doc = None
         self._callback = None
+        self._turn = 0                # whose follow-up goes next (see _next_follow_up)
+        self._stepped_last = False    # while streaming, batches and follow-up pieces take turns
         state.param.watch(lambda e: self.wake(), ["batch", "version", "running"])
 
     # ---- what there is to do -------------------------------------------------------------
@@ -79,6 +82,18 @@ class PageUpdates:
     def pending(self) -> bool:
         return bool(self.live.stale or self.geometry.stale or self.life.stale or self.state.running)
 
+    def _next_follow_up(self):
+        """The next stale step's redraw, taking the stale steps in turn (live check, life figures,
+        geometry), so that none waits for another while the stream keeps making the live check stale."""
+        order = [(self.live, self.live.refresh_secondary), (self.life, self.life.refresh),
+                 (self.geometry, self.geometry.refresh)]
+        for k in range(len(order)):
+            owner, redraw = order[(self._turn + k) % len(order)]
+            if owner.stale:
+                self._turn = (self._turn + k + 1) % len(order)
+                return owner, redraw
+        return None, None
+
     def tick(self) -> bool:
         """Do one piece of work; returns whether the page changed."""
         if time.monotonic() < self.yield_until:
@@ -86,21 +101,23 @@ class PageUpdates:
         if not self.pending():
             self.sleep()
             return False
-        follow_up = self.live.stale or self.geometry.stale or self.life.stale
-        if not follow_up and not self.budget.allows(id(self)):
-            return False              # the streams have had their share of the loop: skip this turn
+        stale = self.live.stale or self.geometry.stale or self.life.stale
+        # While the stream runs, batches and follow-up pieces take turns; a batch only within the
+        # stream's share of the loop.
+        stream_turn = self.state.running and not (stale and self._stepped_last)
+        if stream_turn and not self.budget.allows(id(self)):
+            if not stale:
+                return False              # the streams have had their share of the loop: skip this turn
+            stream_turn = False
+        owner, work = (self.state, self.state.step) if stream_turn else self._next_follow_up()
         try:
             start = time.perf_counter()
-            with pn.io.hold(freeze=True):
-                if self.live.stale:
-                    self.live.refresh_secondary()
-                    self.life.refresh()
-                elif self.geometry.stale:
-                    self.geometry.refresh()
-                elif self.life.stale:
-                    self.life.refresh()
-                elif self.state.running:
-                    self.state.step()
+            # The live check's plots copy plain values onto the page (MirroredPlot): no walk over the page's
+            # models is needed. The geometry's HoloViews plots redraw inside the page, each ending in such a
+            # walk; freezing the document makes it one walk for all of them.
+            with pn.io.hold(freeze=owner is self.geometry):
+                work()
+            self._stepped_last = stream_turn
             seconds = time.perf_counter() - start
             self.budget.record(seconds, id(self))
             self.updates += 1

@@ -1,9 +1,10 @@
 """The standalone HTML report of a scenario: model, draws against the model, method geometry,
-method comparison and life figures, with Bokeh's JavaScript inline so the file opens offline.
+method comparison and life figures, with Bokeh's JavaScript inside the file so it opens offline.
 
 One function, ``write_report``, serves both ``lifedraw report`` and the dashboard's
 Report step. Plots are HoloViews elements rendered to plain Bokeh models
-(``hv.render``) and embedded with ``bokeh.embed.components``; no Panel template.
+(``hv.render``) and packed with BokehJS, gzip-compressed, into the page (``packed_plots``);
+every text and table is plain HTML. No Panel template.
 """
 from __future__ import annotations
 
@@ -15,8 +16,6 @@ from pathlib import Path
 
 import holoviews as hv
 import numpy as np
-from bokeh.embed import components
-from bokeh.resources import Resources
 
 from lifedraw import engine
 from lifedraw.engine import ModelError, fit
@@ -25,6 +24,7 @@ from lifedraw.engine.compare import MethodResult, compare_methods, decide
 from lifedraw.engine.scenarios import Scenario
 
 from . import plots, reliability_plots
+from .packed_plots import pack_plots
 from .escaping import file_stem, paragraphs, text
 from .fleet_report import fleet_section
 from .life_curves import hazard_payload, weibull_payload
@@ -138,13 +138,13 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
     fleet_figures, fleet_html = fleet_section(scenario, target, sampler, seed, PLOT_WIDTH)
 
     figures = [hist, qq, pp, hazard, cumulative, weibull, *geometry, *bars, *fleet_figures]
-    script, divs = components([hv.render(f, backend="bokeh") for f in figures])
+    packed = pack_plots([hv.render(f, backend="bokeh") for f in figures])
+    divs = packed.divs
     d_hist, d_qq, d_pp, d_hazard, d_cumulative, d_weibull = divs[:6]
     d_geom = divs[6:6 + len(geometry)]
     d_bars = divs[6 + len(geometry):6 + len(geometry) + len(bars)]
     d_fleet = divs[6 + len(geometry) + len(bars):]
 
-    inline_assets = _inline_assets()
     now = _dt.datetime.now().astimezone()
     e = text     # every piece of the scenario's text is escaped where it enters the page
     story = paragraphs(scenario.story)
@@ -163,6 +163,7 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
   <p>Scenario <code>{e(scenario.name)}</code> · written {e(now.strftime('%Y-%m-%d %H:%M %Z'))}</p>
 </header>
 <div class="caution"><b>Caution.</b> {e(CAUTION)}</div>
+{packed.note}
 
 <section id="model"><h2>Model</h2>
 <p>{story}</p>
@@ -233,24 +234,14 @@ they say nothing the model does not already assume.</div>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>lifedraw report — {e(scenario.title)}</title>
-<style>{PAGE_CSS}</style>
-{inline_assets}
+<style>{PAGE_CSS}{packed.css}</style>
 </head>
 <body>
 {body}
-{script}
+{packed.tail}
 </body>
 </html>
 """
-
-
-def _inline_assets() -> str:
-    """BokehJS itself, inline. Only the raw code is used: with Panel imported, Bokeh's resource
-    lists also name Panel's extension files by relative URL, which a standalone file cannot load."""
-    resources = Resources(mode="inline", components=["bokeh"])
-    scripts = "".join(f"<script>\n{js}\n</script>\n" for js in resources.js_raw)
-    styles = "".join(f"<style>\n{css}\n</style>\n" for css in resources.css_raw)
-    return scripts + styles
 
 
 def _goodness_table(rep) -> str:

@@ -85,13 +85,15 @@ class Step:
         return pn.Column(self.heading(), *self.body(), sizing_mode="stretch_width", styles=STEP_STYLES,
                          margin=(8, 0), css_classes=[f"ld-step-{self.number}"], name=self.title)
 
-    def act(self, fn, *args, **kwargs):
-        """Run a user action with all the page updates it causes sent as one message."""
+    def act(self, fn, *args, freeze: bool = True, **kwargs):
+        """Run a user action with all the page updates it causes sent as one message.
+
+        ``freeze``: hold the document's model graph until the end, so that the HoloViews plots the action
+        redraws inside the page cost one recomputation of the graph, not one each (it runs after the
+        message has gone out). An action that redraws no such plot passes False and skips it."""
         try:
             start = time.perf_counter()
-            # freeze: one recomputation of the document's model graph per action,
-            # not one per plot that HoloViews updates.
-            with pn.io.hold(freeze=True):
+            with pn.io.hold(freeze=freeze):
                 out = fn(*args, **kwargs)
             log.debug("%s took %.0f ms", getattr(fn, "__name__", fn), 1e3 * (time.perf_counter() - start))
             return out

@@ -1,6 +1,6 @@
 """``python -m lifedraw``: the same as the ``lifedraw`` command."""
 import sys
 
-from .cli import main
+from .cli import run
 
-sys.exit(main())
+sys.exit(run())

@@ -12,7 +12,8 @@ from html.parser import HTMLParser
 import pytest
 
 from lifedraw.cli.dashboard_commands import add_report_parser
-from lifedraw.dashboard.report import write_report
+from lifedraw.dashboard.packed_plots import packed_payloads
+from lifedraw.dashboard.report import build_report, write_report
 from lifedraw.engine import ModelError
 from lifedraw.engine.cautions import CAUTION
 from lifedraw.engine.scenarios import load_scenario
@@ -124,13 +125,28 @@ def test_no_script_is_loaded_from_a_file_either(report):
     assert not re.search(r"<script\b[^>]*\bsrc\s*=", report[2], flags=re.IGNORECASE)
 
 
-def test_bokeh_is_inline_and_the_plots_are_embedded(report):
+def test_bokeh_and_the_plots_travel_packed_inside_the_file(report):
     text = report[2]
-    assert "Bokeh.embed.embed_items" in text
+    assert "Bokeh.embed.embed_items" in text and "DecompressionStream" in text
+    payloads = packed_payloads(text)
+    assert "/* BEGIN bokeh.min.js */" in payloads["bokehjs"]          # BokehJS itself, in the file
+    assert "/* BEGIN bokeh.min.js */" not in text                      # ... but only once, packed
     roots = re.findall(r'data-root-id="([^"]+)"', text)
-    # histogram, QQ, PP, two geometry plots of inversion and at least one comparison chart
-    assert len(roots) >= 6
-    assert "/* BEGIN bokeh.min.js */" in text          # BokehJS itself, in the file
+    # histogram, QQ, PP, hazard, cumulative hazard, Weibull plot, two geometry plots of inversion,
+    # the comparison charts and the fleet pictures
+    assert len(roots) >= 10
+    (item,) = payloads["docs"]["render_items"]
+    assert item["root_ids"] == roots                                  # every div has its plot, in order
+    (doc,) = payloads["docs"]["docs_json"].values()
+    assert [r["id"] for r in doc["roots"]] == roots
+
+
+def test_the_report_at_the_command_line_defaults_fits_in_600_kB():
+    # Issue 13's bound. BokehJS alone is 1.27 MB raw and about 470 kB gzip-compressed in base64, so the
+    # bound fails if it travels uncompressed, twice, or if the plot documents grow past about 100 kB.
+    scenario = load_scenario("gearbox-wearout")
+    text = build_report(scenario, compare_n=20_000)       # the scenario's own sample size, as `lifedraw report`
+    assert len(text.encode("utf-8")) <= 600_000
 
 
 def test_the_run_settings_are_stated(report):

@@ -7,6 +7,7 @@ the engine alone, ``serve`` and ``report`` load the dashboard only when called.
 from __future__ import annotations
 
 import argparse
+import gc
 import re
 import sys
 from pathlib import Path
@@ -141,5 +142,18 @@ def main(argv=None) -> int:
         return 2
 
 
+def run() -> int:
+    """The installed ``lifedraw`` program (and ``python -m lifedraw``): ``main`` on the command line.
+
+    The process ends right after, so the garbage collector is frozen first: the interpreter's last full
+    collection would otherwise walk every object the imports made (about 350,000 once the dashboard is
+    loaded: 0.7 s at the end of ``lifedraw report``) only to free memory that the process hands back anyway.
+    ``main`` itself leaves the collector alone, so calling it in a long-lived process changes nothing.
+    """
+    code = main()
+    gc.freeze()
+    return code
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(run())

@@ -1,0 +1,125 @@
+"""The live check's pictures as MirroredPlots (dashboard.mirrored_plot): after every new frame the shown
+Bokeh plot carries exactly what HoloViews draws for that frame, and a redraw needs no walk over the page's
+models. The reference is HoloViews itself: ``hv.render`` of the same picture from the same data.
+"""
+from __future__ import annotations
+
+import holoviews as hv
+import pytest
+from bokeh.document import Document
+from bokeh.models import LegendItem
+
+from lifedraw.dashboard.live_check_step import PICTURES
+from lifedraw.dashboard.mirrored_plot import MirroredPlot, models_in_order, same_value
+from lifedraw.dashboard.state import DrawingBoard
+
+
+def data_of(state, key):
+    if key == "hist":
+        return state.histogram_data()
+    if key in ("hazard", "cumulative"):
+        return state.hazard_data()
+    if key == "weibull":
+        return state.weibull_data()
+    if key == "qq":
+        return state.qq_data()
+    if key == "pp":
+        return state.pp_data()
+    return {k: list(v) for k, v in state.trace.items()}
+
+
+def differences(shown, reference) -> list:
+    """Every value property (not a reference to another model) set on either side that differs."""
+    ours, theirs = models_in_order(shown), models_in_order(reference)
+    if [type(m) for m in ours] != [type(m) for m in theirs]:
+        return ["the models differ in kind or number"]
+    out = []
+    for a, b in zip(ours, theirs):
+        skip = set(a.properties_with_refs()) | {"id", "name"}
+        names = (set(a.properties_with_values(include_defaults=False))
+                 | set(b.properties_with_values(include_defaults=False))) - skip
+        out += [f"{type(a).__name__}.{n}" for n in sorted(names) if not same_value(getattr(a, n), getattr(b, n))]
+    return out
+
+
+@pytest.mark.parametrize("key", sorted(PICTURES))
+def test_each_frame_shows_what_holoviews_draws_for_it(key):
+    state = DrawingBoard("gearbox-wearout", batch_size=5_000)
+    mirror = MirroredPlot(PICTURES[key], data_of(state, key))
+    # batches, refits that move every range, a reset to no draws, other scenarios' models, field data
+    # (the Weibull plot gains a layer) and back
+    for change in (lambda: state.step(), lambda: state.set_value("beta", 4.2), lambda: state.step(),
+                   lambda: state.reset(), lambda: state.set_value("eta", 12_000.0),
+                   lambda: setattr(state, "scenario_name", "sensor-bathtub"), lambda: state.step(),
+                   lambda: setattr(state, "scenario_name", "hydro-gate-bushings"), lambda: state.step(),
+                   lambda: setattr(state, "scenario_name", "gearbox-wearout")):
+        change()
+        data = data_of(state, key)
+        mirror.show(data)
+        assert differences(mirror.figure, hv.render(PICTURES[key](data), backend="bokeh")) == []
+
+
+def test_the_same_frame_again_copies_nothing_and_a_new_one_copies_only_values():
+    state = DrawingBoard("gearbox-wearout", batch_size=5_000)
+    mirror = MirroredPlot(PICTURES["hist"], state.histogram_data())
+    state.step()
+    assert mirror.show(state.histogram_data()) > 0          # new counts, a new title, a new y range
+    assert mirror.show(state.histogram_data()) == 0
+    assert not mirror.take_replaced()
+
+
+def test_a_frame_with_other_models_is_drawn_afresh():
+    # A log density axis is another kind of scale: Bokeh cannot change it in place.
+    state = DrawingBoard("gearbox-wearout", batch_size=5_000)
+    mirror = MirroredPlot(PICTURES["hist"], state.histogram_data())
+    shown = mirror.figure
+    state.log_scale = True
+    assert mirror.show(state.histogram_data()) == -1
+    assert mirror.figure is not shown and mirror.take_replaced() and not mirror.take_replaced()
+    assert differences(mirror.figure, hv.render(PICTURES["hist"](state.histogram_data()), backend="bokeh")) == []
+    state.step()
+    assert mirror.show(state.histogram_data()) > 0          # from then on, values are copied again
+
+
+def test_field_data_adds_a_layer_and_the_picture_follows():
+    state = DrawingBoard("gearbox-wearout", batch_size=5_000)
+    mirror = MirroredPlot(PICTURES["weibull"], state.weibull_data())
+    state.scenario_name = "hydro-gate-bushings"               # recorded failures with suspensions
+    assert mirror.show(state.weibull_data()) == -1
+    labels = {str(item.label.value) for item in mirror.figure.select({"type": LegendItem})}
+    assert "field data" in labels
+    state.step()
+    assert mirror.show(state.weibull_data()) > 0
+
+
+def count_recomputes(doc):
+    calls = []
+    original = doc.models.recompute
+
+    def counted():
+        calls.append(1)
+        return original()
+    doc.models.recompute = counted
+    return calls
+
+
+def test_a_redraw_on_the_page_walks_no_models_where_holoviews_would():
+    state = DrawingBoard("gearbox-wearout", batch_size=5_000)
+    mirror = MirroredPlot(PICTURES["hist"], state.histogram_data())
+    doc = Document()
+    doc.add_root(mirror.figure)
+    calls = count_recomputes(doc)
+    for _ in range(3):
+        state.step()
+        assert mirror.show(state.histogram_data()) > 0
+    assert calls == []
+    # The same frames redrawn by HoloViews inside a document: each ends in a walk over the models.
+    pipe = hv.streams.Pipe(data=state.histogram_data())
+    plot = hv.renderer("bokeh").get_plot(hv.DynamicMap(PICTURES["hist"], streams=[pipe]))
+    other = Document()
+    other.add_root(plot.state)
+    plot.document = other
+    calls = count_recomputes(other)
+    state.step()
+    pipe.send(state.histogram_data())
+    assert len(calls) >= 1
