@@ -443,13 +443,14 @@ def _verdict(row) -> str:
 
 # What limits each goal when it is missed (measured and reasoned, kept beside the numbers).
 GAPS = {
-    "1": ("the compiled loop is a guide-table look-up plus a degree-5 Horner step per draw (the "
-          "order that keeps the u-error under 1e-10 with about 200-240 pieces, engine/methods/inversion.py); the 2x goal "
-          "needs either fewer operations per draw (a lower order with many more pieces, which costs "
-          "set-up time, the row below) or a wider vector loop than Numba emits here. Not attempted in this "
-          "round: set-up time and rejection came first."),
-    "1c": ("each draw is one uniform plus the inversion loop (guide look-up and Horner step, about 9-10 ns "
-           "against numpy's ~3 ns per uniform); see row 1."),
+    "1": ("each draw is one uniform (numpy's fill, straight into the output) and one pass of the compiled "
+          "loop over it: a guide-table look-up with 32 cells per piece (a step past the cell's first piece is "
+          "then needed about once in 32 draws) and the degree-5 polynomial by Estrin's scheme (three independent "
+          "pairs and two squarings, a shorter dependency chain than Horner's rule), about 4 ns a draw; a fresh "
+          "output array also costs its page faults, which the reference pays as well. A ratio under the goal "
+          "means the machine was busy (see the load averages below)."),
+    "1c": ("the floor: numpy's fill writes about one uniform per 2-3 ns; the inversion adds its compiled pass "
+           "(about 4 ns, see row 1)."),
     "1b": ("set-up is Python driving vectorised passes, each over all pieces at once: the model "
            "(probes, a 64-piece adaptive Gauss-Legendre partition of the cumulative integral, then Chebyshev series "
            "of every piece so that F and R cost a short compiled sum, engine/piece_series.py, cut towards a tail "
@@ -462,16 +463,21 @@ GAPS = {
            "hazard-rate formulas. Cold and warm differ by the parse only: every number, the Gauss-Jacobi rule of a "
            "fractional-power start included, is computed afresh for every model (no numbers are kept between "
            "models, so a rebuilt model never depends on what was built before it)."),
-    "2": ("after this round each candidate costs one uniform (immediate acceptance below its row's squeeze "
-          "floor) and no logarithm in the bulk (flat steps), so what is left per draw is the guide-table "
-          "look-up and the numpy work per batch of 65,536 candidates: the settling of the ~3% undecided "
-          "candidates, the density formula for ~2.4% of them, and two passes to gather the accepted ones."),
-    "3": ("Leva's method needs two uniforms per candidate and accepts 73% of them (2.7 uniforms per draw, "
-          "Leva 1992), while numpy's ziggurat needs about one 64-bit draw per deviate; moving the candidate "
-          "transformation into the compiled loop was measured and gave no clear gain, so it was not kept."),
-    "6": ("the machine's second core was shared with other processes during the run (see the load average "
-          "below); two threads draw in parallel (the compiled kernels release the GIL), so the ratio is bounded "
-          "by the idle capacity of the second core, not by the sampler."),
+    "2": ("rejection now runs slot by slot in place: the output's uniforms become candidates in one compiled "
+          "pass (immediate acceptance below each row's squeeze floor, flat steps with no logarithm), only the "
+          "~3% undecided candidates are listed for the squeeze and density tests, and the ~1.3% rejected slots "
+          "take their next candidates together in a much smaller pass; no candidate arrays and no gathering "
+          "pass. A ratio under the goal means the machine was busy."),
+    "3": ("Leva's method needs two uniforms per candidate and accepts 73% of them (2.74 uniforms per draw, "
+          "Leva 1992), while numpy's ziggurat needs about one 64-bit draw per deviate. The candidates are now "
+          "drawn inside the compiled loop (numba's Generator support: no candidate arrays, one pass), which "
+          "measured 15-25% faster than drawing them into arrays first; what remains is the uniforms themselves "
+          "(about 2.7 x 3 ns) and the test of each candidate."),
+    "6": ("row 6b gives the machine's own ceiling: numpy's uniform fill, which shares nothing between the two "
+          "threads and releases the GIL, measured the same way. The compiled kernels release the GIL too, so "
+          "the samplers' two-thread ratio tracks that ceiling; on a 2-core virtual machine the second core is "
+          "also the one that the operating system, the Dask scheduler and other processes use (see the load "
+          "averages below)."),
     "8": ("the summary draws every chunk as the generation does and adds one compiled counting pass per "
           "chunk (about 3-4 ns a draw against 40-60 ns to draw it) and a sort of the first chunk on each worker; "
           "a ratio above the goal means the machine was busy (compare the worker CPU ratio in the notes) or the "

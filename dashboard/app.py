@@ -137,7 +137,8 @@ def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: st
     print(f"lifedraw drawing board: {url}  (Ctrl-C stops it)", flush=True)
     server = pn.serve({"/": lambda: create_app(scenario, report_dir)}, port=port, address=address,
                       websocket_origin=sorted(origins), show=show, start=False, threaded=False, title=TITLE,
-                      verbose=False, location=False,  # (the page reads no URL; Panel's reader fails on "[::1]") check_unused_sessions_milliseconds=SESSION_CHECK_MS,
+                      # location=False: the page reads no URL (Panel's reader fails on "[::1]").
+                      verbose=False, location=False, check_unused_sessions_milliseconds=SESSION_CHECK_MS,
                       unused_session_lifetime_milliseconds=SESSION_LIFETIME_MS)
     # Bokeh keeps its tornado application private; tornado's public add_handlers puts the guard in front.
     guard(server._tornado, address)
