@@ -41,19 +41,30 @@ def pack_pinv_table(x0, width, coef, du):
     return np.ascontiguousarray(np.column_stack([x0, coef * width[:, None], inv_du]))
 
 
-def _pinv_piece(ui, guide, u_start, m, g_size):
-    """The piece holding u: guide-table look-up (Chen & Asau 1974), then rarely a step or two.
+def _guide_start(ui, guide, last):
+    """The guide table's entry for u in [0, 1) (Chen & Asau 1974), clamped into 0..last.
 
     Every index is clamped into the tables, so even a damaged table cannot make the
-    compiled loop read outside its memory (loading refuses such tables first)."""
+    compiled loops read outside their memory (loading refuses such tables first)."""
+    g_size = guide.shape[0]
     g = int(ui * g_size) if ui > 0.0 else 0
     if g >= g_size:
         g = g_size - 1
     k = guide[g]
     if k < 0:
         k = 0
-    if k > m - 1:
-        k = m - 1
+    if k > last:
+        k = last
+    return k
+
+
+if HAVE_JIT:
+    _guide_start = numba.njit(inline="always", cache=True)(_guide_start)
+
+
+def _pinv_piece(ui, guide, u_start, m):
+    """The piece holding u: the guide table's entry, then rarely a step or two."""
+    k = _guide_start(ui, guide, m - 1)
     while k < m - 1 and u_start[k + 1] <= ui:
         k += 1
     return k
@@ -62,14 +73,13 @@ def _pinv_piece(ui, guide, u_start, m, g_size):
 def _pinv_eval_py(u, guide, u_start, table, out):
     n = u.shape[0]
     m = min(u_start.shape[0], table.shape[0])
-    g_size = guide.shape[0]
     top = table.shape[1] - 2          # column of the highest coefficient
     if top == 6:
         # Degree 5 (the sampler's order) by Estrin's scheme: three independent pairs and
         # two squarings, a shorter dependency chain than Horner's five steps.
         for i in range(n):
             ui = u[i]
-            k = _pinv_piece(ui, guide, u_start, m, g_size)
+            k = _pinv_piece(ui, guide, u_start, m)
             s = min(max((ui - u_start[k]) * table[k, 7], 0.0), 1.0)
             s2 = s * s
             low = table[k, 1] + s * table[k, 2]
@@ -79,7 +89,7 @@ def _pinv_eval_py(u, guide, u_start, table, out):
         return out
     for i in range(n):
         ui = u[i]
-        k = _pinv_piece(ui, guide, u_start, m, g_size)
+        k = _pinv_piece(ui, guide, u_start, m)
         s = min(max((ui - u_start[k]) * table[k, top + 1], 0.0), 1.0)
         acc = table[k, top]
         for j in range(top - 1, 0, -1):
@@ -202,23 +212,14 @@ def _hat_slots_py(out, cum, guide, total, last, table, pending, ratio, floor, lo
     """
     n = out.shape[0]
     top = min(cum.shape[0], table.shape[0]) - 1
-    g_size = guide.shape[0]
     c0 = 0
     c1 = 0
     c2 = 0
     for i in range(n):
         ui = out[i]
         uA = ui * total
-        # Guide table (Chen & Asau 1974), then a short search: k = first with cum[k] > uA.
-        # Indices are clamped into the tables: a damaged table cannot reach outside them.
-        g = int(ui * g_size) if ui > 0.0 else 0
-        if g >= g_size:
-            g = g_size - 1
-        k = guide[g]
-        if k < 0:
-            k = 0
-        if k > top:
-            k = top
+        # Guide table, then a short search: k = first with cum[k] > uA.
+        k = _guide_start(ui, guide, top)
         while k < top and cum[k] <= uA:
             k += 1
         if k > last:
