@@ -23,6 +23,21 @@ SECONDARY_PIECES = tuple(PIECE_PICTURES)
 
 # ---- 3. live check ---------------------------------------------------------------------------
 
+def picture_data(state, key: str) -> dict:
+    """The plain data the live picture ``key`` (a key of PICTURES) shows, read from ``state``."""
+    if key == "hist":
+        return state.histogram_data()
+    if key in ("hazard", "cumulative"):
+        return state.hazard_data()
+    if key == "weibull":
+        return state.weibull_data()
+    if key == "qq":
+        return state.qq_data()
+    if key == "pp":
+        return state.pp_data()
+    return {k: list(v) for k, v in state.trace.items()}
+
+
 class LiveCheckStep(Step):
     number = 3
     title = "Live check"
@@ -42,7 +57,7 @@ class LiveCheckStep(Step):
         self.panes = {}
         for key, height in (("hist", 330), ("hazard", 300), ("cumulative", 300), ("weibull", 340), ("qq", 290),
                             ("pp", 290), ("ks", 250), ("acceptance", 250)):
-            self.mirrors[key] = MirroredPlot(PICTURES[key], self._data(key))
+            self.mirrors[key] = MirroredPlot(PICTURES[key], picture_data(self.state, key))
             self.panes[key] = pn.pane.Bokeh(self.mirrors[key].figure, sizing_mode="stretch_width", height=height,
                                             margin=(0, 6))
         self.counters = text_pane()
@@ -52,30 +67,16 @@ class LiveCheckStep(Step):
         s.param.watch(lambda e: self.refresh(), "batch")
         self.refresh(push=False)
 
-    def _data(self, key: str) -> dict:
-        s = self.state
-        if key == "hist":
-            return s.histogram_data()
-        if key in ("hazard", "cumulative"):
-            return s.hazard_data()
-        if key == "weibull":
-            return s.weibull_data()
-        if key == "qq":
-            return s.qq_data()
-        if key == "pp":
-            return s.pp_data()
-        return {k: list(v) for k, v in s.trace.items()}
-
     def _draw(self, key: str) -> None:
         """Show the latest data in one picture (its values copied onto the page, see MirroredPlot)."""
         mirror = self.mirrors[key]
-        mirror.show(self._data(key))
+        mirror.show(picture_data(self.state, key))
         if mirror.take_replaced():
             self.panes[key].object = mirror.figure
 
     def _redraw_afresh(self, key: str) -> None:
         # A Bokeh axis cannot switch between linear and log in place: the picture is made anew.
-        self.mirrors[key] = MirroredPlot(PICTURES[key], self._data(key))
+        self.mirrors[key] = MirroredPlot(PICTURES[key], picture_data(self.state, key))
         self.panes[key].object = self.mirrors[key].figure
 
     def _set_hazard_log(self, value):

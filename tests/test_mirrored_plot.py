@@ -9,23 +9,9 @@ import pytest
 from bokeh.document import Document
 from bokeh.models import LegendItem
 
-from lifedraw.dashboard.live_check_step import PICTURES
+from lifedraw.dashboard.live_check_step import PICTURES, picture_data
 from lifedraw.dashboard.mirrored_plot import MirroredPlot, models_in_order, same_value
 from lifedraw.dashboard.state import DrawingBoard
-
-
-def data_of(state, key):
-    if key == "hist":
-        return state.histogram_data()
-    if key in ("hazard", "cumulative"):
-        return state.hazard_data()
-    if key == "weibull":
-        return state.weibull_data()
-    if key == "qq":
-        return state.qq_data()
-    if key == "pp":
-        return state.pp_data()
-    return {k: list(v) for k, v in state.trace.items()}
 
 
 def differences(shown, reference) -> list:
@@ -45,7 +31,7 @@ def differences(shown, reference) -> list:
 @pytest.mark.parametrize("key", sorted(PICTURES))
 def test_each_frame_shows_what_holoviews_draws_for_it(key):
     state = DrawingBoard("gearbox-wearout", batch_size=5_000)
-    mirror = MirroredPlot(PICTURES[key], data_of(state, key))
+    mirror = MirroredPlot(PICTURES[key], picture_data(state, key))
     # batches, refits that move every range, a reset to no draws, other scenarios' models, field data
     # (the Weibull plot gains a layer) and back
     for change in (lambda: state.step(), lambda: state.set_value("beta", 4.2), lambda: state.step(),
@@ -54,7 +40,7 @@ def test_each_frame_shows_what_holoviews_draws_for_it(key):
                    lambda: setattr(state, "scenario_name", "hydro-gate-bushings"), lambda: state.step(),
                    lambda: setattr(state, "scenario_name", "gearbox-wearout")):
         change()
-        data = data_of(state, key)
+        data = picture_data(state, key)
         mirror.show(data)
         assert differences(mirror.figure, hv.render(PICTURES[key](data), backend="bokeh")) == []
 
