@@ -469,12 +469,11 @@ GAPS = {
           "take their next candidates together in a much smaller pass; no candidate arrays and no gathering "
           "pass. A ratio under the goal means the machine was busy."),
     "3": ("Leva's method needs two uniforms per candidate and accepts 73% of them (2.74 uniforms per draw, "
-          "Leva 1992), while numpy's ziggurat needs about one 64-bit draw per deviate. Measured on this machine: "
-          "the uniforms alone cost about 5 ns a draw (numpy's fill) and the accept/reject branch, taken one time "
-          "in four at random, costs most of the rest in mispredictions; a branch-free store and drawing the "
-          "candidates into arrays first (numpy's fill, then the compiled test) were measured and were no faster. "
-          "The candidates are drawn inside the compiled loop (numba's Generator support), which on a quiet "
-          "machine is as fast as before and spares the two candidate arrays (about 220 MB for 10^7 draws)."),
+          "Leva 1992), while numpy's ziggurat needs about one 64-bit draw per deviate; the uniforms alone cost "
+          "about 5 ns a draw (numpy's fill). The candidates are drawn in cache-sized blocks (numpy's fill of "
+          "65,536 uniforms) and tested by a compiled kernel in two passes, branch-free arithmetic first and the "
+          "accept/reject walk second, which halved the cost of the test. A ratio under the goal means the "
+          "machine was busy."),
     "6": ("row 6b gives the machine's own ceiling: numpy's uniform fill into reused buffers, which shares "
           "nothing between the two threads and releases the GIL. The sampler into reused buffers matches it; "
           "through Dask every chunk is a fresh 8 MB array (its page faults are paid again by every chunk) and "

@@ -201,3 +201,19 @@ def test_geometry_labels_candidates_by_how_they_were_decided():
     assert set(np.unique(label)) <= {"accepted", "rejected", "squeeze"}
     assert np.all(in_A[label != "rejected"]) and not np.any(in_A[label == "rejected"])
     assert np.all((g["boundary_u"] > 0) & (g["boundary_u"] <= 1.0))
+
+
+@pytest.mark.parametrize("n", [1_000, 3 * leva_module.BLOCK + 17], ids=["one block", "several blocks"])
+def test_deviates_are_the_accepted_ratios_of_the_uniform_stream_in_order(n):
+    # Kinderman & Monahan (1977): from uniforms read in pairs, (u, v) = (1 - U1, 1.7156 (U2 - 1/2))
+    # is accepted exactly when v^2 <= -4 u^2 ln u, and the deviate is v/u. Applying only that
+    # test (no squeezes) to the same stream must give the sampler's deviates, in order, one for
+    # one: the squeezes may change no verdict, and blocks may lose, repeat or reorder no candidate.
+    sampler = LevaNormal.build(lifedraw.family("normal", mean=0.0, sd=1.0))
+    z = sampler.standard_normal(n, np.random.default_rng(SEED))
+    pairs = np.random.default_rng(SEED).random(2 * (2 * n + 1000))
+    u, v = 1.0 - pairs[0::2], (pairs[1::2] - 0.5) * V_SPAN
+    kept = v * v <= -4.0 * u * u * np.log(u)
+    expected = (v / u)[kept][:n]
+    assert expected.size == n
+    np.testing.assert_array_equal(z, expected)

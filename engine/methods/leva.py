@@ -29,6 +29,10 @@ R1, R2 = 0.27597, 0.27846
 V_SPAN = 1.7156
 #: area(A) for exp(-z^2/2) is sqrt(2 pi)/2 (Kinderman & Monahan 1977); rectangle area 1 x V_SPAN.
 ACCEPTANCE = math.sqrt(2.0 * math.pi) / 2.0 / V_SPAN
+#: Candidates per block: 2 x 32,768 uniforms (512 kB) stay in the processor's cache between
+#: numpy's fill and the test. Measured on the bench machine: 8,192 to 131,072 all within 2%
+#: of each other, 2,048 about 8% slower (the per-block Python call shows).
+BLOCK = 32_768
 
 
 def leva_applies(target: Target) -> bool:
@@ -99,46 +103,49 @@ class LevaNormal(Sampler):
         return inner, accepted, between.size
 
     def standard_normal(self, m: int, rng: np.random.Generator, out: np.ndarray | None = None) -> np.ndarray:
-        """m standard normal deviates Z = V/U (into ``out`` if given), counting the cost."""
+        """m standard normal deviates Z = V/U (into ``out`` if given), counting the cost.
+
+        Candidates are drawn in blocks of at most BLOCK (numpy's fill of 2 b uniforms, read
+        in pairs) and tested in order, the accepted ones stored in order until ``out`` is
+        full; the compiled test (engine.kernels.leva_block) and the numpy one below take the
+        same uniforms and keep the same deviates. The block fits the processor's cache, so
+        the uniforms are read back from there rather than from memory.
+        """
         out = np.empty(m) if out is None else out
-        if kernels.HAVE_JIT:
-            return self._standard_normal_compiled(m, rng, out)
         filled = 0
+        pairs = marks = None
         while filled < m:
             need = m - filled
             # About one binomial sd more candidates than the shortfall needs: a second
-            # (small) round is rare, and the surplus thrown away stays well under 1%.
-            k = int(need / ACCEPTANCE + math.sqrt(need) + 16)
-            u, v = self._candidates(k, rng)
-            inner, accepted, logs = self._classify(u, v)
-            self.counts["uniforms"] += 2 * k
-            self.counts["candidates"] += k
-            self.counts["squeezed"] += int(np.count_nonzero(inner))
-            self.counts["accepted"] += int(np.count_nonzero(accepted))
-            self.counts["log_evals"] += logs
-            self.counts["density_evals"] += logs
-            take = np.flatnonzero(accepted)[:need]
-            z = v.take(take)
-            z /= u.take(take)
-            out[filled:filled + z.size] = z
-            filled += z.size
-        return out
-
-    def _standard_normal_compiled(self, m, rng, out):
-        """The same algorithm, candidates drawn and examined in order by a compiled loop (engine.kernels)."""
-        filled = 0
-        while filled < m:
-            need = m - filled
-            k = int(need / ACCEPTANCE + math.sqrt(need) + 16)
-            got, accepted, squeezed, logs = kernels.leva_draw(rng, k, out, filled, (S, T, A, B, R1, R2, V_SPAN))
-            self.counts["uniforms"] += 2 * k
-            self.counts["candidates"] += k
+            # (small) block is rare for small requests.
+            b = min(BLOCK, int(need / ACCEPTANCE + math.sqrt(need) + 16))
+            if pairs is None or pairs.size < 2 * b:
+                pairs, marks = np.empty(2 * b), np.empty(b, dtype=np.uint8)
+            block = pairs[:2 * b]
+            rng.random(out=block)
+            got, accepted, squeezed, logs = self._test_block(block, marks[:b], out, filled)
+            self.counts["uniforms"] += 2 * b
+            self.counts["candidates"] += b
             self.counts["squeezed"] += squeezed
             self.counts["accepted"] += accepted
             self.counts["log_evals"] += logs
             self.counts["density_evals"] += logs
             filled += got
         return out
+
+    def _test_block(self, block, marks, out, start):
+        """(stored, accepted, squeezed, logs) for one block of candidate pairs."""
+        if kernels.HAVE_JIT:
+            return kernels.leva_block(block, marks, out, start, (S, T, A, B, R1, R2, V_SPAN))
+        u = 1.0 - block[0::2]
+        v = block[1::2] - 0.5
+        v *= V_SPAN
+        inner, accepted, logs = self._classify(u, v)
+        take = np.flatnonzero(accepted)[:out.size - start]
+        z = v.take(take)
+        z /= u.take(take)
+        out[start:start + z.size] = z
+        return z.size, int(np.count_nonzero(accepted)), int(np.count_nonzero(inner)), logs
 
     def _fill(self, out, rng):
         z = self.standard_normal(out.size, rng, out=out)
