@@ -6,6 +6,8 @@ Methods, section 8.1.8 (a system as a structure of independent blocks).
 """
 from __future__ import annotations
 
+import copy
+
 import numpy as np
 
 from .errors import ModelError
@@ -32,6 +34,21 @@ class Block:
         """Characteristic ages (quantiles of the leaves) that split integrals into easy pieces."""
         raise NotImplementedError
 
+    def working_copy(self) -> "Block":
+        """A copy for one task: every component draws through its sampler's working copy
+        (Sampler.working_copy: shared tables, own counters and working state); everything else
+        is deep-copied. A plain deep copy would rebuild every component from its saved file."""
+        memo: dict = {}
+        pending = [self]
+        while pending:
+            block = pending.pop()
+            if isinstance(block, Component):
+                if id(block) not in memo:
+                    memo[id(block)] = block.working_copy()
+            else:
+                pending.extend(getattr(block, "parts", ()))
+        return copy.deepcopy(self, memo)
+
 
 class Component(Block):
     """One part: a sampler (draws) and its target (exact R, F, f and quantile)."""
@@ -44,6 +61,9 @@ class Component(Block):
 
     def _draw(self, m, rng):
         return self.sampler.sample(m, rng)
+
+    def working_copy(self) -> "Component":
+        return Component(self.sampler.working_copy(), self.name)
 
     def _sf_cdf(self, t):
         return np.asarray(self.target.sf(t), dtype=float), np.asarray(self.target.cdf(t), dtype=float)

@@ -233,6 +233,24 @@ class Sampler:
         self._fill(out, rng)
         return out
 
+    # ---- copies for parallel tasks ---------------------------------------------------
+    def working_copy(self) -> "Sampler":
+        """A copy for one task: it shares this sampler's set-up (the target and the tables, which
+        nothing writes after set-up) and has its own counters and working state, so its draws never
+        depend on what this sampler or its other copies drew before. It costs microseconds; a deep
+        copy goes through the file format (``__reduce__``) and rebuilds the model, milliseconds
+        that a thread holds the GIL for."""
+        twin = object.__new__(type(self))
+        twin.__dict__.update(self.__dict__)
+        twin.extra_stats = dict(self.extra_stats)
+        twin.reset_counters()
+        twin._own_working_state()
+        return twin
+
+    def _own_working_state(self) -> None:
+        """Replace, on a fresh working copy, any state beyond the counters that drawing changes
+        (a method keeping scratch buffers, reserves or sub-samplers overrides this)."""
+
     # ---- counters ----------------------------------------------------------------
     def reset_counters(self) -> None:
         self.counts = {name: 0 for name in COUNTER_NAMES}

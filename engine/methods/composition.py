@@ -30,6 +30,9 @@ class Composition(Sampler):
             raise MethodNotApplicable("method", "composition serves mixtures of sub-populations; "
                                                 "this model is not a mixture")
 
+    def _own_working_state(self) -> None:
+        self.parts = [part.working_copy() for part in self.parts]
+
     def _setup(self) -> None:
         from ..sampling import fit
         t = self.target

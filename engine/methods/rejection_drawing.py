@@ -270,6 +270,10 @@ class HatDrawing:
         finally:
             call.reserve = None
 
+    def _own_working_state(self):
+        # A working copy starts with no scratch lists and no reserve of its own (Sampler.working_copy).
+        self.__dict__.pop("_local", None)
+
     def _thread_state(self):
         """This thread's working state (scratch lists, the end draws' reserve)."""
         return self.__dict__.setdefault("_local", threading.local())
