@@ -328,22 +328,6 @@ class DrawingBoard(ModelEditing, BoardData, param.Parameterized):
         self.batch += 1
         return m
 
-
-
-
-
-
-
-
-
-
-
-
-
-
-
-
-
     def release(self) -> None:
         """The session has ended: stop, and let go of the draws and the tables derived from the model."""
         with self._quiet():
