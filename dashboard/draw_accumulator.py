@@ -78,7 +78,9 @@ class DrawAccumulator:
     def _sorted(self):
         """The reservoir sorted by value, with its cdf values in the same order (cached until the next add)."""
         if self._sorted_cache is None or self._sorted_cache[0] != self.n:
-            order = np.argsort(self.x, kind="stable")
+            # Any order of equal values gives the same sorted arrays (F is a function of x), so the
+            # default sort serves (SIMD-accelerated; a stable sort was 7x slower at 200,000).
+            order = np.argsort(self.x)
             self._sorted_cache = (self.n, self.x[order], self.F[order], self.F_left[order])
         return self._sorted_cache[1:]
 

@@ -48,16 +48,22 @@ def _collect(value, into: list) -> None:
             _collect(item, into)
 
 
+def _property(model, name: str, default=None):
+    """``model.name`` if the model has that property, else ``default``. (Bokeh answers a request for a
+    property a model lacks with a fuzzy search for similar names, milliseconds per frame here.)"""
+    return getattr(model, name) if name in model.properties() else default
+
+
 def _shape(figure) -> tuple:
     """The identities of the models HoloViews replaces when a frame needs new ones: renderers, glyphs,
     sources, ranges, axes with their tickers and formatters, annotations, title (cheap to read)."""
     ids = [id(figure.x_range), id(figure.y_range), id(figure.title)]
     for r in figure.renderers:
-        ids += [id(r), id(getattr(r, "glyph", None)), id(getattr(r, "data_source", None))]
+        ids += [id(r), id(_property(r, "glyph")), id(_property(r, "data_source"))]
     for side in (figure.below, figure.left, figure.right, figure.above, figure.center):
         for m in side:
-            ids += [id(m), id(getattr(m, "ticker", None)), id(getattr(m, "formatter", None))]
-            ids += [id(item) for item in getattr(m, "items", [])]
+            ids += [id(m), id(_property(m, "ticker")), id(_property(m, "formatter"))]
+            ids += [id(item) for item in _property(m, "items", [])]
     return tuple(ids)
 
 
