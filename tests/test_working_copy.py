@@ -27,6 +27,7 @@ SAMPLERS = {
     "rejection with draws beyond the hat": lambda: engine.fit(load_scenario("sensor-bathtub").target(), "rejection"),
     "ratio-of-uniforms": lambda: engine.fit(lifedraw.family("gamma", shape=2.5, scale=3.0), "ratio-of-uniforms"),
     "Leva's normal": lambda: engine.fit(lifedraw.family("normal", mean=10.0, sd=2.0), "ratio-of-uniforms"),
+    "table of binned field data": lambda: engine.fit(load_scenario("ebike-battery-returns").target(), "table"),
     "composition of a mixture": lambda: engine.fit(lifedraw.mixture(
         [lifedraw.family("weibull", shape=0.6, scale=50.0), lifedraw.family("weibull", shape=4.0, scale=500.0)],
         [0.3, 0.7]), "composition"),
