@@ -14,6 +14,7 @@ from . import plots
 from .background import off_loop
 from .escaping import css_token, file_stem
 from .notices import error_box, show_error
+from .prompt_slider import PromptSlider
 from .state import FORMULA_KINDS
 from .step_base import Step, TEXT_CSS, log, scenario_titles, text_pane
 from .uploads import UPLOAD_LIMIT_HTML, check_size, latest_file, upload_widget
@@ -140,7 +141,7 @@ class ModelStep(Step):
         widgets = {}
         for name, p in sc.parameters.items():
             fmt = "%.3g" if (abs(p.high) < 0.01 or abs(p.high) >= 1e5 or p.step < 1e-3) else "%.4g"
-            w = pn.widgets.FloatSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
+            w = PromptSlider(name=p.label or name, start=p.low, end=p.high, step=p.step, value=p.value,
                                        format=PrintfTickFormatter(format=fmt), width=300, margin=(4, 12),
                                        css_classes=[css_token(name, "ld-slider")])
             # A release refits and redraws the live check, whose plots copy plain values onto the page
