@@ -104,18 +104,31 @@ def create_app(scenario: str | None = None, report_dir=None) -> pn.Column:
         sizing_mode="stretch_width", max_width=1240, styles={"margin": "0 auto"}, css_classes=["ld-page"])
     doc = pn.state.curdoc
     if doc is not None and doc.session_context is not None:
-        updates.attach(doc)
+        updates.attach(doc, connected=lambda: browser_connected(doc))
         pn.state.onload(_settle_memory)
         log.info("session %s opened", doc.session_context.id)
 
-        def release(context):
-            updates.detach()
-            state.release()
-            gc.unfreeze()
-            log.info("session %s released", context.id)
-
-        pn.state.on_session_destroyed(release)
+        pn.state.on_session_destroyed(lambda context: release_session(updates, state, context.id))
     return page
+
+
+def browser_connected(doc) -> bool:
+    """Whether a browser still shows ``doc``'s page: the server keeps a closed tab's session until its
+    next check for unused sessions, a few seconds, before destroying it."""
+    context = doc.session_context
+    session = context.session if context is not None else None
+    return session is None or session.connection_count > 0
+
+
+def release_session(updates: PageUpdates, state: DrawingBoard, session_id: str = "") -> None:
+    """Let go of what a closed tab's session holds: its follow-up callback, then its draws and the
+    tables derived from its model. The draws are let go even if stopping the callback fails."""
+    try:
+        updates.detach()
+    finally:
+        state.release()
+        gc.unfreeze()
+        log.info("session %s released", session_id)
 
 
 def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: str | None = None, report_dir=None,

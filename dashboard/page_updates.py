@@ -17,6 +17,7 @@ from __future__ import annotations
 import collections
 import logging
 import time
+from typing import Callable
 
 import panel as pn
 
@@ -70,6 +71,7 @@ class PageUpdates:
         self.yield_until = 0.0
         self.updates = 0          # ticks that changed the page (each one recomputes the document)
         self._doc = None
+        self._connected: Callable[[], bool] = lambda: True
         self._callback = None
         self._turn = 0                # whose follow-up goes next (see _next_follow_up)
         self._stepped_last = False    # while streaming, batches and follow-up pieces take turns
@@ -96,7 +98,7 @@ class PageUpdates:
 
     def tick(self) -> bool:
         """Do one piece of work; returns whether the page changed."""
-        if time.monotonic() < self.yield_until:
+        if time.monotonic() < self.yield_until or not self._connected():
             return False
         if not self.pending():
             self.sleep()
@@ -132,9 +134,12 @@ class PageUpdates:
     def awake(self) -> bool:
         return self._callback is not None
 
-    def attach(self, doc) -> None:
-        """Run the ticks on ``doc`` (a Bokeh document of a server session) while there is work."""
+    def attach(self, doc, connected: Callable[[], bool] = lambda: True) -> None:
+        """Run the ticks on ``doc`` (a Bokeh document of a server session) while there is work and
+        ``connected()`` says a browser shows the page: a closed tab's session lingers a few seconds
+        before the server ends it, and work for it would only fail to reach it."""
         self._doc = doc
+        self._connected = connected
         self.wake()
 
     def wake(self) -> None:
@@ -151,5 +156,10 @@ class PageUpdates:
 
     def detach(self) -> None:
         """The session has ended: stop for good."""
-        self.sleep()
+        try:
+            self.sleep()
+        except AttributeError:
+            # Bokeh destroys an ended session's document before the session-destroyed callbacks run:
+            # its callbacks are gone already, and so are the tables it would look them up in.
+            self._callback = None
         self._doc = None

@@ -94,6 +94,48 @@ def test_a_released_session_lets_go_of_its_draws(page):
     assert state.acc is None and state.table is None and not state.running
 
 
+def test_a_session_bokeh_has_destroyed_is_released(page):
+    # Bokeh destroys a closed tab's document (its callback tables with it) before the
+    # session-destroyed callbacks run. Asking that document to remove the follow-up callback
+    # failed, the release stopped there and the session's draws were never let go (seen in
+    # the server log).
+    from lifedraw.dashboard.app import release_session
+    state, updates, _ = page
+    doc = Document()
+    updates.attach(doc)
+    state.start()
+    assert updates.awake
+    doc.callbacks.destroy()                   # what Document.destroy does to the callbacks
+    release_session(updates, state, "closed tab")
+    assert not updates.awake
+    assert state.acc is None and state.table is None and not state.running
+
+
+def test_no_work_is_done_for_a_page_no_browser_shows(page):
+    # A closed tab's session lives on until the server's next check for unused sessions; the
+    # stream kept drawing for it and every update failed to reach the closed connection.
+    state, updates, calls = page
+    shown = [False]
+    updates.attach(Document(), connected=lambda: shown[0])
+    state.start()
+    steps = calls["DrawingBoard.step"]
+    assert updates.tick() is False and calls["DrawingBoard.step"] == steps
+    shown[0] = True                           # a browser (re)connects: the stream goes on
+    _settle(updates)
+    assert calls["DrawingBoard.step"] > steps and state.n == state.stop_at
+
+
+def test_a_session_counts_as_shown_while_it_has_a_connection():
+    from types import SimpleNamespace
+
+    from lifedraw.dashboard.app import browser_connected
+
+    def doc(connections):
+        return SimpleNamespace(session_context=SimpleNamespace(session=SimpleNamespace(connection_count=connections)))
+    assert browser_connected(doc(1)) and not browser_connected(doc(0))
+    assert browser_connected(SimpleNamespace(session_context=None))   # not served: nothing to check
+
+
 def test_the_streams_share_of_the_loop_is_bounded():
     now = [0.0]
     budget = LoopBudget(share=0.5, window=2.0, clock=lambda: now[0])
