@@ -155,11 +155,10 @@ class PageUpdates:
                 pass
 
     def detach(self) -> None:
-        """The session has ended: stop for good."""
-        try:
-            self.sleep()
-        except AttributeError:
-            # Bokeh destroys an ended session's document before the session-destroyed callbacks run:
-            # its callbacks are gone already, and so are the tables it would look them up in.
-            self._callback = None
+        """The session has ended: stop for good. The server destroys an ended session's document, and
+        the document's callbacks with it, before the session-destroyed callbacks run; asked to remove
+        one, that document fails inside Bokeh and stays behind as Bokeh's current document (which
+        breaks every later ``curdoc()``). So nothing is asked of it: only the references are dropped."""
+        self._callback = None
         self._doc = None
+        self._connected = lambda: True

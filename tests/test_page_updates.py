@@ -83,7 +83,7 @@ def test_the_periodic_callback_exists_only_while_there_is_work(page):
     assert not updates.awake and len(doc.session_callbacks) == 0
     state.start()                             # a change wakes it
     assert updates.awake and len(doc.session_callbacks) == 1
-    updates.detach()
+    updates.sleep()
     assert len(doc.session_callbacks) == 0
 
 
@@ -99,6 +99,12 @@ def test_a_session_bokeh_has_destroyed_is_released(page):
     # session-destroyed callbacks run. Asking that document to remove the follow-up callback
     # failed, the release stopped there and the session's draws were never let go (seen in
     # the server log).
+    # Asking the destroyed document anything also left it behind as Bokeh's current document,
+    # so that every later curdoc() failed once it was collected.
+    import gc
+
+    from bokeh.io import curdoc
+
     from lifedraw.dashboard.app import release_session
     state, updates, _ = page
     doc = Document()
@@ -109,6 +115,9 @@ def test_a_session_bokeh_has_destroyed_is_released(page):
     release_session(updates, state, "closed tab")
     assert not updates.awake
     assert state.acc is None and state.table is None and not state.running
+    del doc
+    gc.collect()
+    curdoc()                                  # raised "Patched curdoc has been previously destroyed"
 
 
 def test_no_work_is_done_for_a_page_no_browser_shows(page):
