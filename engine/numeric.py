@@ -320,7 +320,7 @@ class CumulativeIntegral:
             with np.errstate(all="ignore"):
                 series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
                                            self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
-                                           upper_sums=self.upper_sums)
+                                           upper_sums=self.upper_sums, nodes_and_quadrature=self._nodes_and_rule)
             self._series = series
         return self._series
 
@@ -334,39 +334,56 @@ class CumulativeIntegral:
             # A node that rounds onto an infinite end carries no mass (integrability).
             return np.where(far, 0.0, g * self.mapping.dt_dy(y))
 
-    def _rule(self, a, b):
+    def _rule(self, a, b, extra=None):
         """Integrals over each [a_i, b_i]: 10-point Gauss-Legendre, or Gauss-Jacobi
-        with weight (y - ylo)**alpha on a piece that starts at a fractional-power zero."""
+        with weight (y - ylo)**alpha on a piece that starts at a fractional-power zero. The integrand
+        at the ages ``extra`` (any shape), if given, comes from the same pass and is returned too."""
         a = np.asarray(a, dtype=float)
         b = np.asarray(b, dtype=float)
         half = 0.5 * (b - a)
         mid = 0.5 * (b + a)
         y = mid[:, None] + half[:, None] * _GL_NODES[None, :]
         first = a <= self._ylo if self._jacobi is not None else None
-        if first is None or not np.any(first):
-            return half * (self._g_of_y(y) @ _GL_WEIGHTS)
-        # The Gauss-Jacobi nodes of the pieces at the lower end go through the integrand in the
-        # same pass as the Gauss-Legendre nodes of all pieces.
-        nodes, weights, alpha = self._jacobi
-        width = b[first] - self._ylo
-        ys = self._ylo + width[:, None] * nodes[None, :]
-        values = self._g_of_y(np.concatenate([y.ravel(), ys.ravel()]))
+        jacobi = first is not None and bool(np.any(first))
+        # The Gauss-Jacobi nodes of the pieces at the lower end (and any extra ages) go through the
+        # integrand in the same pass as the Gauss-Legendre nodes of all pieces.
+        parts = [y.ravel()]
+        if jacobi:
+            nodes, weights, alpha = self._jacobi
+            width = b[first] - self._ylo
+            ys = self._ylo + width[:, None] * nodes[None, :]
+            parts.append(ys.ravel())
+        if extra is not None:
+            parts.append(np.ravel(extra))
+        values = self._g_of_y(np.concatenate(parts) if len(parts) > 1 else parts[0])
         out = half * (values[:y.size].reshape(y.shape) @ _GL_WEIGHTS)
-        phi = values[y.size:].reshape(ys.shape) / (ys - self._ylo) ** alpha
-        out[first] = width ** (alpha + 1.0) * (phi @ weights)
-        return out
+        if jacobi:
+            phi = values[y.size:y.size + ys.size].reshape(ys.shape) / (ys - self._ylo) ** alpha
+            out[first] = width ** (alpha + 1.0) * (phi @ weights)
+        if extra is None:
+            return out
+        return out, values[values.size - np.size(extra):].reshape(np.shape(extra))
+
+    def _nodes_and_rule(self, a, b):
+        """The integrand at the series' nodes of each piece [a_i, b_i] and the pieces' integrals
+        (``_rule``), in one pass over the integrand."""
+        out, values = self._rule(a, b, PieceSeries.nodes(a, b))
+        return values, out
 
     def _partition(self, grid, rtol):
         done_a, done_b, done_val = [], [], []
         a, b = grid[:-1], grid[1:]
-        whole = self._rule(a, b)
+        m = 0.5 * (a + b)
+        # The first round's pieces and both their halves in one pass over the integrand.
+        whole, left, right = np.split(self._rule(np.concatenate([a, a, m]), np.concatenate([b, m, b])), 3)
         scale_hint = float(np.sum(np.abs(whole)))
         rounds = 0
         while a.size:
             rounds += 1
-            m = 0.5 * (a + b)
-            # Both halves of every piece in one pass over the integrand.
-            left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
+            if rounds > 1:
+                m = 0.5 * (a + b)
+                # Both halves of every piece in one pass over the integrand.
+                left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
             halves = left + right
             if not np.all(np.isfinite(halves)):
                 raise ModelError(self.field, "the integral is not finite (a non-integrable "
