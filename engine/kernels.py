@@ -766,3 +766,86 @@ def inverse_piece_errors(du_test, total, test_s, status, *, use_jit=True):
     if use_jit and _inverse_piece_errors_jit is not None:
         return _inverse_piece_errors_jit(du_test, total, test_s, status, err)
     return _inverse_piece_errors_numpy(du_test, total, test_s, status, err)
+
+
+# ---- Gauss-Jacobi rule (engine/numeric.py: the first piece at a fractional-power start) ------------
+#
+# Nodes and weights of the n-point rule for the weight (1 + x)^alpha on [-1, 1]: the nodes are first
+# the eigenvalues of the symmetric tridiagonal Jacobi matrix (Golub & Welsch 1969, Math. Comp. 23),
+# then polished by Newton steps on P_n^(0, alpha) from its three-term recurrence; each weight comes from
+# P_n' at its node (Szego, Orthogonal Polynomials, 4th ed., 1975, (15.3.1) and (4.5.1), (4.5.7)), and the
+# weights are scaled to sum to the weight's exact integral 2^(alpha + 1)/(alpha + 1), which removes
+# the rounding of the Gamma-function constant. Computed for every model (no rule is kept between models).
+
+def _jacobi_matrix(n, alpha):
+    J = np.zeros((n, n))
+    for k in range(n):
+        s = 2.0 * k + alpha
+        J[k, k] = alpha * alpha / (s * (s + 2.0)) if k > 0 else alpha / (alpha + 2.0)
+        if k + 1 < n:
+            m = k + 1.0
+            t = 2.0 * m + alpha
+            J[k, k + 1] = math.sqrt(4.0 * m * m * (m + alpha) * (m + alpha) / (t * t * (t + 1.0) * (t - 1.0)))
+            J[k + 1, k] = J[k, k + 1]
+    return J
+
+
+def _jacobi_value_and_slope(n, alpha, z):
+    """P_n^(0, alpha)(z) and its derivative (z may be an array: the numpy twin passes all nodes)."""
+    p0 = 1.0 + 0.0 * z
+    p1 = 0.5 * (-alpha + (alpha + 2.0) * z)
+    for k in range(2, n + 1):
+        c = 2.0 * k + alpha
+        p0, p1 = p1, (((c - 1.0) * (c * (c - 2.0) * z - alpha * alpha) * p1 - 2.0 * (k - 1.0) * (k + alpha - 1.0) * c * p0)
+                      / (2.0 * k * (k + alpha) * (c - 2.0)))
+    c = 2.0 * n + alpha
+    return p1, (n * (-alpha - c * z) * p1 + 2.0 * n * (n + alpha) * p0) / (c * (1.0 - z * z))
+
+
+def _gauss_jacobi_py(n, alpha, x, w):
+    x[:] = np.linalg.eigvalsh(_jacobi_matrix(n, alpha))
+    total = 0.0
+    for i in range(n):
+        z = x[i]
+        for _ in range(3):
+            p, dp = _jacobi_value_and_slope(n, alpha, z)
+            z -= p / dp
+        p, dp = _jacobi_value_and_slope(n, alpha, z)
+        x[i] = z
+        w[i] = 1.0 / ((1.0 - z * z) * dp * dp)
+        total += w[i]
+    scale = 2.0 ** (alpha + 1.0) / (alpha + 1.0) / total
+    for i in range(n):
+        w[i] *= scale
+
+
+if HAVE_JIT:
+    _jacobi_matrix = numba.njit(cache=True)(_jacobi_matrix)
+    _jacobi_value_and_slope = numba.njit(cache=True)(_jacobi_value_and_slope)
+_gauss_jacobi_jit = _jit(_gauss_jacobi_py)
+
+
+def _gauss_jacobi_numpy(n, alpha, x, w):
+    x[:] = np.linalg.eigvalsh(_jacobi_matrix.py_func(n, alpha) if HAVE_JIT else _jacobi_matrix(n, alpha))
+    slope = _jacobi_value_and_slope.py_func if HAVE_JIT else _jacobi_value_and_slope
+    z = x.copy()
+    for _ in range(3):
+        p, dp = slope(n, alpha, z)
+        z = z - p / dp
+    p, dp = slope(n, alpha, z)
+    x[:] = z
+    w[:] = 1.0 / ((1.0 - z * z) * dp * dp)
+    w *= 2.0 ** (alpha + 1.0) / (alpha + 1.0) / np.sum(w)
+
+
+def gauss_jacobi(n, alpha, *, use_jit=True):
+    """(nodes, weights) of the n-point Gauss rule for the weight (1 + x)^alpha on [-1, 1], alpha > -1."""
+    n, alpha = int(n), float(alpha)
+    if n < 2 or not alpha > -1.0:
+        raise ValueError("gauss_jacobi: n >= 2 and alpha > -1")
+    x, w = np.empty(n), np.empty(n)
+    if use_jit and _gauss_jacobi_jit is not None:
+        _gauss_jacobi_jit(n, alpha, x, w)
+    else:
+        _gauss_jacobi_numpy(n, alpha, x, w)
+    return x, w

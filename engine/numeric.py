@@ -11,8 +11,8 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import special
 
+from . import kernels
 from .errors import ModelError
 from .piece_series import PieceSeries
 
@@ -26,7 +26,7 @@ def _jacobi_rule(alpha: float):
     """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
     [-1, 1], s = (1+x)/2). Computed for every model: the exponent comes from the model's own
     numbers, and no number is kept from one model to the next."""
-    x, w = special.roots_jacobi(12, 0.0, alpha)
+    x, w = kernels.gauss_jacobi(12, alpha)
     return (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha
 
 
