@@ -661,6 +661,7 @@ class Formula:
         self.text = _pretty(tree) if text is None else text
         self._fn = _compile(tree)
         self._derivative: Formula | None = None
+        self._names: frozenset[str] | None = None
 
     @classmethod
     def parse(cls, text: str, params=(), field: str = "formula") -> "Formula":
@@ -711,8 +712,10 @@ class Formula:
         return _uses_t(self._tree)
 
     def names(self) -> set[str]:
-        """The declared parameters that the formula actually uses."""
-        return {n.id for n in _walk(self._tree) if isinstance(n, Name) and n.id in self.params}
+        """The declared parameters that the formula actually uses (read off the tree once)."""
+        if self._names is None:
+            self._names = frozenset(n.id for n in _walk(self._tree) if isinstance(n, Name) and n.id in self.params)
+        return set(self._names)
 
     def pretty(self) -> str:
         return _pretty(self._tree)

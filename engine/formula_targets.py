@@ -45,13 +45,20 @@ def _on_support(t: np.ndarray, support) -> bool:
     return t.ndim == 1 and bool(np.all((t >= lo) & (t <= hi)))
 
 
+# Where the validity probes go: fractions of a finite support (log-spaced next to the ends), or
+# offsets from a finite end of an infinite one. Fixed numbers, made once.
+_PROBE_FRACTIONS = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33), 1 - np.logspace(-1, -12, 23)])
+_PROBE_FRACTIONS.setflags(write=False)
+_PROBE_OFFSETS = np.logspace(-9, 9, 73)
+_PROBE_OFFSETS.setflags(write=False)
+
+
 def _probe_points(lo: float, hi: float) -> np.ndarray:
     """Ages spread over the support (log-spaced next to the ends) for validity probes."""
-    fractions = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33),
-                                1 - np.logspace(-1, -12, 23)])
+    fractions = _PROBE_FRACTIONS
     if np.isfinite(lo) and np.isfinite(hi):
         return lo + (hi - lo) * fractions
-    offsets = np.logspace(-9, 9, 73)
+    offsets = _PROBE_OFFSETS
     if np.isfinite(lo):
         return lo + offsets
     if np.isfinite(hi):

@@ -212,6 +212,11 @@ def divergence_reason(g: Callable, lo: float, hi: float) -> str | None:
     return None
 
 
+# The logarithmic probe grid of ``support_map`` (offsets from a finite end, or from 0 both ways).
+_SCALE_OFFSETS = np.logspace(-8, 12, 241)
+_SCALE_OFFSETS.setflags(write=False)
+
+
 def support_map(lo: float, hi: float, density: Callable | None = None) -> SupportMap:
     """Choose a map for (lo, hi); for infinite ends, probe ``density`` for its scale.
 
@@ -220,7 +225,7 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
     """
     centre, scale = 0.0, 1.0
     if not (np.isfinite(lo) and np.isfinite(hi)) and density is not None:
-        offsets = np.logspace(-8, 12, 241)
+        offsets = _SCALE_OFFSETS
         if np.isfinite(lo):
             probe, base = lo + offsets, lo
         elif np.isfinite(hi):
@@ -555,15 +560,19 @@ def bracket_grid(cdf, mapping: SupportMap):
     return t_grid, c_grid
 
 
+# Fractions of the mapped coordinate's range for ``mapped_grid``: dense near the ends of the y-range,
+# where infinite supports are compressed.
+_GRID_STEPS = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 120),
+                              1 - 2.0 ** -np.arange(7, 61)])
+_GRID_STEPS.setflags(write=False)
+
+
 def mapped_grid(mapping: SupportMap) -> np.ndarray:
     """Ages at equal steps of the mapped coordinate, geometrically denser towards its ends (down to
     2^-60 of its range), with the finite ends of the support themselves."""
     ylo, yhi = mapping.y_range
     span = yhi - ylo
-    # Dense near the ends of the y-range, where infinite supports are compressed.
-    steps = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 120),
-                            1 - 2.0 ** -np.arange(7, 61)])
-    t_grid = np.unique(mapping.to_t(ylo + span * steps))
+    t_grid = np.unique(mapping.to_t(ylo + span * _GRID_STEPS))
     t_grid = t_grid[np.isfinite(t_grid)]
     lo, hi = mapping.lo, mapping.hi
     if np.isfinite(lo):

@@ -27,6 +27,9 @@ INITIAL_STEPS = 32           # first partition: equal steps of the target's mapp
 BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS, and 2^-k, 1 - 2^-k (k = 6, 7.5, ... 33) in the tails
 QUANTILE_LEVELS = np.concatenate([np.arange(1, BULK_STEPS) / BULK_STEPS, 2.0 ** -np.arange(6.0, 34.0, 1.5),
                                   1.0 - 2.0 ** -np.arange(6.0, 34.0, 1.5)])
+#: Geometric steps towards a finite start of life, as fractions of the first step of the mapped grid.
+START_STEPS = np.logspace(-12, 0, 13)
+START_STEPS.setflags(write=False)
 #: Interpolation nodes of a piece in its own u-coordinate s: Chebyshev-Lobatto points on [0, 1].
 NODES_S = 0.5 * (1.0 - np.cos(np.pi * np.arange(ORDER + 1) / ORDER))
 #: u-error test points: three between each pair of neighbouring nodes (1/4, 1/2, 3/4 of the gap),
@@ -168,7 +171,7 @@ class NumericalInversion(Inversion):
             # Geometric steps towards a finite start of life: a pole there, or a density that
             # starts like a power of the age, leaves F^-1 far from polynomial next to it.
             first = grid[grid > a][0] if np.any(grid > a) else b
-            steps = a + (first - a) * np.logspace(-12, 0, 13)
+            steps = a + (first - a) * START_STEPS
             # Below the last step where the scan finds next to no mass (F <= 1e-14 at the grid age
             # above it) one piece does (linear, its u-error at most its mass): the steps under it
             # would only cost evaluations next to the start.
