@@ -378,17 +378,21 @@ class CumulativeIntegral:
     def _partition(self, grid, rtol):
         done_a, done_b, done_val = [], [], []
         a, b = grid[:-1], grid[1:]
-        m = 0.5 * (a + b)
-        # The first round's pieces and both their halves in one pass over the integrand.
-        whole, left, right = np.split(self._rule(np.concatenate([a, a, m]), np.concatenate([b, m, b])), 3)
-        scale_hint = float(np.sum(np.abs(whole)))
+        # A piece's integral on the whole piece is known from the round before (its half then) or not
+        # yet (NaN: the first round's pieces and the parts of a graded split): those are integrated in
+        # the same pass as both halves of every piece, one pass over the integrand per round.
+        whole = np.full(a.size, np.nan)
+        scale_hint = 0.0
         rounds = 0
         while a.size:
             rounds += 1
-            if rounds > 1:
-                m = 0.5 * (a + b)
-                # Both halves of every piece in one pass over the integrand.
-                left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
+            m = 0.5 * (a + b)
+            unknown = np.flatnonzero(np.isnan(whole))
+            values = self._rule(np.concatenate([a, m, a[unknown]]), np.concatenate([m, b, b[unknown]]))
+            left, right = values[:a.size], values[a.size:2 * a.size]
+            whole[unknown] = values[2 * a.size:]
+            if rounds == 1:
+                scale_hint = float(np.sum(np.abs(whole)))
             halves = left + right
             if not np.all(np.isfinite(halves)):
                 raise ModelError(self.field, "the integral is not finite (a non-integrable "
@@ -417,7 +421,7 @@ class CumulativeIntegral:
                     starts, ends = np.concatenate([[a_new[i]], cuts]), np.concatenate([cuts, [b_new[i]]])
                     a_new = np.concatenate([np.delete(a_new, i), starts])
                     b_new = np.concatenate([np.delete(b_new, i), ends])
-                    whole = np.concatenate([np.delete(whole, i), self._rule(starts, ends)])
+                    whole = np.concatenate([np.delete(whole, i), np.full(starts.size, np.nan)])
             a, b = a_new, b_new
             pieces = sum(x.size for x in done_a) + a.size
             if pieces > self.max_pieces or rounds > 2000:
