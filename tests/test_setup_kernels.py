@@ -134,3 +134,24 @@ def test_the_gauss_jacobi_rule_integrates_polynomials_up_to_degree_23_exactly(al
         exact = float(sum(Fraction(comb(k, j)) * 2**j * (-1) ** (k - j) / (a + j + 1) for j in range(k + 1))) \
             * 2.0 ** (float(a) + 1.0)
         assert abs(np.dot(w, x**k) - exact) <= 1e-14 * abs(exact), (k, np.dot(w, x**k), exact)
+
+
+def test_the_guide_table_kernel_matches_its_numpy_twin_and_its_definition():
+    # Starts as numerical inversion makes them (cumulative sums of piece masses, some of zero mass,
+    # a first start above 0 and a last one near 1), plus one start beyond 1 by rounding; bit for bit
+    # against the twin (numpy's searchsorted) and, for every cell, against the definition read
+    # directly: the last piece whose start is <= i/size, clamped into the pieces.
+    rng = np.random.default_rng(8)
+    for m in (1, 2, 7, 250):
+        du = rng.exponential(size=m)
+        du[rng.random(m) < 0.2] = 0.0
+        u_start = 1e-12 + np.concatenate([[0.0], np.cumsum(du)[:-1]]) / max(du.sum(), 1.0)
+        if m > 2:
+            u_start[-1] = 1.0 + 1e-16
+        size = 32 * m
+        jit = kernels.guide_table(u_start, size)
+        np.testing.assert_array_equal(jit, kernels.guide_table(u_start, size, use_jit=False))
+        for i in range(size):
+            at_or_below = np.flatnonzero(u_start <= i / size)
+            expected = min(max(at_or_below[-1] if at_or_below.size else 0, 0), m - 1)
+            assert jit[i] == expected
