@@ -575,6 +575,8 @@ def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
     if np.ndim(which) == 0:
         which = np.full(y.shape, 1 if which else 0, dtype=np.int64)
         base = np.stack([base, base]) if base.ndim == 1 else base
+    elif np.asarray(which).dtype == np.bool_:
+        which = np.ascontiguousarray(np.ravel(which)).view(np.int8)   # 0 or 1 by construction, no copy
     else:
         which = (np.ravel(which) != 0).astype(np.int64)     # 0 or 1 only: the kernel indexes with it
         if which.shape != y.shape:

@@ -491,8 +491,11 @@ class CumulativeIntegral:
         upper = (upper if upper.shape == t.shape else np.broadcast_to(upper, t.shape)).ravel()
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper)
-        value = np.where(y >= self.edges[-1], np.where(upper, 0.0, self.total), value)
-        value = np.where(y <= self.edges[0], np.where(upper, self.total, 0.0), value)
+        # At or beyond the ends: 0 or the total, on each point's side (only those few points are touched).
+        ends = np.flatnonzero((y >= self.edges[-1]) | (y <= self.edges[0]))
+        if ends.size:
+            top, side = y[ends] >= self.edges[-1], upper[ends]
+            value[ends] = np.where(top, np.where(side, 0.0, self.total), np.where(side, self.total, 0.0))
         return value.reshape(t.shape)
 
 
