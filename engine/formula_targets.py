@@ -405,10 +405,18 @@ class HazardTarget(_FormulaTarget):
             return super().cdf_or_sf(t, upper)
         # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there); at the end of the support,
         # where R(t) underflows, F = 1 and R = 0 as ``cdf`` and ``sf`` give.
+        upper = np.broadcast_to(np.asarray(upper, dtype=bool), t.shape)
         with np.errstate(all="ignore"):
-            H = self.H(t)
-            out = np.where(upper, np.exp(-H), -np.expm1(-H))
-        return np.where(t >= self.support[1], np.where(upper, 0.0, 1.0), out)
+            minus_H = np.negative(self.H(t))
+            # Each point's side only: R = exp(-H) where ``upper``, F = -expm1(-H) elsewhere.
+            out = np.exp(minus_H, where=upper, out=np.empty(t.shape))
+            lower = ~upper
+            np.expm1(minus_H, where=lower, out=out)
+            np.negative(out, where=lower, out=out)
+        end = np.flatnonzero(t >= self.support[1])
+        if end.size:
+            out[end] = np.where(upper[end], 0.0, 1.0)
+        return out
 
     def _sf(self, t):
         return np.exp(-self.H(t))

@@ -470,8 +470,8 @@ class CumulativeIntegral:
         t = np.asarray(t, dtype=float)
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper=False)
-        value = np.where(y >= self.edges[-1], self.total, value)
-        value = np.where(y <= self.edges[0], 0.0, value)
+        value[y >= self.edges[-1]] = self.total
+        value[y <= self.edges[0]] = 0.0
         return value.reshape(t.shape)
 
     def upper(self, t):
@@ -479,8 +479,8 @@ class CumulativeIntegral:
         t = np.asarray(t, dtype=float)
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper=True)
-        value = np.where(y >= self.edges[-1], 0.0, value)
-        value = np.where(y <= self.edges[0], self.total, value)
+        value[y >= self.edges[-1]] = 0.0
+        value[y <= self.edges[0]] = self.total
         return value.reshape(t.shape)
 
     def sided(self, t, upper):
