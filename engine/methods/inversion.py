@@ -103,12 +103,14 @@ class NumericalInversion(Inversion):
         or R(x_0) in the ``upper`` rows (x_0 at or beyond the model's median, found by ``_domain``),
         where the survival function keeps the digits that F runs out of. All rows in one call of the
         model (``Target.cdf_or_sf``); a base already known is passed in and x then omits x_0."""
-        values = np.asarray(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
-                            dtype=float).reshape(x.shape)
+        values = np.array(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
+                          dtype=float).reshape(x.shape)
         if base is None:
             base = values[:, 0].copy()
-        sign = np.where(upper, -1.0, 1.0)
-        return sign[:, None] * (values - base[:, None]), base
+        # In place: the differences, negated on the upper rows (R falls where F rises).
+        values -= base[:, None]
+        np.negative(values, out=values, where=upper[:, None])
+        return values, base
 
     def _domain(self) -> tuple[float, float, float]:
         """Computational domain: tails beyond mass ``cut`` are cut (DHL 2010, sec. 4).
