@@ -194,7 +194,16 @@ class NumericalInversion(Inversion):
         F_at = np.where(upper, 1.0 - base, base)
         total = du[:, -1].copy()
         coef, x_test, status = kernels.inverse_pieces(x0, w, du, NODES_S, TEST_S, 0.5 * self.tolerance)
-        du_test, _ = self._delta_u(upper, x_test, base)
+        # Only a fitted polynomial's test points are read: a linear piece's u-error is its mass (the
+        # bound that made it linear), a failed fit's is infinite. So the model is called for those only
+        # (a linear piece next to the start of life would ask for F at ages where its series is not trusted).
+        fitted = status == kernels.FITTED
+        if fitted.all():
+            du_test, _ = self._delta_u(upper, x_test, base)
+        else:
+            du_test = np.zeros(x_test.shape)
+            if fitted.any():
+                du_test[fitted], _ = self._delta_u(upper[fitted], x_test[fitted], base[fitted])
         err = kernels.inverse_piece_errors(du_test, total, TEST_S, status)
         return coef, total, F_at, err
 
