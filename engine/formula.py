@@ -750,7 +750,7 @@ class Formula:
         try:
             with np.errstate(all="ignore"):
                 out = np.asarray(self._fn(env), dtype=float)
-            shape = np.broadcast_shapes(out.shape, t.shape)
+            shape = t.shape if out.shape == t.shape else np.broadcast_shapes(out.shape, t.shape)
         except ValueError as exc:                      # array parameters that do not fit t
             raise ModelError(self.field, f"cannot evaluate for these shapes: {exc}") from None
         # A bare `t` or parameter would hand back the caller's own array: copy instead.

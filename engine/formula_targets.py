@@ -282,9 +282,10 @@ class DensityTarget(_FormulaTarget):
             raise ModelError("formula", f"the density's values are of order {peak:.3g}, too near the limits of "
                                         "double precision to compute with; multiply the formula by a constant "
                                         "that brings them near 1 (a density is normalised, so the scale is free)")
-        self._map = support_map(lo, hi, density=lambda t: self._raw(t) * np.ones_like(t))
+        # The bound formula's values have the shape of t already (Formula broadcasts a constant).
+        self._map = support_map(lo, hi, density=self._raw)
         self.integral = CumulativeIntegral(
-            lambda t: self._raw(t) * np.ones_like(t), self._map, field="formula",
+            self._raw, self._map, field="formula",
             check=lambda t, g: self._values_ok(t, g, "density"))
         area = self.integral.total
         if not (np.isfinite(area) and area > 0):
@@ -342,7 +343,7 @@ class HazardTarget(_FormulaTarget):
                                         "(the cumulative hazard is counted from there)")
 
         def h(t):
-            return self._raw(t) * np.ones_like(t)
+            return self._raw(t)      # the shape of t (Formula broadcasts a constant)
 
         self.declared_support = (lo, hi)
         reach = _cumulative_hazard_reach(h, lo, hi)

@@ -332,7 +332,9 @@ class CumulativeIntegral:
     def _g_of_y(self, y):
         t = self.mapping.to_t(y)
         with np.errstate(all="ignore"):
-            g = np.asarray(self.integrand(t), dtype=float) * np.ones_like(t)
+            g = np.asarray(self.integrand(t), dtype=float)
+            if g.shape != t.shape:                 # an integrand that does not depend on t
+                g = g * np.ones_like(t)
             far = np.isinf(t)
             if self._check is not None:
                 self._check(t[~far], g[~far])
