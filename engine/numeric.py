@@ -450,11 +450,12 @@ class CumulativeIntegral:
         if trusted.all():
             return value
         # Points at or beyond the ends are answered by the callers (0 or the total).
-        rest = np.flatnonzero(~trusted & (y > self.edges[0]) & (y < self.edges[-1]))
+        rest = np.flatnonzero(~trusted)
+        rest = rest[(y[rest] > self.edges[0]) & (y[rest] < self.edges[-1])]
         if rest.size:
             yr = y[rest]
             kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
-            up = np.broadcast_to(upper, y.shape)[rest]
+            up = upper[rest] if np.ndim(upper) else np.full(rest.size, bool(upper))
             # Above y in the first piece of a fractional power at the start: the piece's mass less the
             # part below y, which the Gauss-Jacobi rule integrates (a Gauss-Legendre rule from y up
             # would miss the power's digits, about 1e-11 of the piece).
