@@ -504,10 +504,14 @@ def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
     top = table.shape[2] - 1
     piece = np.empty(n, dtype=np.int64)
     place = np.empty(n)
+    k = -1
     for i in range(n):
         yi = y[i]
-        k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
-        k = min(max(k, 0), m - 1)
+        # Neighbouring points mostly share a piece: the previous point's piece is tried first
+        # (the same answer as the search: edges[k] <= yi < edges[k + 1], or the last piece's end).
+        if not (k >= 0 and edges[k] <= yi and (yi < edges[k + 1] or (k == m - 1 and yi >= edges[m]))):
+            k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
+            k = min(max(k, 0), m - 1)
         a = edges[k]
         b = edges[k + 1]
         piece[i] = k

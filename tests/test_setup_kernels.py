@@ -155,3 +155,23 @@ def test_the_guide_table_kernel_matches_its_numpy_twin_and_its_definition():
             at_or_below = np.flatnonzero(u_start <= i / size)
             expected = min(max(at_or_below[-1] if at_or_below.size else 0, 0), m - 1)
             assert jit[i] == expected
+
+
+def test_the_series_kernel_finds_each_point_s_piece_when_neighbours_share_pieces():
+    # The compiled loop tries the previous point's piece first; points in increasing runs (as the
+    # inversion asks for them), on the edges themselves, on a zero-width piece, and outside the
+    # partition on both sides must still land where numpy's search puts them (the twin), bit for bit.
+    rng = np.random.default_rng(9)
+    m = 30
+    edges = np.sort(rng.uniform(0, 1, m + 1))
+    edges[11] = edges[10]                                  # a piece of zero width
+    table = rng.normal(size=(m, 2, 25))
+    base = rng.uniform(0, 1, m)
+    limit = rng.uniform(0, 1, m)
+    runs = np.sort(rng.uniform(-0.05, 1.05, (200, 17)), axis=1).ravel()
+    y = np.concatenate([runs, edges, edges[::-1], np.repeat(edges[-1], 3), [edges[0] - 1.0, np.nan]])
+    for which in (0, 1):
+        jit = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit)
+        twin = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit, use_jit=False)
+        np.testing.assert_array_equal(jit[0], twin[0])
+        np.testing.assert_array_equal(jit[1], twin[1])
