@@ -122,8 +122,12 @@ class SupportMap:
                     z = np.clip((t - self.lo) / (self.hi - self.lo), 0.0, 1.0)
                 else:
                     s = np.maximum(t - self.lo, 0.0) / c
-                    # 1 - w = 1/(1 + s); z = 1 - (1 - w)**(1/q), without cancellation
-                    z = np.where(np.isinf(s), 1.0, -np.expm1(-np.log1p(s) / self.tail_power))
+                    # 1 - w = 1/(1 + s); z = 1 - (1 - w)**(1/q), without cancellation (for q = 1 that is
+                    # s/(1 + s), two roundings as the general form has, at half its cost)
+                    if self.tail_power == 1.0:
+                        z = np.where(np.isinf(s), 1.0, s / (1.0 + s))
+                    else:
+                        z = np.where(np.isinf(s), 1.0, -np.expm1(-np.log1p(s) / self.tail_power))
                 return z ** (1.0 / self.power) if self.power != 1.0 else z
             if np.isfinite(self.hi):
                 s = np.minimum(t - self.hi, 0.0) / c
