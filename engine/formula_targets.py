@@ -42,7 +42,8 @@ def _check_params(params: Mapping[str, float]) -> dict[str, float]:
 def _on_support(t: np.ndarray, support) -> bool:
     """True for a 1-d array of ages in [lo, hi] with no NaN: where ``cdf_or_sf`` needs no masking."""
     lo, hi = support
-    return t.ndim == 1 and bool(np.all((t >= lo) & (t <= hi)))
+    # Two reductions, no temporaries (a NaN makes min or max NaN, and the test False).
+    return t.ndim == 1 and t.size > 0 and bool(t.min() >= lo) and bool(t.max() <= hi)
 
 
 # Where the validity probes go: fractions of a finite support (log-spaced next to the ends), or

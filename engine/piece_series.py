@@ -142,8 +142,8 @@ class PieceSeries:
         and where the series can be trusted for it (False: the caller's quadrature must supply that
         point). y inside [edges[0], edges[-1]]."""
         if np.ndim(upper) == 0:
-            return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
-                                                self.after if upper else self.before, self.limit)
+            # One side for all points: a flag per point all alike (no copies of the masses).
+            upper = (np.ones if upper else np.zeros)(np.size(y), dtype=bool)
         return kernels.chebyshev_piece_sums(y, self.edges, self.table, upper, self.masses, self.limit)
 
 
