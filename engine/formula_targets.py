@@ -110,14 +110,18 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     # Ages up to 1e300 past the start: far enough for any H that grows like log t
     # with a practical coefficient, near enough that dt/dy of the log-age map stays finite.
     top = min(hi - lo, MAX_AGE_SPAN)
-    first = min(-12.0, math.log10(top) - 12.0)
-    exponents = np.linspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+    full_span = top == MAX_AGE_SPAN
+    exponents = _FULL_SPAN_EXPONENTS if full_span else _scan_exponents(top)
     # The scan runs in two stages over the same grid: the first FIRST_DECADES decades, where the
     # cumulative hazard of a practical model passes the underflow (and the scan stops there, as
     # nothing beyond the first crossing is used), then, only if it has not, the whole grid.
     for stop in (min(exponents.size, int(20 * FIRST_DECADES) + 1), exponents.size):
         whole = stop == exponents.size
-        t, g, crude, usable = _log_age_scan(h, lo, top, exponents[:stop], whole)
+        if full_span and not whole and stop == _FULL_SPAN_FIRST[0].size:
+            offsets, log_steps = _FULL_SPAN_FIRST
+        else:
+            offsets, log_steps = _scan_offsets(exponents[:stop], top, whole)
+        t, g, crude, usable = _log_age_scan(h, lo, offsets, log_steps)
         if whole or usable < stop or np.any(~(crude <= 2 * _H_UNDERFLOW)):
             break
     # The map's scale: where H reaches 1e-3, below which the law is nearly uniform in t.
@@ -141,16 +145,39 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     return _Reach(float(t[-1]), limit, lo, scale)
 
 
-def _log_age_scan(h, lo: float, top: float, exponents, whole: bool):
-    """h on the ages lo + 10**exponents and H by the trapezoid rule in log-age (see
-    ``_cumulative_hazard_reach``): the ages, g = (t - lo)·h(t), H and how many ages are usable."""
+def _scan_exponents(top: float) -> np.ndarray:
+    """The decades of the scan: from 1e-12 past the start (or 12 decades below ``top``) up to ``top``,
+    20 points a decade."""
+    first = min(-12.0, math.log10(top) - 12.0)
+    return np.linspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+
+
+def _scan_offsets(exponents, top: float, whole: bool):
+    """The ages past the start, 10**exponents (the last one ``top`` itself on the whole grid), and the
+    steps of their logarithms."""
     offsets = np.power(10.0, exponents)
     if whole:
         offsets[-1] = top
+    return offsets, np.diff(np.log(offsets))
+
+
+# The scan of a support that reaches MAX_AGE_SPAN past the start (every infinite one) is the same
+# grid for every model: its exponents, and the offsets and log-steps of its first stage, made once.
+_FULL_SPAN_EXPONENTS = _scan_exponents(MAX_AGE_SPAN)
+_FULL_SPAN_FIRST = _scan_offsets(_FULL_SPAN_EXPONENTS[:int(20 * FIRST_DECADES) + 1], MAX_AGE_SPAN, False)
+for _fixed in (_FULL_SPAN_EXPONENTS, *_FULL_SPAN_FIRST):
+    _fixed.setflags(write=False)
+
+
+def _log_age_scan(h, lo: float, offsets, log_steps):
+    """h on the ages lo + offsets and H by the trapezoid rule in log-age (see
+    ``_cumulative_hazard_reach``; ``log_steps`` the steps of log(offsets)): the ages,
+    g = (t - lo)·h(t), H and how many ages are usable."""
     t = lo + offsets
     with np.errstate(all="ignore"):
-        values = np.asarray(h(t), dtype=float) * np.ones_like(t)
-    log_steps = np.diff(np.log(offsets))
+        values = np.asarray(h(t), dtype=float)
+    if values.shape != t.shape:                # a hazard that does not depend on t
+        values = values * np.ones_like(t)
     with np.errstate(all="ignore"):
         g = offsets * values                   # hazard per unit of log-age
         pieces = 0.5 * (g[1:] + g[:-1]) * log_steps
