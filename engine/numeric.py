@@ -12,7 +12,6 @@ from typing import Callable
 
 import numpy as np
 
-from . import kernels
 from .errors import ModelError
 from .piece_series import PieceSeries
 
@@ -22,11 +21,31 @@ GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
 
 
+def gauss_jacobi(n: int, alpha: float):
+    """Nodes and weights of the n-point Gauss rule for the weight (1 + x)**alpha on [-1, 1], alpha > -1.
+
+    Golub & Welsch (1969, Math. Comp. 23): the nodes are the eigenvalues of the symmetric tridiagonal
+    Jacobi matrix of P_k^(0, alpha) (recurrence coefficients: Szego, Orthogonal Polynomials, 4th ed.,
+    1975, (4.5.1)), the weights the squared first components of its eigenvectors, scaled here to sum to
+    the weight's exact integral 2**(alpha + 1)/(alpha + 1). One LAPACK call (numpy.linalg.eigh).
+    """
+    k = np.arange(n) * 1.0
+    s = 2.0 * k + alpha
+    diag = alpha * alpha / (s * (s + 2.0))
+    diag[0] = alpha / (alpha + 2.0)
+    m = k[1:]
+    t = 2.0 * m + alpha
+    off = np.sqrt(4.0 * m * m * (m + alpha) * (m + alpha) / (t * t * (t + 1.0) * (t - 1.0)))
+    x, vectors = np.linalg.eigh(np.diag(diag) + np.diag(off, 1) + np.diag(off, -1))
+    w = vectors[0] ** 2
+    return x, w * (2.0 ** (alpha + 1.0) / (alpha + 1.0) / np.sum(w))
+
+
 def _jacobi_rule(alpha: float):
     """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
     [-1, 1], s = (1+x)/2). Computed for every model: the exponent comes from the model's own
     numbers, and no number is kept from one model to the next."""
-    x, w = kernels.gauss_jacobi(12, alpha)
+    x, w = gauss_jacobi(12, alpha)
     return (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha
 
 

@@ -105,37 +105,6 @@ def test_the_fitting_round_kernels_match_their_numpy_twins_and_classify_the_piec
     np.testing.assert_array_equal(e_jit[ok], expected[ok])
 
 
-@pytest.mark.parametrize("alpha", [0.013, 0.3, 1.5, 2.7, 7.25, 25.5])
-def test_the_gauss_jacobi_kernel_matches_its_numpy_twin_and_scipy(alpha):
-    # Twin: the same steps in numpy (eigenvalues from numpy's LAPACK call rather than numba's, then
-    # the same Newton steps), so 4 ulps of 1 for the nodes and 1e-15 relative for the weights.
-    # Outside reference: scipy.special.roots_jacobi(12, 0, alpha), whose own weights carry up to
-    # about 7e-14 of rounding (measured against the exact moments below): 1e-13 relative.
-    from scipy import special
-    x, w = kernels.gauss_jacobi(12, alpha)
-    x_twin, w_twin = kernels.gauss_jacobi(12, alpha, use_jit=False)
-    np.testing.assert_allclose(x, x_twin, rtol=0, atol=4 * np.finfo(float).eps)
-    np.testing.assert_allclose(w, w_twin, rtol=1e-15 * 4, atol=0)
-    x_ref, w_ref = special.roots_jacobi(12, 0.0, alpha)
-    np.testing.assert_allclose(x, x_ref, rtol=0, atol=1e-15)
-    np.testing.assert_allclose(w, w_ref, rtol=1e-13, atol=0)
-
-
-@pytest.mark.parametrize("alpha", ["3/10", "3/2", "29/4"])
-def test_the_gauss_jacobi_rule_integrates_polynomials_up_to_degree_23_exactly(alpha):
-    # integral over [-1, 1] of (1 + x)^alpha x^k, written with s = (1 + x)/2 as
-    # 2^(alpha + 1) sum_j C(k, j) 2^j (-1)^(k - j) / (alpha + j + 1), summed in exact fractions; a
-    # 12-point Gauss rule is exact to degree 23 (Szego 1975, 3.4), so only rounding is left: 1e-14.
-    from fractions import Fraction
-    from math import comb
-    a = Fraction(alpha)
-    x, w = kernels.gauss_jacobi(12, float(a))
-    for k in (0, 1, 5, 11, 17, 23):
-        exact = float(sum(Fraction(comb(k, j)) * 2**j * (-1) ** (k - j) / (a + j + 1) for j in range(k + 1))) \
-            * 2.0 ** (float(a) + 1.0)
-        assert abs(np.dot(w, x**k) - exact) <= 1e-14 * abs(exact), (k, np.dot(w, x**k), exact)
-
-
 def test_the_guide_table_kernel_matches_its_numpy_twin_and_its_definition():
     # Starts as numerical inversion makes them (cumulative sums of piece masses, some of zero mass,
     # a first start above 0 and a last one near 1), plus one start beyond 1 by rounding; bit for bit
