@@ -314,7 +314,7 @@ class DensityTarget(_FormulaTarget):
         self._map = support_map(lo, hi, density=self._raw)
         self.integral = CumulativeIntegral(
             self._raw, self._map, field="formula",
-            check=lambda t, g: self._values_ok(t, g, "density"))
+            check=lambda t, g: self._values_ok(t, g, "density"), map_of_integrand=True)
         area = self.integral.total
         if not (np.isfinite(area) and area > 0):
             raise ModelError("formula", f"the density's area on the support is {area:g}; "
@@ -385,7 +385,7 @@ class HazardTarget(_FormulaTarget):
             # R = exp(-H) and F = -expm1(-H) read H from the start of life only (upper_sums=False).
             self.H = CumulativeIntegral(h, reach.mapping(end, h), rtol=1e-14, field="formula",
                                         check=lambda t, g: self._values_ok(t, g, "hazard rate"),
-                                        upper_sums=False)
+                                        upper_sums=False, map_of_integrand=True)
             # The rough bracket can fall short for a decreasing hazard: push on
             # until R(end) is negligible (H > 40 leaves < 5e-18 of the units).
             if self.H.total >= H_NEGLIGIBLE or end >= reach.limit or end - lo > 1e300:

@@ -70,6 +70,9 @@ class SupportMap:
     #: > 0 selects the log-age map t = lo + scale*expm1(z*log_span), z = y**power, on a
     #: finite [lo, hi] that spans many decades (log_span = ln(1 + (hi - lo)/scale)).
     log_span: float = 0.0
+    #: The exponent alpha of the density this map was chosen for, density ~ (t - lo)**alpha at a finite
+    #: lower end, as ``lower_end_exponent`` measured it (None: not measured, or unclear).
+    lower_exponent: float | None = None
 
     @property
     def y_range(self) -> tuple[float, float]:
@@ -194,7 +197,11 @@ def lower_end_exponent(g: Callable, lo: float, width: float) -> float | None:
 
 def lower_end_power(g: Callable, lo: float, width: float) -> float:
     """The map power 1/(alpha + 1) for a pole g(t) ~ (t - lo)**alpha, -1 < alpha < 0."""
-    alpha = lower_end_exponent(g, lo, width)
+    return pole_power(lower_end_exponent(g, lo, width))
+
+
+def pole_power(alpha: float | None) -> float:
+    """The map power 1/(alpha + 1) for a pole of exponent alpha (-1 < alpha < 0), else 1."""
     if alpha is None or alpha <= -0.98 or alpha > -0.01:
         # Only poles get the map: for alpha >= 0 it would turn the smooth
         # corrections of the integrand into fractional powers (a Gauss-Jacobi
@@ -269,13 +276,14 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
                 centre = float(probe[k])
                 positive = probe[values > values[k] * 1e-3]
                 scale = float(max(np.ptp(positive) / 4.0, 1e-8 * max(1.0, abs(centre))))
-    power, tail = 1.0, 1.0
+    power, tail, alpha = 1.0, 1.0, None
     if density is not None and np.isfinite(lo):
         width = (hi - lo) if np.isfinite(hi) else scale
-        power = lower_end_power(density, lo, width)
+        alpha = lower_end_exponent(density, lo, width)
+        power = pole_power(alpha)
         if not np.isfinite(hi):
             tail = upper_tail_power(density, lo, scale)
-    return SupportMap(float(lo), float(hi), centre, scale, power, tail)
+    return SupportMap(float(lo), float(hi), centre, scale, power, tail, lower_exponent=alpha)
 
 
 def log_age_map(lo: float, hi: float, scale: float, density: Callable | None = None) -> SupportMap:
@@ -287,9 +295,9 @@ def log_age_map(lo: float, hi: float, scale: float, density: Callable | None = N
     """
     if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo and scale > 0):
         raise ValueError("log_age_map needs a finite interval and a positive scale")
-    power = lower_end_power(density, lo, scale) if density is not None else 1.0
+    alpha = lower_end_exponent(density, lo, scale) if density is not None else None
     span = float(np.log1p((hi - lo) / scale))
-    return SupportMap(float(lo), float(hi), 0.0, float(scale), power, 1.0, span)
+    return SupportMap(float(lo), float(hi), 0.0, float(scale), pole_power(alpha), 1.0, span, lower_exponent=alpha)
 
 
 class CumulativeIntegral:
@@ -310,7 +318,7 @@ class CumulativeIntegral:
 
     def __init__(self, integrand: Callable, mapping: SupportMap, *, rtol: float = 1e-13,
                  field: str = "formula", check: Callable | None = None,
-                 breakpoints=(), upper_sums: bool = True):
+                 breakpoints=(), upper_sums: bool = True, map_of_integrand: bool = False):
         self.integrand = integrand
         # False where only integrals from the lower end are asked for (a cumulative hazard): the
         # series then makes no cuts for the digits of the mass above t (``upper`` stays right, slower).
@@ -324,12 +332,17 @@ class CumulativeIntegral:
         if np.isfinite(mapping.lo) and mapping.power == 1.0:
             far = np.isfinite(mapping.hi) and mapping.log_span == 0.0
             width = (mapping.hi - mapping.lo) if far else mapping.scale
-            alpha = lower_end_exponent(integrand, mapping.lo, width)
+            # ``map_of_integrand``: the map was chosen for this very integrand (support_map or
+            # log_age_map with it as the density), which measured its exponent at these ages already.
+            alpha = (mapping.lower_exponent if map_of_integrand
+                     else lower_end_exponent(integrand, mapping.lo, width))
             if alpha is not None and alpha > 0 and abs(alpha - round(alpha)) > 1e-9:
                 self._jacobi = _jacobi_rule(alpha)
         inner = [float(mapping.to_y(b)) for b in breakpoints
                  if np.isfinite(b) and mapping.lo < b < mapping.hi]
-        grid = np.unique(np.concatenate([np.linspace(ylo, yhi, 65), inner]))
+        grid = np.linspace(ylo, yhi, 65)
+        if inner:
+            grid = np.unique(np.concatenate([grid, inner]))
         self.edges, self.pieces = self._partition(grid, rtol)
         self._check = None   # values were vetted during set-up; evaluation needs no checks
         self.cumulative = np.concatenate([[0.0], np.cumsum(self.pieces)])
