@@ -372,6 +372,10 @@ class CumulativeIntegral:
             if g.shape != t.shape:                 # an integrand that does not depend on t
                 g = g * np.ones_like(t)
             far = np.isinf(t)
+            if not far.any():                      # the common case: no node at an infinite end
+                if self._check is not None:
+                    self._check(t, g)
+                return g * self.mapping.dt_dy(y)
             if self._check is not None:
                 self._check(t[~far], g[~far])
             # A node that rounds onto an infinite end carries no mass (integrability).
