@@ -54,6 +54,19 @@ _PROBE_OFFSETS = np.logspace(-9, 9, 73)
 _PROBE_OFFSETS.setflags(write=False)
 
 
+def _series_edges(integral: CumulativeIntegral):
+    """The ages at the edges of an integral's series (finite, increasing), the integral below each
+    and above each: what the series holds without evaluating anything."""
+    series = integral.series()
+    ages = integral.mapping.to_t(series.edges)
+    below = np.concatenate([series.before, [integral.total]])
+    above = np.concatenate([[integral.total], series.after])
+    finite = np.isfinite(ages)
+    ages, below, above = ages[finite], below[finite], above[finite]
+    rising = np.concatenate([[True], np.diff(ages) > 0])
+    return ages[rising], below[rising], above[rising]
+
+
 def _probe_points(lo: float, hi: float) -> np.ndarray:
     """Ages spread over the support (log-spaced next to the ends) for validity probes."""
     fractions = _PROBE_FRACTIONS
@@ -340,6 +353,12 @@ class DensityTarget(_FormulaTarget):
         with np.errstate(all="ignore"):
             return self.integral.sided(t, upper) / self.area
 
+    def tabulated_cdf_sf(self):
+        """F and R at the edges of the series of the density's integral (the masses below and above
+        each edge, divided by the area)."""
+        ages, below, above = _series_edges(self.integral)
+        return ages, below / self.area, above / self.area
+
     def _dpdf_exact(self):
         """f'(t) as a vectorised function (exact, from the formula's derivative)."""
         d = self.expression.derivative().bind(**self.params)
@@ -446,6 +465,12 @@ class HazardTarget(_FormulaTarget):
         if end.size:
             out[end] = np.where(upper[end], 0.0, 1.0)
         return out
+
+    def tabulated_cdf_sf(self):
+        """F = 1 - exp(-H) and R = exp(-H) at the edges of the series of H (H below each edge)."""
+        ages, H, _ = _series_edges(self.H)
+        inside = ages <= self.support[1]
+        return ages[inside], -np.expm1(-H[inside]), np.exp(-H[inside])
 
     def _sf(self, t):
         return np.exp(-self.H(t))

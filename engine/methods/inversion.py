@@ -120,16 +120,24 @@ class NumericalInversion(Inversion):
         replaces root solving. The same scan gives a point near the median, where
         ``_delta_u`` changes from F to the survival function. F is evaluated on the
         grid only for an infinite lower end or a finite support (whose upper tail
-        is then cut by 1 - F), R only for an infinite upper end.
+        is then cut by 1 - F), R only for an infinite upper end. A model that has F and
+        R tabulated already (``Target.tabulated_cdf_sf``: a formula model at the edges of
+        its integral's series) is scanned there, without a call of the model.
         """
         t = self.target
         cut = 0.05 * self.tolerance
         lo, hi = t.support
-        grid = mapped_grid(t.mapping)
+        tabulated = t.tabulated_cdf_sf()
+        if tabulated is None:
+            grid = mapped_grid(t.mapping)
+            cdf_on_grid, sf_on_grid = (lambda: t.cdf(grid)), (lambda: t.sf(grid))
+        else:
+            grid, F_tabulated, S_tabulated = tabulated
+            cdf_on_grid, sf_on_grid = (lambda: F_tabulated), (lambda: S_tabulated)
         a, b, lost = lo, hi, 0.0
         median = None
         if not np.isfinite(lo) or np.isfinite(hi):
-            F_raw = np.asarray(t.cdf(grid), dtype=float)
+            F_raw = np.asarray(cdf_on_grid(), dtype=float)
             F = np.maximum.accumulate(np.clip(F_raw, 0.0, 1.0))
             median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
             self._scan = (grid, F)
@@ -143,7 +151,7 @@ class NumericalInversion(Inversion):
                 i = int(np.flatnonzero(1.0 - F <= cut)[0])
                 b, lost = float(grid[i]), lost + max(float(1.0 - F_raw[i]), 0.0)
         if not np.isfinite(hi):
-            S_raw = np.asarray(t.sf(grid), dtype=float)
+            S_raw = np.asarray(sf_on_grid(), dtype=float)
             S = np.minimum.accumulate(np.clip(S_raw, 0.0, 1.0))
             i = int(np.flatnonzero(S <= cut)[0]) if np.any(S <= cut) else grid.size - 1
             b, lost = float(grid[i]), lost + float(S_raw[i])
