@@ -661,6 +661,7 @@ class Formula:
         self.text = _pretty(tree) if text is None else text
         self._fn = _compile(tree)
         self._derivative: Formula | None = None
+        self._names: frozenset[str] | None = None
 
     @classmethod
     def parse(cls, text: str, params=(), field: str = "formula") -> "Formula":
@@ -711,8 +712,10 @@ class Formula:
         return _uses_t(self._tree)
 
     def names(self) -> set[str]:
-        """The declared parameters that the formula actually uses."""
-        return {n.id for n in _walk(self._tree) if isinstance(n, Name) and n.id in self.params}
+        """The declared parameters that the formula actually uses (read off the tree once)."""
+        if self._names is None:
+            self._names = frozenset(n.id for n in _walk(self._tree) if isinstance(n, Name) and n.id in self.params)
+        return set(self._names)
 
     def pretty(self) -> str:
         return _pretty(self._tree)
@@ -747,7 +750,7 @@ class Formula:
         try:
             with np.errstate(all="ignore"):
                 out = np.asarray(self._fn(env), dtype=float)
-            shape = np.broadcast_shapes(out.shape, t.shape)
+            shape = t.shape if out.shape == t.shape else np.broadcast_shapes(out.shape, t.shape)
         except ValueError as exc:                      # array parameters that do not fit t
             raise ModelError(self.field, f"cannot evaluate for these shapes: {exc}") from None
         # A bare `t` or parameter would hand back the caller's own array: copy instead.

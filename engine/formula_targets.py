@@ -42,16 +42,37 @@ def _check_params(params: Mapping[str, float]) -> dict[str, float]:
 def _on_support(t: np.ndarray, support) -> bool:
     """True for a 1-d array of ages in [lo, hi] with no NaN: where ``cdf_or_sf`` needs no masking."""
     lo, hi = support
-    return t.ndim == 1 and bool(np.all((t >= lo) & (t <= hi)))
+    # Two reductions, no temporaries (a NaN makes min or max NaN, and the test False).
+    return t.ndim == 1 and t.size > 0 and bool(t.min() >= lo) and bool(t.max() <= hi)
+
+
+# Where the validity probes go: fractions of a finite support (log-spaced next to the ends), or
+# offsets from a finite end of an infinite one. Fixed numbers, made once.
+_PROBE_FRACTIONS = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33), 1 - np.logspace(-1, -12, 23)])
+_PROBE_FRACTIONS.setflags(write=False)
+_PROBE_OFFSETS = np.logspace(-9, 9, 73)
+_PROBE_OFFSETS.setflags(write=False)
+
+
+def _series_edges(integral: CumulativeIntegral):
+    """The ages at the edges of an integral's series (finite, increasing), the integral below each
+    and above each: what the series holds without evaluating anything."""
+    series = integral.series()
+    ages = integral.mapping.to_t(series.edges)
+    below = np.concatenate([series.before, [integral.total]])
+    above = np.concatenate([[integral.total], series.after])
+    finite = np.isfinite(ages)
+    ages, below, above = ages[finite], below[finite], above[finite]
+    rising = np.concatenate([[True], np.diff(ages) > 0])
+    return ages[rising], below[rising], above[rising]
 
 
 def _probe_points(lo: float, hi: float) -> np.ndarray:
     """Ages spread over the support (log-spaced next to the ends) for validity probes."""
-    fractions = np.concatenate([np.logspace(-12, -1, 23), np.linspace(0.1, 0.9, 33),
-                                1 - np.logspace(-1, -12, 23)])
+    fractions = _PROBE_FRACTIONS
     if np.isfinite(lo) and np.isfinite(hi):
         return lo + (hi - lo) * fractions
-    offsets = np.logspace(-9, 9, 73)
+    offsets = _PROBE_OFFSETS
     if np.isfinite(lo):
         return lo + offsets
     if np.isfinite(hi):
@@ -102,14 +123,18 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     # Ages up to 1e300 past the start: far enough for any H that grows like log t
     # with a practical coefficient, near enough that dt/dy of the log-age map stays finite.
     top = min(hi - lo, MAX_AGE_SPAN)
-    first = min(-12.0, math.log10(top) - 12.0)
-    exponents = np.linspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+    full_span = top == MAX_AGE_SPAN
+    exponents = _FULL_SPAN_EXPONENTS if full_span else _scan_exponents(top)
     # The scan runs in two stages over the same grid: the first FIRST_DECADES decades, where the
     # cumulative hazard of a practical model passes the underflow (and the scan stops there, as
     # nothing beyond the first crossing is used), then, only if it has not, the whole grid.
     for stop in (min(exponents.size, int(20 * FIRST_DECADES) + 1), exponents.size):
         whole = stop == exponents.size
-        t, g, crude, usable = _log_age_scan(h, lo, top, exponents[:stop], whole)
+        if full_span and not whole and stop == _FULL_SPAN_FIRST[0].size:
+            offsets, log_steps = _FULL_SPAN_FIRST
+        else:
+            offsets, log_steps = _scan_offsets(exponents[:stop], top, whole)
+        t, g, crude, usable = _log_age_scan(h, lo, offsets, log_steps)
         if whole or usable < stop or np.any(~(crude <= 2 * _H_UNDERFLOW)):
             break
     # The map's scale: where H reaches 1e-3, below which the law is nearly uniform in t.
@@ -133,16 +158,39 @@ def _cumulative_hazard_reach(h, lo: float, hi: float) -> _Reach:
     return _Reach(float(t[-1]), limit, lo, scale)
 
 
-def _log_age_scan(h, lo: float, top: float, exponents, whole: bool):
-    """h on the ages lo + 10**exponents and H by the trapezoid rule in log-age (see
-    ``_cumulative_hazard_reach``): the ages, g = (t - lo)·h(t), H and how many ages are usable."""
+def _scan_exponents(top: float) -> np.ndarray:
+    """The decades of the scan: from 1e-12 past the start (or 12 decades below ``top``) up to ``top``,
+    20 points a decade."""
+    first = min(-12.0, math.log10(top) - 12.0)
+    return np.linspace(first, math.log10(top), int(20 * (math.log10(top) - first)) + 1)
+
+
+def _scan_offsets(exponents, top: float, whole: bool):
+    """The ages past the start, 10**exponents (the last one ``top`` itself on the whole grid), and the
+    steps of their logarithms."""
     offsets = np.power(10.0, exponents)
     if whole:
         offsets[-1] = top
+    return offsets, np.diff(np.log(offsets))
+
+
+# The scan of a support that reaches MAX_AGE_SPAN past the start (every infinite one) is the same
+# grid for every model: its exponents, and the offsets and log-steps of its first stage, made once.
+_FULL_SPAN_EXPONENTS = _scan_exponents(MAX_AGE_SPAN)
+_FULL_SPAN_FIRST = _scan_offsets(_FULL_SPAN_EXPONENTS[:int(20 * FIRST_DECADES) + 1], MAX_AGE_SPAN, False)
+for _fixed in (_FULL_SPAN_EXPONENTS, *_FULL_SPAN_FIRST):
+    _fixed.setflags(write=False)
+
+
+def _log_age_scan(h, lo: float, offsets, log_steps):
+    """h on the ages lo + offsets and H by the trapezoid rule in log-age (see
+    ``_cumulative_hazard_reach``; ``log_steps`` the steps of log(offsets)): the ages,
+    g = (t - lo)·h(t), H and how many ages are usable."""
     t = lo + offsets
     with np.errstate(all="ignore"):
-        values = np.asarray(h(t), dtype=float) * np.ones_like(t)
-    log_steps = np.diff(np.log(offsets))
+        values = np.asarray(h(t), dtype=float)
+    if values.shape != t.shape:                # a hazard that does not depend on t
+        values = values * np.ones_like(t)
     with np.errstate(all="ignore"):
         g = offsets * values                   # hazard per unit of log-age
         pieces = 0.5 * (g[1:] + g[:-1]) * log_steps
@@ -275,10 +323,11 @@ class DensityTarget(_FormulaTarget):
             raise ModelError("formula", f"the density's values are of order {peak:.3g}, too near the limits of "
                                         "double precision to compute with; multiply the formula by a constant "
                                         "that brings them near 1 (a density is normalised, so the scale is free)")
-        self._map = support_map(lo, hi, density=lambda t: self._raw(t) * np.ones_like(t))
+        # The bound formula's values have the shape of t already (Formula broadcasts a constant).
+        self._map = support_map(lo, hi, density=self._raw)
         self.integral = CumulativeIntegral(
-            lambda t: self._raw(t) * np.ones_like(t), self._map, field="formula",
-            check=lambda t, g: self._values_ok(t, g, "density"))
+            self._raw, self._map, field="formula",
+            check=lambda t, g: self._values_ok(t, g, "density"), map_of_integrand=True)
         area = self.integral.total
         if not (np.isfinite(area) and area > 0):
             raise ModelError("formula", f"the density's area on the support is {area:g}; "
@@ -303,6 +352,12 @@ class DensityTarget(_FormulaTarget):
         # at hi: F = 1, R = 0).
         with np.errstate(all="ignore"):
             return self.integral.sided(t, upper) / self.area
+
+    def tabulated_cdf_sf(self):
+        """F and R at the edges of the series of the density's integral (the masses below and above
+        each edge, divided by the area)."""
+        ages, below, above = _series_edges(self.integral)
+        return ages, below / self.area, above / self.area
 
     def _dpdf_exact(self):
         """f'(t) as a vectorised function (exact, from the formula's derivative)."""
@@ -335,7 +390,7 @@ class HazardTarget(_FormulaTarget):
                                         "(the cumulative hazard is counted from there)")
 
         def h(t):
-            return self._raw(t) * np.ones_like(t)
+            return self._raw(t)      # the shape of t (Formula broadcasts a constant)
 
         self.declared_support = (lo, hi)
         reach = _cumulative_hazard_reach(h, lo, hi)
@@ -349,7 +404,7 @@ class HazardTarget(_FormulaTarget):
             # R = exp(-H) and F = -expm1(-H) read H from the start of life only (upper_sums=False).
             self.H = CumulativeIntegral(h, reach.mapping(end, h), rtol=1e-14, field="formula",
                                         check=lambda t, g: self._values_ok(t, g, "hazard rate"),
-                                        upper_sums=False)
+                                        upper_sums=False, map_of_integrand=True)
             # The rough bracket can fall short for a decreasing hazard: push on
             # until R(end) is negligible (H > 40 leaves < 5e-18 of the units).
             if self.H.total >= H_NEGLIGIBLE or end >= reach.limit or end - lo > 1e300:
@@ -398,10 +453,24 @@ class HazardTarget(_FormulaTarget):
             return super().cdf_or_sf(t, upper)
         # One pass of H for both sides (H(lo) = 0: F = 0, R = 1 there); at the end of the support,
         # where R(t) underflows, F = 1 and R = 0 as ``cdf`` and ``sf`` give.
+        upper = np.broadcast_to(np.asarray(upper, dtype=bool), t.shape)
         with np.errstate(all="ignore"):
-            H = self.H(t)
-            out = np.where(upper, np.exp(-H), -np.expm1(-H))
-        return np.where(t >= self.support[1], np.where(upper, 0.0, 1.0), out)
+            minus_H = np.negative(self.H(t))
+            # Each point's side only: R = exp(-H) where ``upper``, F = -expm1(-H) elsewhere.
+            out = np.exp(minus_H, where=upper, out=np.empty(t.shape))
+            lower = ~upper
+            np.expm1(minus_H, where=lower, out=out)
+            np.negative(out, where=lower, out=out)
+        end = np.flatnonzero(t >= self.support[1])
+        if end.size:
+            out[end] = np.where(upper[end], 0.0, 1.0)
+        return out
+
+    def tabulated_cdf_sf(self):
+        """F = 1 - exp(-H) and R = exp(-H) at the edges of the series of H (H below each edge)."""
+        ages, H, _ = _series_edges(self.H)
+        inside = ages <= self.support[1]
+        return ages[inside], -np.expm1(-H[inside]), np.exp(-H[inside])
 
     def _sf(self, t):
         return np.exp(-self.H(t))

@@ -117,6 +117,42 @@ def pinv_eval(u, guide, u_start, table, out=None, *, use_jit=True):
     return _pinv_eval_numpy(u, guide, u_start, table, out)
 
 
+# ---- the guide table of the inverse-CDF pieces (Chen & Asau 1974) ------------------------------
+#
+# guide[i] = the last piece whose start is <= i/size (clamped into 0..m-1), for non-decreasing starts:
+# one merge of the levels i/size with the starts (size + m steps), where numpy's twin searches each level.
+
+def _guide_table_py(u_start, size, guide):
+    m = u_start.shape[0]
+    k = -1
+    for i in range(size):
+        level = i / size
+        while k + 1 < m and u_start[k + 1] <= level:
+            k += 1
+        guide[i] = min(max(k, 0), m - 1)
+    return guide
+
+
+_guide_table_jit = _jit(_guide_table_py)
+
+
+def _guide_table_numpy(u_start, size, guide):
+    levels = np.arange(size) / size
+    guide[:] = np.clip(np.searchsorted(u_start, levels, side="right") - 1, 0, u_start.shape[0] - 1)
+    return guide
+
+
+def guide_table(u_start, size, *, use_jit=True):
+    """The guide table over the non-decreasing piece starts ``u_start`` (see above), int64."""
+    u_start = np.ascontiguousarray(u_start, dtype=np.float64)
+    if u_start.ndim != 1 or u_start.size == 0 or int(size) < 1:
+        raise ValueError("guide_table: a non-empty 1-d array of starts and a positive size")
+    guide = np.empty(int(size), dtype=np.int64)
+    if use_jit and _guide_table_jit is not None:
+        return _guide_table_jit(u_start, int(size), guide)
+    return _guide_table_numpy(u_start, int(size), guide)
+
+
 def _pinv_eval_numpy(u, guide, u_start, table, out):
     g_size = guide.shape[0]
     m = min(u_start.shape[0], table.shape[0])
@@ -478,10 +514,14 @@ def _chebyshev_piece_sums_py(y, edges, table, which, base, limit, out, trusted):
     top = table.shape[2] - 1
     piece = np.empty(n, dtype=np.int64)
     place = np.empty(n)
+    k = -1
     for i in range(n):
         yi = y[i]
-        k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
-        k = min(max(k, 0), m - 1)
+        # Neighbouring points mostly share a piece: the previous point's piece is tried first
+        # (the same answer as the search: edges[k] <= yi < edges[k + 1], or the last piece's end).
+        if not (k >= 0 and edges[k] <= yi and (yi < edges[k + 1] or (k == m - 1 and yi >= edges[m]))):
+            k = np.searchsorted(edges[:m + 1], yi, side="right") - 1
+            k = min(max(k, 0), m - 1)
         a = edges[k]
         b = edges[k + 1]
         piece[i] = k
@@ -549,6 +589,8 @@ def chebyshev_piece_sums(y, edges, table, which, base, limit, *, use_jit=True):
     if np.ndim(which) == 0:
         which = np.full(y.shape, 1 if which else 0, dtype=np.int64)
         base = np.stack([base, base]) if base.ndim == 1 else base
+    elif np.asarray(which).dtype == np.bool_:
+        which = np.ascontiguousarray(np.ravel(which)).view(np.int8)   # 0 or 1 by construction, no copy
     else:
         which = (np.ravel(which) != 0).astype(np.int64)     # 0 or 1 only: the kernel indexes with it
         if which.shape != y.shape:
@@ -776,3 +818,4 @@ def inverse_piece_errors(du_test, total, test_s, status, *, use_jit=True):
     if use_jit and _inverse_piece_errors_jit is not None:
         return _inverse_piece_errors_jit(du_test, total, test_s, status, err)
     return _inverse_piece_errors_numpy(du_test, total, test_s, status, err)
+

@@ -11,7 +11,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import special
 
 from .errors import ModelError
 from .piece_series import PieceSeries
@@ -22,11 +21,31 @@ GRADED_STEPS = 8
 # Points a Gauss rule never sees (the ends) are probed separately by the models.
 
 
+def gauss_jacobi(n: int, alpha: float):
+    """Nodes and weights of the n-point Gauss rule for the weight (1 + x)**alpha on [-1, 1], alpha > -1.
+
+    Golub & Welsch (1969, Math. Comp. 23): the nodes are the eigenvalues of the symmetric tridiagonal
+    Jacobi matrix of P_k^(0, alpha) (recurrence coefficients: Szego, Orthogonal Polynomials, 4th ed.,
+    1975, (4.5.1)), the weights the squared first components of its eigenvectors, scaled here to sum to
+    the weight's exact integral 2**(alpha + 1)/(alpha + 1). One LAPACK call (numpy.linalg.eigh).
+    """
+    k = np.arange(n) * 1.0
+    s = 2.0 * k + alpha
+    diag = alpha * alpha / (s * (s + 2.0))
+    diag[0] = alpha / (alpha + 2.0)
+    m = k[1:]
+    t = 2.0 * m + alpha
+    off = np.sqrt(4.0 * m * m * (m + alpha) * (m + alpha) / (t * t * (t + 1.0) * (t - 1.0)))
+    x, vectors = np.linalg.eigh(np.diag(diag) + np.diag(off, 1) + np.diag(off, -1))
+    w = vectors[0] ** 2
+    return x, w * (2.0 ** (alpha + 1.0) / (alpha + 1.0) / np.sum(w))
+
+
 def _jacobi_rule(alpha: float):
     """Gauss-Jacobi nodes for the weight s**alpha on [0, 1] (from the (1-x)**0 (1+x)**alpha rule on
     [-1, 1], s = (1+x)/2). Computed for every model: the exponent comes from the model's own
     numbers, and no number is kept from one model to the next."""
-    x, w = special.roots_jacobi(12, 0.0, alpha)
+    x, w = gauss_jacobi(12, alpha)
     return (1.0 + x) / 2.0, w / 2.0 ** (alpha + 1.0), alpha
 
 
@@ -51,6 +70,9 @@ class SupportMap:
     #: > 0 selects the log-age map t = lo + scale*expm1(z*log_span), z = y**power, on a
     #: finite [lo, hi] that spans many decades (log_span = ln(1 + (hi - lo)/scale)).
     log_span: float = 0.0
+    #: The exponent alpha of the density this map was chosen for, density ~ (t - lo)**alpha at a finite
+    #: lower end, as ``lower_end_exponent`` measured it (None: not measured, or unclear).
+    lower_exponent: float | None = None
 
     @property
     def y_range(self) -> tuple[float, float]:
@@ -122,8 +144,12 @@ class SupportMap:
                     z = np.clip((t - self.lo) / (self.hi - self.lo), 0.0, 1.0)
                 else:
                     s = np.maximum(t - self.lo, 0.0) / c
-                    # 1 - w = 1/(1 + s); z = 1 - (1 - w)**(1/q), without cancellation
-                    z = np.where(np.isinf(s), 1.0, -np.expm1(-np.log1p(s) / self.tail_power))
+                    # 1 - w = 1/(1 + s); z = 1 - (1 - w)**(1/q), without cancellation (for q = 1 that is
+                    # s/(1 + s), two roundings as the general form has, at half its cost)
+                    if self.tail_power == 1.0:
+                        z = np.where(np.isinf(s), 1.0, s / (1.0 + s))
+                    else:
+                        z = np.where(np.isinf(s), 1.0, -np.expm1(-np.log1p(s) / self.tail_power))
                 return z ** (1.0 / self.power) if self.power != 1.0 else z
             if np.isfinite(self.hi):
                 s = np.minimum(t - self.hi, 0.0) / c
@@ -171,7 +197,11 @@ def lower_end_exponent(g: Callable, lo: float, width: float) -> float | None:
 
 def lower_end_power(g: Callable, lo: float, width: float) -> float:
     """The map power 1/(alpha + 1) for a pole g(t) ~ (t - lo)**alpha, -1 < alpha < 0."""
-    alpha = lower_end_exponent(g, lo, width)
+    return pole_power(lower_end_exponent(g, lo, width))
+
+
+def pole_power(alpha: float | None) -> float:
+    """The map power 1/(alpha + 1) for a pole of exponent alpha (-1 < alpha < 0), else 1."""
     if alpha is None or alpha <= -0.98 or alpha > -0.01:
         # Only poles get the map: for alpha >= 0 it would turn the smooth
         # corrections of the integrand into fractional powers (a Gauss-Jacobi
@@ -212,6 +242,11 @@ def divergence_reason(g: Callable, lo: float, hi: float) -> str | None:
     return None
 
 
+# The logarithmic probe grid of ``support_map`` (offsets from a finite end, or from 0 both ways).
+_SCALE_OFFSETS = np.logspace(-8, 12, 241)
+_SCALE_OFFSETS.setflags(write=False)
+
+
 def support_map(lo: float, hi: float, density: Callable | None = None) -> SupportMap:
     """Choose a map for (lo, hi); for infinite ends, probe ``density`` for its scale.
 
@@ -220,7 +255,7 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
     """
     centre, scale = 0.0, 1.0
     if not (np.isfinite(lo) and np.isfinite(hi)) and density is not None:
-        offsets = np.logspace(-8, 12, 241)
+        offsets = _SCALE_OFFSETS
         if np.isfinite(lo):
             probe, base = lo + offsets, lo
         elif np.isfinite(hi):
@@ -241,13 +276,14 @@ def support_map(lo: float, hi: float, density: Callable | None = None) -> Suppor
                 centre = float(probe[k])
                 positive = probe[values > values[k] * 1e-3]
                 scale = float(max(np.ptp(positive) / 4.0, 1e-8 * max(1.0, abs(centre))))
-    power, tail = 1.0, 1.0
+    power, tail, alpha = 1.0, 1.0, None
     if density is not None and np.isfinite(lo):
         width = (hi - lo) if np.isfinite(hi) else scale
-        power = lower_end_power(density, lo, width)
+        alpha = lower_end_exponent(density, lo, width)
+        power = pole_power(alpha)
         if not np.isfinite(hi):
             tail = upper_tail_power(density, lo, scale)
-    return SupportMap(float(lo), float(hi), centre, scale, power, tail)
+    return SupportMap(float(lo), float(hi), centre, scale, power, tail, lower_exponent=alpha)
 
 
 def log_age_map(lo: float, hi: float, scale: float, density: Callable | None = None) -> SupportMap:
@@ -259,9 +295,9 @@ def log_age_map(lo: float, hi: float, scale: float, density: Callable | None = N
     """
     if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo and scale > 0):
         raise ValueError("log_age_map needs a finite interval and a positive scale")
-    power = lower_end_power(density, lo, scale) if density is not None else 1.0
+    alpha = lower_end_exponent(density, lo, scale) if density is not None else None
     span = float(np.log1p((hi - lo) / scale))
-    return SupportMap(float(lo), float(hi), 0.0, float(scale), power, 1.0, span)
+    return SupportMap(float(lo), float(hi), 0.0, float(scale), pole_power(alpha), 1.0, span, lower_exponent=alpha)
 
 
 class CumulativeIntegral:
@@ -282,7 +318,7 @@ class CumulativeIntegral:
 
     def __init__(self, integrand: Callable, mapping: SupportMap, *, rtol: float = 1e-13,
                  field: str = "formula", check: Callable | None = None,
-                 breakpoints=(), upper_sums: bool = True):
+                 breakpoints=(), upper_sums: bool = True, map_of_integrand: bool = False):
         self.integrand = integrand
         # False where only integrals from the lower end are asked for (a cumulative hazard): the
         # series then makes no cuts for the digits of the mass above t (``upper`` stays right, slower).
@@ -296,12 +332,17 @@ class CumulativeIntegral:
         if np.isfinite(mapping.lo) and mapping.power == 1.0:
             far = np.isfinite(mapping.hi) and mapping.log_span == 0.0
             width = (mapping.hi - mapping.lo) if far else mapping.scale
-            alpha = lower_end_exponent(integrand, mapping.lo, width)
+            # ``map_of_integrand``: the map was chosen for this very integrand (support_map or
+            # log_age_map with it as the density), which measured its exponent at these ages already.
+            alpha = (mapping.lower_exponent if map_of_integrand
+                     else lower_end_exponent(integrand, mapping.lo, width))
             if alpha is not None and alpha > 0 and abs(alpha - round(alpha)) > 1e-9:
                 self._jacobi = _jacobi_rule(alpha)
         inner = [float(mapping.to_y(b)) for b in breakpoints
                  if np.isfinite(b) and mapping.lo < b < mapping.hi]
-        grid = np.unique(np.concatenate([np.linspace(ylo, yhi, 65), inner]))
+        grid = np.linspace(ylo, yhi, 65)
+        if inner:
+            grid = np.unique(np.concatenate([grid, inner]))
         self.edges, self.pieces = self._partition(grid, rtol)
         self._check = None   # values were vetted during set-up; evaluation needs no checks
         self.cumulative = np.concatenate([[0.0], np.cumsum(self.pieces)])
@@ -320,53 +361,80 @@ class CumulativeIntegral:
             with np.errstate(all="ignore"):
                 series = PieceSeries.build(self.edges, self.pieces, self.cumulative[:-1], self._after,
                                            self._g_of_y, self._rule, first_end=np.isfinite(self.mapping.lo),
-                                           upper_sums=self.upper_sums)
+                                           upper_sums=self.upper_sums, nodes_and_quadrature=self._nodes_and_rule)
             self._series = series
         return self._series
 
     def _g_of_y(self, y):
         t = self.mapping.to_t(y)
         with np.errstate(all="ignore"):
-            g = np.asarray(self.integrand(t), dtype=float) * np.ones_like(t)
+            g = np.asarray(self.integrand(t), dtype=float)
+            if g.shape != t.shape:                 # an integrand that does not depend on t
+                g = g * np.ones_like(t)
             far = np.isinf(t)
+            if not far.any():                      # the common case: no node at an infinite end
+                if self._check is not None:
+                    self._check(t, g)
+                return g * self.mapping.dt_dy(y)
             if self._check is not None:
                 self._check(t[~far], g[~far])
             # A node that rounds onto an infinite end carries no mass (integrability).
             return np.where(far, 0.0, g * self.mapping.dt_dy(y))
 
-    def _rule(self, a, b):
+    def _rule(self, a, b, extra=None):
         """Integrals over each [a_i, b_i]: 10-point Gauss-Legendre, or Gauss-Jacobi
-        with weight (y - ylo)**alpha on a piece that starts at a fractional-power zero."""
+        with weight (y - ylo)**alpha on a piece that starts at a fractional-power zero. The integrand
+        at the ages ``extra`` (any shape), if given, comes from the same pass and is returned too."""
         a = np.asarray(a, dtype=float)
         b = np.asarray(b, dtype=float)
         half = 0.5 * (b - a)
         mid = 0.5 * (b + a)
         y = mid[:, None] + half[:, None] * _GL_NODES[None, :]
         first = a <= self._ylo if self._jacobi is not None else None
-        if first is None or not np.any(first):
-            return half * (self._g_of_y(y) @ _GL_WEIGHTS)
-        # The Gauss-Jacobi nodes of the pieces at the lower end go through the integrand in the
-        # same pass as the Gauss-Legendre nodes of all pieces.
-        nodes, weights, alpha = self._jacobi
-        width = b[first] - self._ylo
-        ys = self._ylo + width[:, None] * nodes[None, :]
-        values = self._g_of_y(np.concatenate([y.ravel(), ys.ravel()]))
+        jacobi = first is not None and bool(np.any(first))
+        # The Gauss-Jacobi nodes of the pieces at the lower end (and any extra ages) go through the
+        # integrand in the same pass as the Gauss-Legendre nodes of all pieces.
+        parts = [y.ravel()]
+        if jacobi:
+            nodes, weights, alpha = self._jacobi
+            width = b[first] - self._ylo
+            ys = self._ylo + width[:, None] * nodes[None, :]
+            parts.append(ys.ravel())
+        if extra is not None:
+            parts.append(np.ravel(extra))
+        values = self._g_of_y(np.concatenate(parts) if len(parts) > 1 else parts[0])
         out = half * (values[:y.size].reshape(y.shape) @ _GL_WEIGHTS)
-        phi = values[y.size:].reshape(ys.shape) / (ys - self._ylo) ** alpha
-        out[first] = width ** (alpha + 1.0) * (phi @ weights)
-        return out
+        if jacobi:
+            phi = values[y.size:y.size + ys.size].reshape(ys.shape) / (ys - self._ylo) ** alpha
+            out[first] = width ** (alpha + 1.0) * (phi @ weights)
+        if extra is None:
+            return out
+        return out, values[values.size - np.size(extra):].reshape(np.shape(extra))
+
+    def _nodes_and_rule(self, a, b):
+        """The integrand at the series' nodes of each piece [a_i, b_i] and the pieces' integrals
+        (``_rule``), in one pass over the integrand."""
+        out, values = self._rule(a, b, PieceSeries.nodes(a, b))
+        return values, out
 
     def _partition(self, grid, rtol):
         done_a, done_b, done_val = [], [], []
         a, b = grid[:-1], grid[1:]
-        whole = self._rule(a, b)
-        scale_hint = float(np.sum(np.abs(whole)))
+        # A piece's integral on the whole piece is known from the round before (its half then) or not
+        # yet (NaN: the first round's pieces and the parts of a graded split): those are integrated in
+        # the same pass as both halves of every piece, one pass over the integrand per round.
+        whole = np.full(a.size, np.nan)
+        scale_hint = 0.0
         rounds = 0
         while a.size:
             rounds += 1
             m = 0.5 * (a + b)
-            # Both halves of every piece in one pass over the integrand.
-            left, right = np.split(self._rule(np.concatenate([a, m]), np.concatenate([m, b])), 2)
+            unknown = np.flatnonzero(np.isnan(whole))
+            values = self._rule(np.concatenate([a, m, a[unknown]]), np.concatenate([m, b, b[unknown]]))
+            left, right = values[:a.size], values[a.size:2 * a.size]
+            whole[unknown] = values[2 * a.size:]
+            if rounds == 1:
+                scale_hint = float(np.sum(np.abs(whole)))
             halves = left + right
             if not np.all(np.isfinite(halves)):
                 raise ModelError(self.field, "the integral is not finite (a non-integrable "
@@ -395,7 +463,7 @@ class CumulativeIntegral:
                     starts, ends = np.concatenate([[a_new[i]], cuts]), np.concatenate([cuts, [b_new[i]]])
                     a_new = np.concatenate([np.delete(a_new, i), starts])
                     b_new = np.concatenate([np.delete(b_new, i), ends])
-                    whole = np.concatenate([np.delete(whole, i), self._rule(starts, ends)])
+                    whole = np.concatenate([np.delete(whole, i), np.full(starts.size, np.nan)])
             a, b = a_new, b_new
             pieces = sum(x.size for x in done_a) + a.size
             if pieces > self.max_pieces or rounds > 2000:
@@ -422,11 +490,12 @@ class CumulativeIntegral:
         if trusted.all():
             return value
         # Points at or beyond the ends are answered by the callers (0 or the total).
-        rest = np.flatnonzero(~trusted & (y > self.edges[0]) & (y < self.edges[-1]))
+        rest = np.flatnonzero(~trusted)
+        rest = rest[(y[rest] > self.edges[0]) & (y[rest] < self.edges[-1])]
         if rest.size:
             yr = y[rest]
             kr = np.minimum(np.maximum(np.searchsorted(self.edges, yr, side="right") - 1, 0), self.pieces.size - 1)
-            up = np.broadcast_to(upper, y.shape)[rest]
+            up = upper[rest] if np.ndim(upper) else np.full(rest.size, bool(upper))
             # Above y in the first piece of a fractional power at the start: the piece's mass less the
             # part below y, which the Gauss-Jacobi rule integrates (a Gauss-Legendre rule from y up
             # would miss the power's digits, about 1e-11 of the piece).
@@ -444,8 +513,8 @@ class CumulativeIntegral:
         t = np.asarray(t, dtype=float)
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper=False)
-        value = np.where(y >= self.edges[-1], self.total, value)
-        value = np.where(y <= self.edges[0], 0.0, value)
+        value[y >= self.edges[-1]] = self.total
+        value[y <= self.edges[0]] = 0.0
         return value.reshape(t.shape)
 
     def upper(self, t):
@@ -453,8 +522,8 @@ class CumulativeIntegral:
         t = np.asarray(t, dtype=float)
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper=True)
-        value = np.where(y >= self.edges[-1], 0.0, value)
-        value = np.where(y <= self.edges[0], self.total, value)
+        value[y >= self.edges[-1]] = 0.0
+        value[y <= self.edges[0]] = self.total
         return value.reshape(t.shape)
 
     def sided(self, t, upper):
@@ -465,8 +534,11 @@ class CumulativeIntegral:
         upper = (upper if upper.shape == t.shape else np.broadcast_to(upper, t.shape)).ravel()
         y = self.mapping.to_y(t).ravel()
         value = self._piece_sums(y, upper)
-        value = np.where(y >= self.edges[-1], np.where(upper, 0.0, self.total), value)
-        value = np.where(y <= self.edges[0], np.where(upper, self.total, 0.0), value)
+        # At or beyond the ends: 0 or the total, on each point's side (only those few points are touched).
+        ends = np.flatnonzero((y >= self.edges[-1]) | (y <= self.edges[0]))
+        if ends.size:
+            top, side = y[ends] >= self.edges[-1], upper[ends]
+            value[ends] = np.where(top, np.where(side, 0.0, self.total), np.where(side, self.total, 0.0))
         return value.reshape(t.shape)
 
 
@@ -538,15 +610,19 @@ def bracket_grid(cdf, mapping: SupportMap):
     return t_grid, c_grid
 
 
+# Fractions of the mapped coordinate's range for ``mapped_grid``: dense near the ends of the y-range,
+# where infinite supports are compressed.
+_GRID_STEPS = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 120),
+                              1 - 2.0 ** -np.arange(7, 61)])
+_GRID_STEPS.setflags(write=False)
+
+
 def mapped_grid(mapping: SupportMap) -> np.ndarray:
     """Ages at equal steps of the mapped coordinate, geometrically denser towards its ends (down to
     2^-60 of its range), with the finite ends of the support themselves."""
     ylo, yhi = mapping.y_range
     span = yhi - ylo
-    # Dense near the ends of the y-range, where infinite supports are compressed.
-    steps = np.concatenate([2.0 ** -np.arange(60, 6, -1), np.linspace(2.0**-6, 1 - 2.0**-6, 120),
-                            1 - 2.0 ** -np.arange(7, 61)])
-    t_grid = np.unique(mapping.to_t(ylo + span * steps))
+    t_grid = np.unique(mapping.to_t(ylo + span * _GRID_STEPS))
     t_grid = t_grid[np.isfinite(t_grid)]
     lo, hi = mapping.lo, mapping.hi
     if np.isfinite(lo):

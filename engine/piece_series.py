@@ -41,24 +41,30 @@ class PieceSeries:
     """
 
     def __init__(self, edges, values, reference, before, after):
-        half = 0.5 * np.diff(edges)
+        edges = np.asarray(edges, dtype=float)
+        half = 0.5 * (edges[1:] - edges[:-1])
         coef = values @ _TO_COEF
-        lower = (coef @ _LOWER) * half[:, None]
-        upper = (coef @ _UPPER) * half[:, None]
-        size = np.sum(np.abs(lower), axis=1)
+        # pieces x 2 x (NODES + 1): the integrals from the start (lower) and to the end (upper) of each
+        # piece, written straight into the table the kernel reads.
+        table = np.empty((coef.shape[0], 2, NODES + 1))
+        np.matmul(coef, _LOWER, out=table[:, 0])
+        np.matmul(coef, _UPPER, out=table[:, 1])
+        table *= half[:, None, None]
+        lower = table[:, 0]
+        size = np.abs(lower).sum(axis=1)
         # Resolved: the last three coefficients of the integral at rounding level (ATAP ch. 8, a
-        # chebfun-style test), and the series' whole-piece integral equal to the quadrature's.
-        tail = np.sum(np.abs(lower[:, -3:]), axis=1)
-        whole = np.sum(lower, axis=1)                              # the series at x = 1
+        # chebfun-style test), and the series' whole-piece integral equal to the quadrature's. A value
+        # that is not finite makes its piece's ``size`` not finite (inf, or NaN from inf * 0).
+        tail = np.abs(lower[:, -3:]).sum(axis=1)
+        whole = lower.sum(axis=1)                                  # the series at x = 1
         scale = np.abs(reference)
         with np.errstate(invalid="ignore"):
-            resolved = ((tail <= 1e-15 * scale) & (np.abs(whole - reference) <= 1e-14 * scale)
-                        & np.all(np.isfinite(coef), axis=1))
-        self.edges = np.asarray(edges, dtype=float)
+            resolved = (tail <= 1e-15 * scale) & (np.abs(whole - reference) <= 1e-14 * scale) & np.isfinite(size)
+        self.edges = edges
         self.resolved = resolved
-        self.before, self.after = np.asarray(before, dtype=float), np.asarray(after, dtype=float)
-        self.masses = np.stack([self.before, self.after])          # 2 x pieces: below and above each
-        self.table = np.ascontiguousarray(np.stack([lower, upper], axis=1))   # pieces x 2 x (NODES + 1)
+        self.masses = np.array([before, after], dtype=float)       # 2 x pieces: below and above each
+        self.before, self.after = self.masses[0], self.masses[1]
+        self.table = table
         # What the series may be off by: its truncation plus the rounding of a sum of such terms;
         # a value is trusted where that is at most RELATIVE of it (never on an unresolved piece).
         self.error = tail + 4e-16 * size
@@ -66,7 +72,7 @@ class PieceSeries:
 
     @classmethod
     def build(cls, edges, pieces, before, after, integrand, quadrature, *, first_end: bool,
-              upper_sums: bool = True) -> "PieceSeries":
+              upper_sums: bool = True, nodes_and_quadrature=None) -> "PieceSeries":
         """The series on a partition with the pieces' masses ``pieces`` (and the masses ``before``
         and ``after`` each); ``integrand(y)`` evaluates the integrand, ``quadrature(a, b)`` integrates
         it over pieces. One refinement follows (``refine``): a piece whose series is not resolved is
@@ -75,7 +81,8 @@ class PieceSeries:
         their digits; so is the first piece where ``first_end`` (a finite lower end may hold a pole or
         a fractional power). A geometric cut goes only as deep as that piece needs (``depth``); no cut
         towards an end where ``upper_sums`` is False (only masses below a point will be asked for). Only
-        the new parts are evaluated and integrated."""
+        the new parts are evaluated and integrated (in one pass where ``nodes_and_quadrature(a, b)`` gives
+        both the integrand at the nodes of the pieces and their integrals)."""
         reference = pieces
         values = integrand(cls.nodes(edges[:-1], edges[1:]))
         series = cls(edges, values, reference, before, after)
@@ -94,10 +101,14 @@ class PieceSeries:
         edges, parent, new = refine(edges, mode, steps)
         kept = np.empty((parent.size, NODES))
         kept[~new] = values[parent[~new]]
-        kept[new] = integrand(cls.nodes(edges[:-1][new], edges[1:][new]))
         fresh = np.empty(parent.size)
         fresh[~new] = reference[parent[~new]]
-        fresh[new] = quadrature(edges[:-1][new], edges[1:][new])
+        a_new, b_new = edges[:-1][new], edges[1:][new]
+        if nodes_and_quadrature is not None:
+            kept[new], fresh[new] = nodes_and_quadrature(a_new, b_new)
+        else:
+            kept[new] = integrand(cls.nodes(a_new, b_new))
+            fresh[new] = quadrature(a_new, b_new)
         # Masses before and after each part: its whole piece's, plus its siblings' (summed within
         # the piece, so that a tail piece keeps its digits).
         mass_before, mass_after = series.before[parent], series.after[parent]
@@ -131,8 +142,8 @@ class PieceSeries:
         and where the series can be trusted for it (False: the caller's quadrature must supply that
         point). y inside [edges[0], edges[-1]]."""
         if np.ndim(upper) == 0:
-            return kernels.chebyshev_piece_sums(y, self.edges, self.table, 1 if upper else 0,
-                                                self.after if upper else self.before, self.limit)
+            # One side for all points: a flag per point all alike (no copies of the masses).
+            upper = (np.ones if upper else np.zeros)(np.size(y), dtype=bool)
         return kernels.chebyshev_piece_sums(y, self.edges, self.table, upper, self.masses, self.limit)
 
 
@@ -160,27 +171,23 @@ def refine(edges, mode, steps=None):
     a, b = edges[:-1], edges[1:]
     if steps is None:
         steps = np.full(mode.shape, GEOMETRIC_STEPS)
-    fractions = [_QUARTERS[:1]] * a.size
-    levels = [_QUARTERS[:1]] * a.size
-    for i in np.flatnonzero(mode != KEEP).tolist():
-        k, j = int(mode[i]), int(steps[i])
-        if k == QUARTERS:
-            fractions[i] = levels[i] = _QUARTERS
-        else:
-            # Parts start at 0, then 2^-j ... 2^-1 (towards the start) or 1 - 2^-1 ... 1 - 2^-j (end);
-            # ``levels`` keeps the exponents of the end's cut, written b - w 2^-i below.
-            powers = np.arange(j, 0, -1) if k == TOWARDS_START else np.arange(1, j + 1)
-            halves = 2.0 ** -powers
-            fractions[i] = np.concatenate([[0.0], halves if k == TOWARDS_START else 1.0 - halves])
-            levels[i] = np.concatenate([[0.0], powers])
-    counts = np.array([f.size for f in fractions])
+    # Parts per piece: 1 kept, 4 quarters, or 1 + steps for a geometric cut. Each part is written
+    # by its place j in its piece: the quarters start at j/4; a cut towards the start starts at 0, then
+    # 2^-steps ... 2^-1 (j = 1 .. steps); a cut towards the end at 0, then 1 - 2^-1 ... 1 - 2^-steps,
+    # computed as b - w 2^-j next to b (a + w (1 - 2^-j) rounds the small steps away there).
+    counts = np.where(mode == KEEP, 1, np.where(mode == QUARTERS, 4, 1 + steps)).astype(np.int64)
     parent = np.repeat(np.arange(a.size), counts)
-    starts = a[parent] + (b - a)[parent] * np.concatenate(fractions)
-    if np.any(mode == TOWARDS_END):
-        # b - w * 2^-j directly: a + w * (1 - 2^-j) rounds the small steps away next to b.
-        end = np.flatnonzero(mode[parent] == TOWARDS_END)
-        j = np.concatenate(levels)[end]
-        starts[end] = np.where(j == 0, a[parent[end]], b[parent[end]] - (b - a)[parent[end]] * 2.0 ** -j)
+    j = np.arange(parent.size) - np.repeat(np.cumsum(counts) - counts, counts)
+    kind = mode[parent]
+    deep = steps[parent]
+    width = (b - a)[parent]
+    start = a[parent]
+    with np.errstate(over="ignore"):
+        fraction = np.where(kind == QUARTERS, 0.25 * j,
+                            np.where(kind == TOWARDS_START, np.where(j > 0, 2.0 ** (j - 1 - deep), 0.0), 0.0))
+    starts = start + width * fraction
+    towards_end = (kind == TOWARDS_END) & (j > 0)
+    starts[towards_end] = b[parent[towards_end]] - width[towards_end] * 2.0 ** -j[towards_end]
     keep = np.concatenate([[True], np.diff(starts) > 0])     # parts that rounded together are dropped
     starts, parent = starts[keep], parent[keep]
     return np.concatenate([starts, edges[-1:]]), parent, (mode != KEEP)[parent]

@@ -78,7 +78,10 @@ def fit(target: Target, method: str = "auto", tolerance: float = 1e-10, **option
     if name not in METHODS:
         raise ModelError("method", f"unknown method {method!r}; known: {', '.join(method_names())}")
     cls = METHODS[name]
-    accepted = [k for k in inspect.signature(cls.__init__).parameters if k not in ("self", "target", "tolerance")]
+    # The constructor's signature is read only when there are options to check (it costs more than
+    # a whole small set-up's share of numpy calls).
+    accepted = [k for k in inspect.signature(cls.__init__).parameters
+                if k not in ("self", "target", "tolerance")] if options else []
     for key in options:
         if key not in accepted:
             raise ModelError(str(key), f"not an option of the {name} method "

@@ -144,6 +144,11 @@ class Target:
             out[upper] = self.sf(t[upper])
         return out
 
+    def tabulated_cdf_sf(self):
+        """(ages, F, R) at ages where the model has F and R already, without evaluating anything (a
+        set-up's scan of the support reads them there), or None. Increasing, finite ages in the support."""
+        return None
+
     def hazard(self, t):
         """h(t) = f(t)/R(t), the instantaneous failure rate."""
         return self._masked(t, self._hazard, 0.0, np.nan)

@@ -103,3 +103,44 @@ def test_the_fitting_round_kernels_match_their_numpy_twins_and_classify_the_piec
     ok[5] = False
     expected = np.max(np.abs(du_test - total[:, None] * TEST_S[None, :]), axis=1)
     np.testing.assert_array_equal(e_jit[ok], expected[ok])
+
+
+def test_the_guide_table_kernel_matches_its_numpy_twin_and_its_definition():
+    # Starts as numerical inversion makes them (cumulative sums of piece masses, some of zero mass,
+    # a first start above 0 and a last one near 1), plus one start beyond 1 by rounding; bit for bit
+    # against the twin (numpy's searchsorted) and, for every cell, against the definition read
+    # directly: the last piece whose start is <= i/size, clamped into the pieces.
+    rng = np.random.default_rng(8)
+    for m in (1, 2, 7, 250):
+        du = rng.exponential(size=m)
+        du[rng.random(m) < 0.2] = 0.0
+        u_start = 1e-12 + np.concatenate([[0.0], np.cumsum(du)[:-1]]) / max(du.sum(), 1.0)
+        if m > 2:
+            u_start[-1] = 1.0 + 1e-16
+        size = 32 * m
+        jit = kernels.guide_table(u_start, size)
+        np.testing.assert_array_equal(jit, kernels.guide_table(u_start, size, use_jit=False))
+        for i in range(size):
+            at_or_below = np.flatnonzero(u_start <= i / size)
+            expected = min(max(at_or_below[-1] if at_or_below.size else 0, 0), m - 1)
+            assert jit[i] == expected
+
+
+def test_the_series_kernel_finds_each_point_s_piece_when_neighbours_share_pieces():
+    # The compiled loop tries the previous point's piece first; points in increasing runs (as the
+    # inversion asks for them), on the edges themselves, on a zero-width piece, and outside the
+    # partition on both sides must still land where numpy's search puts them (the twin), bit for bit.
+    rng = np.random.default_rng(9)
+    m = 30
+    edges = np.sort(rng.uniform(0, 1, m + 1))
+    edges[11] = edges[10]                                  # a piece of zero width
+    table = rng.normal(size=(m, 2, 25))
+    base = rng.uniform(0, 1, m)
+    limit = rng.uniform(0, 1, m)
+    runs = np.sort(rng.uniform(-0.05, 1.05, (200, 17)), axis=1).ravel()
+    y = np.concatenate([runs, edges, edges[::-1], np.repeat(edges[-1], 3), [edges[0] - 1.0, np.nan]])
+    for which in (0, 1):
+        jit = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit)
+        twin = kernels.chebyshev_piece_sums(y, edges, table, which, base, limit, use_jit=False)
+        np.testing.assert_array_equal(jit[0], twin[0])
+        np.testing.assert_array_equal(jit[1], twin[1])

@@ -27,6 +27,9 @@ INITIAL_STEPS = 32           # first partition: equal steps of the target's mapp
 BULK_STEPS = 32              # ... and near the quantiles k/BULK_STEPS, and 2^-k, 1 - 2^-k (k = 6, 7.5, ... 33) in the tails
 QUANTILE_LEVELS = np.concatenate([np.arange(1, BULK_STEPS) / BULK_STEPS, 2.0 ** -np.arange(6.0, 34.0, 1.5),
                                   1.0 - 2.0 ** -np.arange(6.0, 34.0, 1.5)])
+#: Geometric steps towards a finite start of life, as fractions of the first step of the mapped grid.
+START_STEPS = np.logspace(-12, 0, 13)
+START_STEPS.setflags(write=False)
 #: Interpolation nodes of a piece in its own u-coordinate s: Chebyshev-Lobatto points on [0, 1].
 NODES_S = 0.5 * (1.0 - np.cos(np.pi * np.arange(ORDER + 1) / ORDER))
 #: u-error test points: three between each pair of neighbouring nodes (1/4, 1/2, 3/4 of the gap),
@@ -100,12 +103,14 @@ class NumericalInversion(Inversion):
         or R(x_0) in the ``upper`` rows (x_0 at or beyond the model's median, found by ``_domain``),
         where the survival function keeps the digits that F runs out of. All rows in one call of the
         model (``Target.cdf_or_sf``); a base already known is passed in and x then omits x_0."""
-        values = np.asarray(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
-                            dtype=float).reshape(x.shape)
+        values = np.array(self.target.cdf_or_sf(x.ravel(), np.repeat(upper, x.shape[1])),
+                          dtype=float).reshape(x.shape)
         if base is None:
             base = values[:, 0].copy()
-        sign = np.where(upper, -1.0, 1.0)
-        return sign[:, None] * (values - base[:, None]), base
+        # In place: the differences, negated on the upper rows (R falls where F rises).
+        values -= base[:, None]
+        np.negative(values, out=values, where=upper[:, None])
+        return values, base
 
     def _domain(self) -> tuple[float, float, float]:
         """Computational domain: tails beyond mass ``cut`` are cut (DHL 2010, sec. 4).
@@ -115,16 +120,24 @@ class NumericalInversion(Inversion):
         replaces root solving. The same scan gives a point near the median, where
         ``_delta_u`` changes from F to the survival function. F is evaluated on the
         grid only for an infinite lower end or a finite support (whose upper tail
-        is then cut by 1 - F), R only for an infinite upper end.
+        is then cut by 1 - F), R only for an infinite upper end. A model that has F and
+        R tabulated already (``Target.tabulated_cdf_sf``: a formula model at the edges of
+        its integral's series) is scanned there, without a call of the model.
         """
         t = self.target
         cut = 0.05 * self.tolerance
         lo, hi = t.support
-        grid = mapped_grid(t.mapping)
+        tabulated = t.tabulated_cdf_sf()
+        if tabulated is None:
+            grid = mapped_grid(t.mapping)
+            cdf_on_grid, sf_on_grid = (lambda: t.cdf(grid)), (lambda: t.sf(grid))
+        else:
+            grid, F_tabulated, S_tabulated = tabulated
+            cdf_on_grid, sf_on_grid = (lambda: F_tabulated), (lambda: S_tabulated)
         a, b, lost = lo, hi, 0.0
         median = None
         if not np.isfinite(lo) or np.isfinite(hi):
-            F_raw = np.asarray(t.cdf(grid), dtype=float)
+            F_raw = np.asarray(cdf_on_grid(), dtype=float)
             F = np.maximum.accumulate(np.clip(F_raw, 0.0, 1.0))
             median = float(grid[min(int(np.searchsorted(F, 0.5)), grid.size - 1)])
             self._scan = (grid, F)
@@ -138,7 +151,7 @@ class NumericalInversion(Inversion):
                 i = int(np.flatnonzero(1.0 - F <= cut)[0])
                 b, lost = float(grid[i]), lost + max(float(1.0 - F_raw[i]), 0.0)
         if not np.isfinite(hi):
-            S_raw = np.asarray(t.sf(grid), dtype=float)
+            S_raw = np.asarray(sf_on_grid(), dtype=float)
             S = np.minimum.accumulate(np.clip(S_raw, 0.0, 1.0))
             i = int(np.flatnonzero(S <= cut)[0]) if np.any(S <= cut) else grid.size - 1
             b, lost = float(grid[i]), lost + float(S_raw[i])
@@ -168,7 +181,7 @@ class NumericalInversion(Inversion):
             # Geometric steps towards a finite start of life: a pole there, or a density that
             # starts like a power of the age, leaves F^-1 far from polynomial next to it.
             first = grid[grid > a][0] if np.any(grid > a) else b
-            steps = a + (first - a) * np.logspace(-12, 0, 13)
+            steps = a + (first - a) * START_STEPS
             # Below the last step where the scan finds next to no mass (F <= 1e-14 at the grid age
             # above it) one piece does (linear, its u-error at most its mass): the steps under it
             # would only cost evaluations next to the start.
@@ -189,7 +202,16 @@ class NumericalInversion(Inversion):
         F_at = np.where(upper, 1.0 - base, base)
         total = du[:, -1].copy()
         coef, x_test, status = kernels.inverse_pieces(x0, w, du, NODES_S, TEST_S, 0.5 * self.tolerance)
-        du_test, _ = self._delta_u(upper, x_test, base)
+        # Only a fitted polynomial's test points are read: a linear piece's u-error is its mass (the
+        # bound that made it linear), a failed fit's is infinite. So the model is called for those only
+        # (a linear piece next to the start of life would ask for F at ages where its series is not trusted).
+        fitted = status == kernels.FITTED
+        if fitted.all():
+            du_test, _ = self._delta_u(upper, x_test, base)
+        else:
+            du_test = np.zeros(x_test.shape)
+            if fitted.any():
+                du_test[fitted], _ = self._delta_u(upper[fitted], x_test[fitted], base[fitted])
         err = kernels.inverse_piece_errors(du_test, total, TEST_S, status)
         return coef, total, F_at, err
 
@@ -250,10 +272,8 @@ class NumericalInversion(Inversion):
         # about one time in 32, which keeps the search branch predictable; the table
         # (4 bytes a cell when drawing) still fits the core's fast caches. Measured against
         # 8, 16 and 64 cells per piece on the bench targets: 32 was the quickest.
-        size = 32 * m
-        levels = np.arange(size) / size
-        # guide[i] = first piece whose start is <= i/size < its end.
-        self.guide = np.clip(np.searchsorted(self.u_start, levels, side="right") - 1, 0, m - 1).astype(np.int64)
+        # guide[i] = first piece whose start is <= i/size < its end (a compiled merge, kernels.guide_table).
+        self.guide = kernels.guide_table(self.u_start, 32 * m)
         self._derive()
 
     def _derive(self):
