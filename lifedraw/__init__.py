@@ -9,15 +9,40 @@ The public API lives here::
 
 Layers point down only: ``lifedraw.engine`` (models, methods, checks; plain numpy/scipy)
 <- ``lifedraw.dashboard`` (the browser page and report) <- ``lifedraw.cli`` (the command).
-"""
-from importlib.metadata import PackageNotFoundError, version as _version
 
-from .engine import *  # noqa: F401,F403  (the engine's public API is the package's)
-from .engine import __all__ as _engine_all
+The engine's names are loaded on first use (PEP 562 module ``__getattr__``), so the command line and the
+report's picture process import only what they need: ``import lifedraw`` alone costs no scipy or numba.
+"""
+from importlib import import_module
+from importlib.metadata import PackageNotFoundError, version as _version
 
 try:
     __version__ = _version("lifedraw")
 except PackageNotFoundError:  # running from a source tree that was never installed
     __version__ = "0+unknown"
 
-__all__ = [*_engine_all, "__version__"]
+#: The engine's public API (``lifedraw.engine.__all__``), re-exported here; kept in step by tests/test_lazy_imports.py.
+ENGINE_NAMES = ("Target", "family", "density_formula", "hazard_formula", "cdf_formula", "binned_counts",
+                "failure_times", "mixture", "competing", "from_spec",
+                "fit", "load", "check", "life_summary", "exact_life_figures", "format_life_figures", "fit_family",
+                "applicable_methods", "generate", "series", "parallel", "k_out_of_n", "standby",
+                "renewal_function", "renewal_density", "simulate_fleet", "age_replacement", "warranty_claims",
+                "ModelError", "MethodNotApplicable")
+SUBPACKAGES = ("engine", "dashboard", "cli", "scenarios")
+
+__all__ = [*ENGINE_NAMES, "__version__"]
+
+
+def __getattr__(name):
+    if name in ENGINE_NAMES:
+        value = getattr(import_module(".engine", __name__), name)
+    elif name in SUBPACKAGES:
+        value = import_module(f".{name}", __name__)
+    else:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    globals()[name] = value     # looked up once
+    return value
+
+
+def __dir__():
+    return sorted({*globals(), *ENGINE_NAMES, *SUBPACKAGES})

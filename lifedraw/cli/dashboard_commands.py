@@ -1,5 +1,7 @@
 """The ``lifedraw serve`` and ``lifedraw report`` subcommands; the dashboard (Panel, Bokeh,
-HoloViews) is imported only when one of them runs, so the other commands start fast.
+HoloViews) is imported only when one of them runs, so the other commands start fast. ``report`` draws
+its pictures in a second process, started before anything else, so the plotting libraries load there
+while this process loads the engine and computes (``dashboard.picture_process``).
 """
 from __future__ import annotations
 
@@ -38,14 +40,17 @@ def add_report_parser(sub) -> None:
 
 
 def run_report(args) -> int:
-    from ..dashboard.report import build_report
-    from ..engine.cautions import CAUTION
-    from ..engine.scenarios import load_scenario
-    from ..engine.output_files import check_destination, write_atomically
-    # The destination is checked before the (costly) report is built; written atomically.
-    path = check_destination(args.output, force=args.force, suffixes=(".html", ".htm"))
-    sc = load_scenario(args.scenario)
-    text = build_report(sc, n=args.n, seed=args.seed, method=args.method, tolerance=args.tolerance)
+    from ..dashboard.picture_process import PictureProcess
+    with PictureProcess() as pictures:
+        from ..dashboard.report import build_report
+        from ..engine.cautions import CAUTION
+        from ..engine.scenarios import load_scenario
+        from ..engine.output_files import check_destination, write_atomically
+        # The destination is checked before the (costly) report is built; written atomically.
+        path = check_destination(args.output, force=args.force, suffixes=(".html", ".htm"))
+        sc = load_scenario(args.scenario)
+        text = build_report(sc, n=args.n, seed=args.seed, method=args.method, tolerance=args.tolerance,
+                            pictures=pictures)
     write_atomically(path, text)
     print(f"wrote the report of '{sc.title}' to {path}")
     print(CAUTION)
