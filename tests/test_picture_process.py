@@ -19,6 +19,7 @@ import pytest
 
 from lifedraw.dashboard import picture_drawing
 from lifedraw.dashboard.packed_plots import packed_payloads
+from lifedraw.dashboard import picture_process
 from lifedraw.dashboard.picture_process import PictureOrder, PictureProcess, Pictures, order
 from lifedraw.dashboard.report import build_report
 from lifedraw.engine.compare import compare_methods
@@ -42,8 +43,17 @@ class RecordedPictures(Pictures):
 
 
 def plot_documents(drawn) -> str:
-    """The packed plot documents as JSON text, Bokeh's model ids and document ids by order of appearance."""
-    text = json.dumps(packed_payloads(drawn.tail)["docs"], sort_keys=True)
+    """The packed plot documents as JSON text, Bokeh's model ids and document ids by order of appearance.
+    A column of text (the method names of the comparison's whiskers) is written as an object array by a
+    process without pandas and as a list by one that has loaded it: the same values, read as a list here."""
+    def lists(node):
+        if isinstance(node, dict):
+            if node.get("type") == "ndarray" and node.get("dtype") == "object":
+                return [lists(v) for v in node["array"]]
+            return {k: lists(v) for k, v in node.items()}
+        return [lists(v) for v in node] if isinstance(node, list) else node
+
+    text = json.dumps(lists(packed_payloads(drawn.tail)["docs"]), sort_keys=True)
     ids: dict[str, str] = {}
     text = re.sub(r'"p\d+"', lambda m: ids.setdefault(m.group(0), f'"model-{len(ids)}"'), text)
     return re.sub(r"[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}", "uuid", text)
@@ -78,23 +88,13 @@ def test_a_second_process_draws_the_same_pictures_as_this_one(recorded):
 
 def test_plain_array_storage_draws_what_data_frame_storage_drew(recorded, monkeypatch):
     # HoloViews' default store (pandas data frames first) against the plain stores the dashboard sets:
-    # the same models and values. One difference is allowed: a column of text is written as an
-    # object array by the plain store and as a list by the data frame store, the same values either way.
+    # the same models and values.
     plain = plot_documents(recorded.drawn_pictures)
     monkeypatch.setattr(hv.Dataset, "datatype", list(hv.core.data.datatypes))
     assert hv.Dataset.datatype[0] == "dataframe"
-    framed = plot_documents(picture_drawing.pack([picture_drawing.draw(o) for o in recorded.orders]))
-
-    def lists(text):
-        def undo(node):
-            if isinstance(node, dict):
-                if node.get("type") == "ndarray" and node.get("dtype") == "object":
-                    return [undo(v) for v in node["array"]]
-                return {k: undo(v) for k, v in node.items()}
-            return [undo(v) for v in node] if isinstance(node, list) else node
-        return json.dumps(undo(json.loads(text)), sort_keys=True)
-
-    assert lists(plain) == lists(framed)
+    framed_orders = [picture_drawing.draw(o) for o in recorded.orders]
+    assert "DataFrame" in type(hv.Curve(([1.0, 2.0], [3.0, 4.0])).data).__name__
+    assert plot_documents(picture_drawing.pack(framed_orders)) == plain
 
 
 def test_a_failing_picture_comes_back_as_an_error_with_its_traceback():
@@ -105,6 +105,25 @@ def test_a_failing_picture_comes_back_as_an_error_with_its_traceback():
         with pytest.raises(RuntimeError, match=r"(?s)drawing the report's pictures failed:.*KeyError"):
             pictures.packed()
     assert not process.is_alive()
+
+
+def test_a_process_that_ends_without_a_word_is_replaced_by_drawing_here(recorded):
+    with PictureProcess() as pictures:
+        for o in recorded.orders:
+            pictures.add(o)
+        pictures.process.kill()          # as the system's out-of-memory killer would
+        pictures.process.join()
+        with pytest.warns(RuntimeWarning, match="ended early"):
+            drawn = pictures.packed()
+    assert plot_documents(drawn) == plot_documents(recorded.drawn_pictures)
+
+
+def test_one_core_draws_in_this_process(monkeypatch):
+    monkeypatch.setattr(picture_process, "usable_cores", lambda: 1)
+    assert type(picture_process.report_pictures()) is Pictures
+    monkeypatch.setattr(picture_process, "usable_cores", lambda: 2)
+    with picture_process.report_pictures() as pictures:
+        assert isinstance(pictures, PictureProcess) and pictures.process.is_alive()
 
 
 def test_the_process_is_stopped_when_the_report_fails_before_its_pictures():

@@ -40,8 +40,8 @@ def add_report_parser(sub) -> None:
 
 
 def run_report(args) -> int:
-    from ..dashboard.picture_process import PictureProcess
-    with PictureProcess() as pictures:
+    from ..dashboard.picture_process import report_pictures
+    with report_pictures() as pictures:
         from ..dashboard.report import build_report
         from ..engine.cautions import CAUTION
         from ..engine.scenarios import load_scenario
