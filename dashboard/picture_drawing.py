@@ -35,7 +35,11 @@ def pack(drawn: list[list]) -> DrawnPictures:
 
 def prepare() -> None:
     """Work that needs no order, done while the first orders are computed: the picture modules loaded
-    (the first sets up HoloViews' Bokeh backend, about 0.4 s) and BokehJS packed (once per process)."""
+    (the first sets up HoloViews' Bokeh backend, about 0.4 s)."""
     for name in PICTURE_MODULES:
         import_module(f"{__package__}.{name}")
+
+
+def while_idle() -> None:
+    """Work for a moment with no order waiting: BokehJS packed (once per process, about 50 ms)."""
     packed_bokehjs()

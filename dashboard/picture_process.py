@@ -164,7 +164,11 @@ def draw_orders(orders, results) -> None:
         from . import picture_drawing
         picture_drawing.prepare()
         drawn = []
-        while (picture := pickle.loads(orders.recv_bytes())) is not None:
+        while True:
+            if not orders.poll():
+                picture_drawing.while_idle()
+            if (picture := pickle.loads(orders.recv_bytes())) is None:
+                break
             drawn.append(picture_drawing.draw(picture))
         results.send(("drawn", picture_drawing.pack(drawn)))
     except EOFError:     # the ordering process ended: nothing to send back
