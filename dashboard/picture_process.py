@@ -15,6 +15,7 @@ imports neither side: the command starts the process before it imports the engin
 from __future__ import annotations
 
 import dataclasses
+import gc
 import multiprocessing
 import os
 import pickle
@@ -159,7 +160,12 @@ def report_pictures() -> Pictures:
 
 def draw_orders(orders, results) -> None:
     """The second process: import the plotting side, draw each order as it arrives, and at the end
-    (``None``) send the packed page back. Any failure goes back as its traceback."""
+    (``None``) send the packed page back. Any failure goes back as its traceback.
+
+    The cyclic garbage collector stays off: this process lives a few seconds and every object of the
+    plotting libraries lives as long, so each collection would walk some 300,000 objects to free about
+    3 MB (measured: 0.1 s of CPU saved)."""
+    gc.disable()
     try:
         from . import picture_drawing
         picture_drawing.prepare()

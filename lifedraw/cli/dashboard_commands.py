@@ -5,6 +5,8 @@ while this process loads the engine and computes (``dashboard.picture_process``)
 """
 from __future__ import annotations
 
+import gc
+
 from ..dashboard.defaults import DEFAULT_ADDRESS, DEFAULT_PORT
 from .numbers import seed_number, whole_number
 
@@ -40,6 +42,22 @@ def add_report_parser(sub) -> None:
 
 
 def run_report(args) -> int:
+    # The command's objects (the imports' some 200,000, the report's data) live until the report is
+    # written: the cyclic collector would walk them again and again to free about 1 MB (0.1-0.3 s of CPU),
+    # so it pauses. At the end they are kept out of later collections (gc.freeze) rather than walked once
+    # more as the collector resumes: the command line ends next, and a long-lived caller keeps the
+    # imported modules' objects anyway.
+    collecting = gc.isenabled()
+    gc.disable()
+    try:
+        return write_report_now(args)
+    finally:
+        gc.freeze()
+        if collecting:
+            gc.enable()
+
+
+def write_report_now(args) -> int:
     from ..dashboard.picture_process import report_pictures
     with report_pictures() as pictures:
         from ..dashboard.report import build_report
