@@ -511,7 +511,8 @@ GAPS = {
           "fleet study (about 0.5 s), while the second, started first, imports HoloViews, Bokeh and Panel and "
           "sets up HoloViews' Bokeh backend (about 1 s), then turns each picture into Bokeh models as its data "
           "arrives (16 pictures, about 1 s) and serialises them (0.3 s). The pictures' half is the longer and "
-          "sets the time; pandas is no longer loaded (HoloViews keeps the plain arrays it is given). The two "
+          "sets the time; pandas is no longer loaded (HoloViews keeps the plain arrays it is given) and the cyclic "
+          "garbage collector pauses in both processes (about 0.9 s of CPU in all). The two "
           "halves need the two cores: with one of them busy with other work they share the other, and the "
           "command takes about their sum (compare the one-core runs in the notes and the load average)."),
 }
