@@ -14,6 +14,7 @@ imports neither side: the command starts the process before it imports the engin
 """
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import gc
 import multiprocessing
@@ -177,7 +178,8 @@ def draw_orders(orders, results) -> None:
                 break
             drawn.append(picture_drawing.draw(picture))
         results.send(("drawn", picture_drawing.pack(drawn)))
-    except EOFError:     # the ordering process ended: nothing to send back
+    except (EOFError, KeyboardInterrupt):  # the ordering process ended or was stopped: it wants nothing back
         pass
     except BaseException:
-        results.send(("failed", traceback.format_exc()))
+        with contextlib.suppress(OSError):     # unless it has gone meanwhile
+            results.send(("failed", traceback.format_exc()))
