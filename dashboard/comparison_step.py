@@ -7,6 +7,7 @@ import html
 import panel as pn
 
 from . import plots
+from .html_tables import comparison_table
 from .background import off_loop
 from .notices import error_box, show_error
 from .state import PLANNED_DRAWS
@@ -88,7 +89,7 @@ class ComparisonStep(Step):
         self.note.object = f'<p class="ld-small ld-muted">{html.escape(s.comparison_note)}.</p>'
         decision = s.decision()
         self.decision.object = f'<p class="ld-verdict"><b>{html.escape(decision.sentence)}</b></p>' if decision else ""
-        self.table.object = plots.comparison_table(rows)
+        self.table.object = comparison_table(rows)
         self.bars[:] = [pn.pane.HoloViews(b, width=390, height=250, margin=(0, 6))
                         for b in plots.comparison_charts(rows, int(s.planned_draws), width=380, height=240)]
 

@@ -11,7 +11,8 @@ import holoviews as hv
 import numpy as np
 
 from .axis_style import hide_logo
-from .plots import DRAWS, FONTS, GRID, MODEL, TOOLS, fmt, html_table, unit_singular
+from .plots import DRAWS, FONTS, GRID, MODEL, TOOLS
+from .time_units import unit_singular
 
 BAND = "#a9c4de"
 
@@ -103,35 +104,3 @@ def warranty_plot(data: dict, unit: str, width=None, height=300) -> hv.Overlay:
     return _framewise(hv.Overlay([curve, interval, exact])).opts(
         **_opts("Warranty claims per calendar period", width, height, legend_position="top_right",
                 xlabel=f"calendar time, period mid-points ({unit})", ylabel="free-replacement claims"))
-
-
-def fleet_summary_html(data: dict, unit: str) -> str:
-    """The key numbers: fleet, totals with their exact references, spares, optimum, warranty."""
-    e = str       # plain text: html_table escapes every cell (escaping here too would show "&lt;")
-    rows = [["fleet", f"{data['units']:,} units, {data['runs']:,} runs, seed {data['seed']}, method {e(data['method'])}"],
-            ["horizon", f"{fmt(data['horizon'])} {e(unit)} in {len(data['edges']) - 1} periods of {fmt(data['period'])}"],
-            ["failures over the horizon", f"simulated mean {fmt(data['total_mean'])}"
-             + (f"; exact {fmt(data['total_exact'])}" if data.get("total_exact") is not None else
-                "; exact: not solved (more than 100 distinct ages)")]]
-    if data.get("preventive_age") is not None:
-        rows.append(["preventive replacement", f"at age {fmt(data['preventive_age'])} {e(unit)}; mean "
-                                               f"{fmt(data['preventive_mean'])} over the horizon"])
-    for level, stock, low, high in zip(data["levels"], data["stock"], data["low"], data["high"]):
-        interval = f"{fmt(low) if np.isfinite(low) else '–'} to {fmt(high) if np.isfinite(high) else '–'}"
-        rows.append([f"spares for a {level:.0%} service level", f"{stock:,.0f} (95% interval {interval})"])
-    replacement = data.get("age_replacement")
-    if replacement:
-        per = f"per {e(unit_singular(unit) or 'time unit')} and unit"
-        rows.append(["run to failure", f"{fmt(replacement['cost_rate_run_to_failure'])} {per} (cost_failure / MTTF)"])
-        if replacement["optimal_age"] is None:
-            rows.append(["optimal replacement age", "none: no finite age beats running to failure here"])
-        else:
-            rows.append(["optimal replacement age", f"{fmt(replacement['optimal_age'])} {e(unit)}: "
-                                                    f"{fmt(replacement['cost_rate'])} {per} "
-                                                    f"({replacement['saving']:.1%} below run to failure)"])
-    warranty = data.get("warranty")
-    if warranty:
-        rows.append(["warranty claims in all", f"exact {fmt(warranty['total_expected'])}, simulated mean "
-                                               f"{fmt(warranty['total_mean'])} (cover {fmt(warranty['warranty'])} "
-                                               f"{e(unit)}, units sold at the start of each period)"])
-    return html_table(["figure", "value"], rows, "ld-table ld-fleet-summary")

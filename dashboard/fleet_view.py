@@ -16,6 +16,7 @@ from lifedraw.engine.cautions import FLEET_CAUTION
 from lifedraw.engine.systems import system_from_scenario
 
 from . import fleet_plots
+from .html_tables import fleet_summary_html
 from .fleet_state import MAX_RUNS, MAX_UNITS, FleetStep, fleet_payload
 from .views import STEP_STYLES, HEAD_CSS, TABLE_CSS, TEXT_CSS
 
@@ -158,7 +159,7 @@ class FleetView:
                 self.plots[:] = []
             return
         self.status.object = f'<p class="ld-small ld-muted">{html.escape(f.note)}</p>'
-        self.summary.object = fleet_plots.fleet_summary_html(data, unit)
+        self.summary.object = fleet_summary_html(data, unit)
         size = dict(width=PLOT_WIDTH, height=PLOT_HEIGHT)
         figures = [fleet_plots.failures_plot(data, unit, **size), fleet_plots.spares_plot(data, **size)]
         if data.get("age_replacement"):

@@ -2,7 +2,7 @@
 model's exact values, and a scenario's whole system when it has one."""
 from __future__ import annotations
 
-from . import plots
+from .html_tables import life_table
 from .step_base import Step, text_pane
 
 
@@ -37,7 +37,7 @@ class LifeStep(Step):
         figs = s.life_figures()
         if figs is None:
             return
-        self.table.object = plots.life_table(figs, s.scenario.time_unit)
+        self.table.object = life_table(figs, s.scenario.time_unit)
         if figs["n"]:
             src = ("all draws" if figs["n"] == figs["total"] else
                    f"a uniform reservoir of {figs['n']:,} of the {figs['total']:,} draws")
@@ -57,7 +57,7 @@ class LifeStep(Step):
         import html as _h
         return (f'<h4 style="margin:14px 0 4px 0">The whole system: {_h.escape(figs["name"])}</h4>'
                 f'<pre class="ld-small" style="white-space:pre-wrap">{_h.escape(figs["describe"])}</pre>'
-                + plots.life_table(figs, s.scenario.time_unit)
+                + life_table(figs, s.scenario.time_unit)
                 + f'<p class="ld-small ld-muted">From {figs["n"]:,} system lifetimes drawn from the part samplers '
                   "(series = first failure, parallel = last, standby = sum of lives) beside the exact figures of "
                   "the structure. Parts are assumed independent and switching perfect: real redundancy is often "

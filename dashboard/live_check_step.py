@@ -7,6 +7,7 @@ import panel as pn
 
 from . import plots
 from . import reliability_plots
+from .html_tables import counters_table
 from .mirrored_plot import MirroredPlot
 from .step_base import Step, TEXT_CSS, text_pane
 
@@ -133,7 +134,7 @@ class LiveCheckStep(Step):
 
     def _texts(self):
         s = self.state
-        self.counters.object = plots.counters_table(s.counters(), columns=3)
+        self.counters.object = counters_table(s.counters(), columns=3)
         d, p = s.ks()
         n_res = int(s.acc.x.size)
         if s.n:

@@ -10,7 +10,7 @@ from bokeh.models import PrintfTickFormatter
 
 from lifedraw.engine.families import FAMILIES
 
-from . import plots
+from . import html_tables
 from .background import off_loop
 from .escaping import css_token, file_stem
 from .notices import error_box, show_error
@@ -124,7 +124,7 @@ class ModelStep(Step):
             f"<h3>{html.escape(sc.title)}</h3><p>{story}</p>"
             f"<pre>{html.escape(s.target.describe())}</pre>"
             f'<p class="ld-small ld-muted">Ages in {html.escape(sc.time_unit)}. Mission times: '
-            f'{", ".join(plots.fmt(t) for t in sc.mission_times) or "none"}.</p>')
+            f'{", ".join(html_tables.fmt(t) for t in sc.mission_times) or "none"}.</p>')
         self._prefill_editor()          # the editor always shows the model that runs now
         self.weights.object = self._weights_html()
         source = (sc.name, tuple(sc.parameters), sc.model.get("kind"))

@@ -85,18 +85,22 @@ class PackedPlots:
 def narrow_floats(models) -> int:
     """Store the float64 columns of every ColumnDataSource under ``models`` as float32 where that loses
     nothing visible (see the module's docstring); returns the number of columns narrowed."""
+    return narrow_columns(source for model in models for source in model.select({"type": ColumnDataSource}))
+
+
+def narrow_columns(sources) -> int:
+    """``narrow_floats`` for the given ColumnDataSources themselves."""
     narrowed = 0
     lo, hi = FLOAT32_RANGE
-    for model in models:
-        for source in model.select({"type": ColumnDataSource}):
-            for key, column in list(source.data.items()):
-                if not (isinstance(column, np.ndarray) and column.dtype == np.float64):
-                    continue
-                size = np.abs(column[np.isfinite(column)])
-                if np.all((size == 0) | ((size > lo) & (size < hi))):
-                    # item by item: assigning a whole dict whose arrays compare equal would be ignored
-                    source.data[key] = column.astype(np.float32)
-                    narrowed += 1
+    for source in sources:
+        for key, column in list(source.data.items()):
+            if not (isinstance(column, np.ndarray) and column.dtype == np.float64):
+                continue
+            size = np.abs(column[np.isfinite(column)])
+            if np.all((size == 0) | ((size > lo) & (size < hi))):
+                # item by item: assigning a whole dict whose arrays compare equal would be ignored
+                source.data[key] = column.astype(np.float32)
+                narrowed += 1
     return narrowed
 
 
@@ -127,11 +131,11 @@ def packed_bokehjs() -> str:
 
 def pack_plots(models: list) -> PackedPlots:
     """Put ``models`` (Bokeh roots) into one document and pack it with BokehJS (see the module's docstring)."""
-    narrow_floats(models)
     doc = Document()
     with doc.models.freeze():        # one pass over the model graph for all roots, not one per root
         for model in models:
             doc.add_root(model)
+    narrow_columns([model for model in doc.models if isinstance(model, ColumnDataSource)])  # found by that pass
     docs_json, render_items = standalone_docs_json_and_render_items(models)
     docs = serialize_json({"docs_json": docs_json, "render_items": [item.to_json() for item in render_items]},
                           pretty=False)

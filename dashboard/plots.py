@@ -13,13 +13,18 @@ import holoviews as hv
 import numpy as np
 
 from .axis_style import count_formatter, hide_logo, log_formatter
+from .time_units import age_label, unit_singular
 
-from lifedraw.engine.life import inside_interval, verdict_legend
-
-from .escaping import text
 
 if "bokeh" not in hv.Store.renderers:
     hv.extension("bokeh", logo=False)
+
+#: Where HoloViews keeps an element's columns. Every picture here is built from plain numpy arrays, which
+#: the dictionary and grid stores hold as they are; HoloViews' first choice, a pandas data frame, would copy
+#: every column into one and import pandas for it (about 0.25 s of a `lifedraw report`). The Bokeh models
+#: drawn are the same (tests/test_report.py compares them).
+PLAIN_DATATYPES = ["dictionary", "grid", "array"]
+hv.Dataset.datatype = PLAIN_DATATYPES
 
 DRAWS = "#5b8db8"
 MODEL = "#c2412d"
@@ -71,15 +76,6 @@ def _finish(obj, **opts):
 def finish_overlay(obj, **opts):
     """``_finish`` for the other picture modules: options, with every layer of an overlay framewise."""
     return _finish(obj, **opts)
-
-
-def unit_singular(unit: str) -> str:
-    unit = str(unit or "").strip()
-    return unit[:-1] if unit.endswith("s") and len(unit) > 2 else unit
-
-
-def age_label(unit: str) -> str:
-    return f"age at failure ({unit})" if unit else "age at failure"
 
 
 def _steps(edges, values):
@@ -444,137 +440,3 @@ def comparison_charts(rows: list[dict], planned: int | None = None, width=None, 
         out.append(_dots(mem, "table memory (bytes)", "bytes", "memory of the tables (bytes)", width, height,
                          ylim=(0, None), yformatter=count_formatter()))
     return out
-
-
-# ---- tables (HTML) ------------------------------------------------------------------------------
-
-def fmt(value, digits: int = 4) -> str:
-    """A number for a table: thousands separators for large values, significant digits otherwise."""
-    if value is None:
-        return "–"
-    if isinstance(value, (bool, np.bool_)):
-        return "yes" if value else "no"
-    if isinstance(value, (int, np.integer)):
-        return f"{int(value):,}"
-    if isinstance(value, (float, np.floating)):
-        v = float(value)
-        if math.isnan(v):
-            return "–"
-        if math.isinf(v):
-            return "∞" if v > 0 else "−∞"
-        if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e9):
-            return f"{v:.{digits}g}"
-        if abs(v) >= 1000:
-            return f"{v:,.0f}"
-        return f"{v:.{digits}g}"
-    return text(value)
-
-
-def html_table(header: list[str], rows: list[list], css_class: str = "ld-table") -> str:
-    """An HTML table (a plain string: Panel's HTML pane shows a ``Markup`` object as text); every
-    header and cell is escaped unless it is ``Markup`` already."""
-    head = "".join(f"<th>{text(h)}</th>" for h in header)
-    body = "".join("<tr>" + "".join(f"<td>{text(c)}</td>" for c in row) + "</tr>" for row in rows)
-    return f'<table class="{text(css_class)}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
-
-
-_COUNTER_LABELS = {
-    "method": "method", "variant": "variant", "samples": "draws", "setup_seconds": "set-up (s)",
-    "uniforms_per_sample": "uniforms per draw", "density_evals_per_sample": "density evaluations per draw",
-    "acceptance_rate": "acceptance rate", "squeeze_rate": "share decided by the squeeze",
-    "table_bytes": "table size (bytes)", "u_error": "u-error (estimate at set-up)", "tolerance": "tolerance",
-}
-
-
-def counters_table(stats: dict, columns: int = 1) -> str:
-    """The sampler's counters (sampler.stats), known ones first and in plain words,
-    split into ``columns`` side-by-side tables."""
-    rows = []
-    for key, label in _COUNTER_LABELS.items():
-        if key in stats:
-            rows.append([label, fmt(stats[key])])
-    for key, value in stats.items():
-        if key in _COUNTER_LABELS or isinstance(value, (dict, list, tuple)):
-            continue
-        rows.append([key.replace("_", " "), fmt(value)])
-    per = max(1, -(-len(rows) // max(1, columns)))
-    tables = [html_table(["counter", "value"], rows[i:i + per], "ld-table ld-compact")
-              for i in range(0, len(rows), per)]
-    if len(tables) == 1:
-        return tables[0]
-    blocks = "".join(f'<div style="flex:1 1 0;min-width:240px">{t}</div>' for t in tables)
-    return f'<div style="display:flex;gap:28px;align-items:flex-start">{blocks}</div>'
-
-
-def comparison_table(rows: list[dict]) -> str:
-    header = ["method", "variant", "set-up ms", "ns per draw (range)", "draws/s", "acceptance", "uniforms/draw",
-              "f evals/draw", "squeeze share", "table bytes", "u-error (estimate)"]
-    head = "".join(f"<th>{text(h)}</th>" for h in header)
-    body = []
-    for r in rows:
-        name = f"<td><b>{text(r['method'])}</b></td>"
-        if not r.get("applicable"):
-            body.append(f'<tr class="ld-na">{name}<td colspan="{len(header) - 1}" class="ld-muted">'
-                        f"not applicable: {text(r.get('reason', ''))}</td></tr>")
-            continue
-        values = [text(r.get("variant") or ""), fmt(r.get("setup_ms"), 3), _per_draw(r),
-                 count_text(r.get("draws_per_second")), fmt(r.get("acceptance_rate")),
-                 fmt(r.get("uniforms_per_sample")), fmt(r.get("density_evals_per_sample")),
-                 fmt(r.get("squeeze_rate")), fmt(r.get("table_bytes")), fmt(r.get("u_error"), 2)]
-        body.append("<tr>" + name + "".join(f"<td>{c}</td>" for c in values) + "</tr>")
-    return (f'<table class="ld-table ld-comparison"><thead><tr>{head}</tr></thead>'
-            f"<tbody>{''.join(body)}</tbody></table>")
-
-
-def _per_draw(r: dict) -> str:
-    if not r.get("seconds_per_draw"):
-        return "–"
-    low, high = r.get("seconds_per_draw_low"), r.get("seconds_per_draw_high")
-    spread = f" ({1e9 * low:.3g}–{1e9 * high:.3g})" if low and high else ""
-    return f"{1e9 * r['seconds_per_draw']:.3g}{spread}"
-
-
-def count_text(value) -> str:
-    """60 M, 4.3 M, 950 k: counts the way the charts label them (M for millions)."""
-    if value is None:
-        return "–"
-    v = float(value)
-    for suffix, size in (("G", 1e9), ("M", 1e6), ("k", 1e4)):
-        if abs(v) >= size:
-            return f"{v / (1e3 if suffix == 'k' else size):.3g} {suffix}"
-    return f"{v:,.0f}"
-
-
-def life_table(figures: dict, unit: str) -> str:
-    """Life figures of the draws (estimate and interval) beside the model's exact values."""
-    sample, exact = figures.get("sample"), figures.get("exact")
-    if exact is None:
-        return '<p class="ld-muted">The model\'s exact figures could not be computed.</p>'
-    conf = sample["confidence"] if sample else 0.95
-    header = ["figure", "from the draws", f"{conf:.0%} interval", "model (exact)", "inside?"]
-    rows = []
-
-    def row(name, est, lo, hi, model, pct=False):
-        f = (lambda v: "–" if v is None else f"{100 * v:.3f} %") if pct else fmt
-        inside = "–"
-        if est is not None and model is not None and lo is not None and hi is not None and math.isfinite(model):
-            inside = "✓" if inside_interval(model, lo, hi) else "✗"
-        rows.append([name, f(est), "–" if lo is None else f"{f(lo)} to {f(hi)}", f(model), inside])
-
-    m = sample["mttf"] if sample else {}
-    row(f"MTTF ({unit})", m.get("estimate"), m.get("lower"), m.get("upper"), exact["mttf"]["value"])
-    for name, b in exact["b_lives"].items():
-        s = sample["b_lives"][name] if sample else {}
-        row(f"{name} life ({unit})", s.get("estimate"), s.get("lower"), s.get("upper"), b["value"])
-    for i, r in enumerate(exact["reliability"]):
-        s = sample["reliability"][i] if sample else {}
-        row(f"R({fmt(r['time'])} {unit})", s.get("estimate"), s.get("lower"), s.get("upper"), r["value"], pct=True)
-    legend = (f'<p class="ld-small ld-muted ld-verdict-legend">{text(verdict_legend(conf))}</p>'
-              if sample else "")
-    return html_table(header, rows) + legend
-
-
-def parameters_table(parameters: dict) -> str:
-    rows = [[p.name, p.label or "", fmt(p.value), f"{fmt(p.low)} to {fmt(p.high)}"]
-            for p in parameters.values()]
-    return html_table(["parameter", "meaning", "value", "slider range"], rows)

@@ -11,8 +11,9 @@ import holoviews as hv
 import numpy as np
 
 from .axis_style import count_formatter
-from .life_curves import WEIBULL_TICKS, weibull_y
-from .plots import DRAWS, GRID, MODEL, age_label, common_opts, finish_overlay, unit_singular
+from .weibull_scale import WEIBULL_TICKS, weibull_y
+from .plots import DRAWS, GRID, MODEL, common_opts, finish_overlay
+from .time_units import age_label, unit_singular
 
 FIELD = "#222222"
 #: Half-width pictures keep their legend above the plotting area, in one row, so the data keeps the width.

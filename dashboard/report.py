@@ -4,7 +4,9 @@ method comparison and life figures, with Bokeh's JavaScript inside the file so i
 One function, ``write_report``, serves both ``lifedraw report`` and the dashboard's
 Report step. Plots are HoloViews elements rendered to plain Bokeh models
 (``hv.render``) and packed with BokehJS, gzip-compressed, into the page (``packed_plots``);
-every text and table is plain HTML. No Panel template.
+every text and table is plain HTML. No Panel template. The pictures are ordered here from plain data and
+drawn where ``pictures`` draws them (``picture_process``): the command line draws them in a second
+process, so this module loads no plotting library itself.
 """
 from __future__ import annotations
 
@@ -14,7 +16,6 @@ import platform
 import time
 from pathlib import Path
 
-import holoviews as hv
 import numpy as np
 
 from lifedraw import engine
@@ -23,13 +24,14 @@ from lifedraw.engine.cautions import CAUTION
 from lifedraw.engine.compare import MethodResult, compare_methods, decide
 from lifedraw.engine.scenarios import Scenario
 
-from . import plots, reliability_plots
-from .packed_plots import pack_plots
+from . import html_tables as tables
+from .cdf_table import CdfTable, histogram_edges
+from .check_data import histogram_payload, model_on_bins, pp_payload, qq_payload
+from .draw_accumulator import DrawAccumulator
 from .escaping import file_stem, paragraphs, text
 from .fleet_report import fleet_section
 from .life_curves import hazard_payload, weibull_payload
-from .state import (CdfTable, DrawAccumulator, histogram_edges, histogram_payload, model_on_bins, pp_payload,
-                    qq_payload)
+from .picture_process import Pictures, order
 
 PLOT_WIDTH = 880
 PLANNED_DRAWS = 1_000_000
@@ -70,18 +72,20 @@ def default_report_path(directory, scenario: Scenario) -> Path:
 def write_report(scenario: Scenario, path, n: int | None = None, seed: int | None = None,
                  method: str | None = None, tolerance: float | None = None,
                  comparison: list | None = None, compare_n: int = COMPARE_N,
-                 planned_draws: int = PLANNED_DRAWS) -> Path:
+                 planned_draws: int = PLANNED_DRAWS, pictures: Pictures | None = None) -> Path:
     """Draw ``n`` lifetimes of ``scenario`` with ``seed`` and write the report to ``path``.
 
     Defaults come from the scenario's run table. ``comparison`` reuses rows
     already measured (``MethodResult`` or dicts); without it the methods are
-    measured now with ``compare_n`` draws each. Returns the path written.
+    measured now with ``compare_n`` draws each. ``pictures`` draws the plots (``picture_process``:
+    a ``PictureProcess`` draws them in a second process; default: this one). Returns the path written.
     """
     path = Path(path)
     if path.suffix.lower() not in (".html", ".htm"):
         raise ModelError("output", f"the report is an HTML file; give a name ending in .html, got {path.name!r}")
     text = build_report(scenario, n=n, seed=seed, method=method, tolerance=tolerance,
-                        comparison=comparison, compare_n=compare_n, planned_draws=planned_draws)
+                        comparison=comparison, compare_n=compare_n, planned_draws=planned_draws,
+                        pictures=pictures)
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(text, encoding="utf-8")
     return path
@@ -89,7 +93,8 @@ def write_report(scenario: Scenario, path, n: int | None = None, seed: int | Non
 
 def build_report(scenario: Scenario, n: int | None = None, seed: int | None = None, method: str | None = None,
                  tolerance: float | None = None, comparison: list | None = None,
-                 compare_n: int = COMPARE_N, planned_draws: int = PLANNED_DRAWS) -> str:
+                 compare_n: int = COMPARE_N, planned_draws: int = PLANNED_DRAWS,
+                 pictures: Pictures | None = None) -> str:
     """The report as one HTML string (see ``write_report``)."""
     n = int(scenario.sample_size if n is None else n)
     if n < 1000:
@@ -98,6 +103,8 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
     method = method or scenario.method
     tolerance = float(scenario.tolerance if tolerance is None else tolerance)
     unit = scenario.time_unit
+    pictures = Pictures() if pictures is None else pictures
+    half = PLOT_WIDTH // 2 - 10
 
     target = scenario.target()
     sampler = fit(target, method, tolerance)
@@ -110,46 +117,52 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
     edges, view_right = histogram_edges(target, table)
     acc = DrawAccumulator(edges, table, capacity=n, rng=seed)
     acc.add(draws)
+
+    # The pictures of the draws are ordered first: a picture process draws them while the checks,
+    # the method comparison and the fleet study run here.
+    hist = pictures.add(order("plots", "density_histogram",
+                              histogram_payload(acc, model_on_bins(target, edges), view_right, False, unit),
+                              width=PLOT_WIDTH, height=340))
+    qq = pictures.add(order("plots", "qq_plot", qq_payload(acc, table, unit), width=half, height=320))
+    pp = pictures.add(order("plots", "pp_plot", pp_payload(acc, table), width=half, height=320))
+    hazard_data = hazard_payload(target, acc.edges, acc.counts, acc.below, acc.n, view_right, False, unit)
+    hazard = pictures.add(order("reliability_plots", "hazard_plot", hazard_data, width=half, height=320))
+    cumulative = pictures.add(order("reliability_plots", "cumulative_hazard_plot", hazard_data,
+                                    width=half, height=320))
+    weibull = pictures.add(order("reliability_plots", "weibull_plot",
+                                 weibull_payload(target, acc.sample_quantiles, int(acc.x.size), n, unit),
+                                 width=PLOT_WIDTH, height=360))
+    fallback = None
+    if not target.atoms.size:
+        x = np.linspace(edges[0], view_right, 400)
+        fallback = {"x": x, "pdf": target.pdf(x), "draws": draws[:50_000]}
+    geometry = pictures.add(order("plots", "geometry_plots", sampler.geometry(400, 0), unit, fallback=fallback,
+                                  width=PLOT_WIDTH, height=300, view=(float(edges[0]), float(view_right))))
+
     checked = engine.check(draws, target, rng=seed)
     life = {"sample": engine.life_summary(draws, scenario.mission_times),
             "exact": engine.exact_life_figures(target, scenario.mission_times), "n": n, "total": n}
     if comparison is None:
         comparison = compare_methods(target, n=compare_n, rng=seed, tolerance=tolerance)
     rows = [r.to_dict() if isinstance(r, MethodResult) else dict(r) for r in comparison]
-
-    hist = plots.density_histogram(histogram_payload(acc, model_on_bins(target, edges), view_right, False, unit),
-                                   width=PLOT_WIDTH, height=340)
-    qq = plots.qq_plot(qq_payload(acc, table, unit), width=PLOT_WIDTH // 2 - 10, height=320)
-    pp = plots.pp_plot(pp_payload(acc, table), width=PLOT_WIDTH // 2 - 10, height=320)
-    fallback = None
-    if not target.atoms.size:
-        x = np.linspace(edges[0], view_right, 400)
-        fallback = {"x": x, "pdf": target.pdf(x), "draws": draws[:50_000]}
-    geometry = plots.geometry_plots(sampler.geometry(400, 0), unit, fallback=fallback, width=PLOT_WIDTH, height=300,
-                                    view=(float(edges[0]), float(view_right)))
-    bars = plots.comparison_charts(rows, planned_draws, width=PLOT_WIDTH // 2 - 10, height=240)
+    bars = pictures.add(order("plots", "comparison_charts", rows, planned_draws, width=half, height=240))
     decision = decide(rows, planned_draws, tolerance)
-    hazard_data = hazard_payload(target, acc.edges, acc.counts, acc.below, acc.n, view_right, False, unit)
-    hazard = reliability_plots.hazard_plot(hazard_data, width=PLOT_WIDTH // 2 - 10, height=320)
-    cumulative = reliability_plots.cumulative_hazard_plot(hazard_data, width=PLOT_WIDTH // 2 - 10, height=320)
-    weibull = reliability_plots.weibull_plot(weibull_payload(target, acc.sample_quantiles, int(acc.x.size), n, unit),
-                                             width=PLOT_WIDTH, height=360)
 
-    fleet_figures, fleet_html = fleet_section(scenario, target, sampler, seed, PLOT_WIDTH)
+    fleet_orders, fleet_html = fleet_section(scenario, target, sampler, seed, PLOT_WIDTH)
+    fleet = [pictures.add(o) for o in fleet_orders]
 
-    figures = [hist, qq, pp, hazard, cumulative, weibull, *geometry, *bars, *fleet_figures]
-    packed = pack_plots([hv.render(f, backend="bokeh") for f in figures])
-    divs = packed.divs
-    d_hist, d_qq, d_pp, d_hazard, d_cumulative, d_weibull = divs[:6]
-    d_geom = divs[6:6 + len(geometry)]
-    d_bars = divs[6 + len(geometry):6 + len(geometry) + len(bars)]
-    d_fleet = divs[6 + len(geometry) + len(bars):]
+    drawn = pictures.packed()
+    divs = drawn.groups
+    (d_hist,), (d_qq,), (d_pp,) = divs[hist], divs[qq], divs[pp]
+    (d_hazard,), (d_cumulative,), (d_weibull,) = divs[hazard], divs[cumulative], divs[weibull]
+    d_geom, d_bars = divs[geometry], divs[bars]
+    d_fleet = [d for i in fleet for d in divs[i]]
 
     now = _dt.datetime.now().astimezone()
     e = text     # every piece of the scenario's text is escaped where it enters the page
     story = paragraphs(scenario.story)
     gof = _goodness_table(checked)
-    params = plots.parameters_table(scenario.parameters) if scenario.parameters else \
+    params = tables.parameters_table(scenario.parameters) if scenario.parameters else \
         '<p class="muted">No parameters: the model is the recorded field data.</p>'
 
     def grid(items):
@@ -163,7 +176,7 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
   <p>Scenario <code>{e(scenario.name)}</code> · written {e(now.strftime('%Y-%m-%d %H:%M %Z'))}</p>
 </header>
 <div class="caution"><b>Caution.</b> {e(CAUTION)}</div>
-{packed.note}
+{drawn.note}
 
 <section id="model"><h2>Model</h2>
 <p>{story}</p>
@@ -173,12 +186,12 @@ def build_report(scenario: Scenario, n: int | None = None, seed: int | None = No
 </section>
 
 <section id="run"><h2>Run</h2>
-{plots.html_table(["setting", "value"], [
+{tables.html_table(["setting", "value"], [
     ["method", f"{sampler.method}{' (' + str(stats['variant']) + ')' if stats.get('variant') else ''}"],
     ["why", sampler.reason], ["published method", type(sampler).reference],
     ["seed", str(seed)], ["sample size", f"{n:,}"], ["tolerance (u-error)", f"{tolerance:g}"],
     ["set-up", f"{1e3 * stats['setup_seconds']:.1f} ms"], ["drawing time", f"{seconds:.3f} s"],
-    ["mission times", ", ".join(f"{plots.fmt(t)} {unit}" for t in scenario.mission_times) or "none"]],
+    ["mission times", ", ".join(f"{tables.fmt(t)} {unit}" for t in scenario.mission_times) or "none"]],
     "ld-table ld-compact")}
 </section>
 
@@ -199,7 +212,7 @@ scales (ln t against ln(−ln(1 − F))), where a Weibull model is a straight li
 <section id="geometry"><h2>Method geometry: {e(sampler.method)}</h2>
 {''.join(f'<div class="plot">{d}</div>' for d in d_geom)}
 <h3>Sampler counters</h3>
-{plots.counters_table(stats, columns=2)}
+{tables.counters_table(stats, columns=2)}
 </section>
 
 <section id="comparison"><h2>Method comparison</h2>
@@ -207,13 +220,13 @@ scales (ln t against ln(−ln(1 − F))), where a Weibull model is a straight li
 <p class="muted">Every method measured on this machine when the report was written (or when the page
 measured it), one process: one untimed warm-up batch, then several timed batches; the cost per draw is their
 median, the range their fastest and slowest. The verdict weighs set-up plus cost per draw for
-{plots.count_text(planned_draws)} draws among the methods that reach the tolerance.</p>
-{plots.comparison_table(rows)}
+{tables.count_text(planned_draws)} draws among the methods that reach the tolerance.</p>
+{tables.comparison_table(rows)}
 {grid(d_bars)}
 </section>
 
 <section id="life"><h2>Life figures</h2>
-{plots.life_table(life, unit)}
+{tables.life_table(life, unit)}
 <p class="muted">From all {n:,} draws. MTTF: normal-theory interval; B-lives: distribution-free
 order-statistic intervals (Hahn &amp; Meeker 1991); R(t): Wilson score intervals. The model's exact
 values come from the model itself.</p>
@@ -221,7 +234,7 @@ values come from the model itself.</p>
 {fleet_html(d_fleet)}
 
 <section id="versions"><h2>Software</h2>
-{plots.html_table(["package", "version"], [[k, v] for k, v in _versions().items()], "ld-table ld-compact")}
+{tables.html_table(["package", "version"], [[k, v] for k, v in _versions().items()], "ld-table ld-compact")}
 </section>
 
 <div class="caution"><b>Caution.</b> {e(CAUTION)} The draws are simulated from the stated model;
@@ -234,26 +247,26 @@ they say nothing the model does not already assume.</div>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>lifedraw report — {e(scenario.title)}</title>
-<style>{PAGE_CSS}{packed.css}</style>
+<style>{PAGE_CSS}{drawn.css}</style>
 </head>
 <body>
 {body}
-{packed.tail}
+{drawn.tail}
 </body>
 </html>
 """
 
 
 def _goodness_table(rep) -> str:
-    rows = [["Kolmogorov-Smirnov", plots.fmt(rep.ks_statistic), plots.fmt(rep.ks_pvalue)],
-            ["Anderson-Darling", plots.fmt(rep.ad_statistic), plots.fmt(rep.ad_pvalue)],
-            [f"chi-square ({rep.chi2_dof} dof)" if rep.chi2_dof else "chi-square", plots.fmt(rep.chi2_statistic),
-             plots.fmt(rep.chi2_pvalue)]]
+    rows = [["Kolmogorov-Smirnov", tables.fmt(rep.ks_statistic), tables.fmt(rep.ks_pvalue)],
+            ["Anderson-Darling", tables.fmt(rep.ad_statistic), tables.fmt(rep.ad_pvalue)],
+            [f"chi-square ({rep.chi2_dof} dof)" if rep.chi2_dof else "chi-square", tables.fmt(rep.chi2_statistic),
+             tables.fmt(rep.chi2_pvalue)]]
     verdict = "no test rejects the model at alpha = 0.001" if rep.passed() else \
         "at least one test rejects the model at alpha = 0.001"
     notes = "".join(f"<li>{text(n)}</li>" for n in rep.notes)
     return (f"<h3>Goodness of fit ({rep.n:,} draws): {verdict}</h3>"
-            + plots.html_table(["test", "statistic", "p-value"], rows, "ld-table ld-compact")
+            + tables.html_table(["test", "statistic", "p-value"], rows, "ld-table ld-compact")
             + '<p class="muted">A test rejects when its p-value is below 0.001; a correct sampler is still '
               "rejected by each test about 1 time in 1,000.</p>"
             + (f'<ul class="muted">{notes}</ul>' if notes else ""))

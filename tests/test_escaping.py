@@ -14,7 +14,7 @@ import tomllib
 import pytest
 
 from hostile_inputs import PARAMETER, hostile_scenario_toml, payload
-from lifedraw.dashboard import plots
+from lifedraw.dashboard import html_tables
 from lifedraw.dashboard.escaping import css_token, file_stem, one_line, paragraphs, text
 from lifedraw.dashboard.notices import error_html
 from lifedraw.dashboard.report import build_report, default_report_path
@@ -50,7 +50,7 @@ def test_file_stem_and_css_token_keep_only_safe_characters():
 
 
 def test_html_table_escapes_every_cell_and_header():
-    out = plots.html_table([payload("h")], [[payload("c"), 1.5]])
+    out = html_tables.html_table([payload("h")], [[payload("c"), 1.5]])
     assert not TAG.search(out)
     assert "&lt;img src=x" in out
 
@@ -59,13 +59,13 @@ def test_life_table_escapes_the_time_unit(hostile):
     from lifedraw import engine
     figures = {"sample": None, "exact": engine.exact_life_figures(hostile.target(), hostile.mission_times),
                "n": 0, "total": 0}
-    out = plots.life_table(figures, hostile.time_unit)
+    out = html_tables.life_table(figures, hostile.time_unit)
     assert not TAG.search(out)
     assert "MTTF (&lt;/script&gt;&lt;img src=x" in out
 
 
 def test_parameters_table_escapes_names_and_labels(hostile):
-    out = plots.parameters_table(hostile.parameters)
+    out = html_tables.parameters_table(hostile.parameters)
     assert not TAG.search(out)
     assert "&lt;b&gt;k&lt;/b&gt;&#34;x" in out
 

@@ -15,7 +15,7 @@ from scipy import stats
 
 import lifedraw
 from lifedraw.cli.main import main
-from lifedraw.dashboard.plots import life_table
+from lifedraw.dashboard.html_tables import life_table
 from lifedraw.engine.check import U_GRID_SIZE, check, u_grid
 from lifedraw.engine.life import (exact_life_figures, format_life_figures, inside_interval, life_summary,
                                   verdict_legend)

@@ -6,7 +6,6 @@ from __future__ import annotations
 import sys
 import time
 
-from ..engine.generate import DEFAULT_CHUNK, MANIFEST, dask_client, generate, read_manifest, workers_of
 from .numbers import seed_number, whole_number
 
 
@@ -51,6 +50,7 @@ class TextProgress:
 
 
 def run_generate(args) -> int:
+    from ..engine.generate import DEFAULT_CHUNK, MANIFEST, dask_client, generate, read_manifest, workers_of
     from ..engine.sampling import fit
     from ..engine.scenarios import load_scenario
     from ..engine.systems import system_from_scenario
@@ -63,14 +63,15 @@ def run_generate(args) -> int:
         drawable, what = fit(sc.target(), args.method or sc.method, tolerance), "lifetimes"
     n = args.n if args.n is not None else sc.sample_size
     seed = args.seed if args.seed is not None else sc.seed
+    chunk = args.chunk if args.chunk is not None else DEFAULT_CHUNK
     bar = TextProgress()
     start = time.perf_counter()
     try:
         with dask_client(args.scheduler, args.workers, args.timeout) as client:
             where = "local threads" if client is None else f"{len(workers_of(client))} Dask workers"
-            print(f"{sc.title}: {n:,} {what} ({sc.time_unit}) in chunks of {min(args.chunk, n):,} "
+            print(f"{sc.title}: {n:,} {what} ({sc.time_unit}) in chunks of {min(chunk, n):,} "
                   f"on {where}, seed {seed}", file=sys.stderr)
-            generate(drawable, n, chunk=args.chunk, seed=seed, client=client, out=args.out, progress=bar)
+            generate(drawable, n, chunk=chunk, seed=seed, client=client, out=args.out, progress=bar)
     except KeyboardInterrupt:
         bar.close()
         print(f"lifedraw: stopped; finished shards are kept in {args.out}, run the same command "
@@ -92,7 +93,8 @@ def add_generate_parser(sub) -> None:
                                    "manifest. Rerunning the same command resumes.")
     p.add_argument("scenario", help="a scenario name from scenarios/ or a path to a .toml file")
     p.add_argument("-n", type=whole_number, default=None, help="number of lifetimes, e.g. 1e9 (default: the scenario's)")
-    p.add_argument("--chunk", type=whole_number, default=DEFAULT_CHUNK, help="draws per chunk and shard (default 1e7)")
+    p.add_argument("--chunk", type=whole_number, default=None,
+                   help="draws per chunk and shard (default: the engine's, 1e7)")
     p.add_argument("--out", required=True, help="output folder for the shards and manifest.json")
     p.add_argument("--seed", type=seed_number, default=None, help="seed (default: the scenario's)")
     where = p.add_mutually_exclusive_group()

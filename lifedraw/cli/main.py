@@ -2,7 +2,9 @@
 compare methods, write reports, serve the dashboard, generate at scale.
 
 The command line sits above both the engine and the dashboard; engine commands run on
-the engine alone, ``serve`` and ``report`` load the dashboard only when called.
+the engine alone, ``serve`` and ``report`` load the dashboard only when called. Every command imports
+what it needs when it runs (nothing of numpy, scipy or the engine at start-up), so ``lifedraw report``
+can start its picture process before this process pays for the engine.
 """
 from __future__ import annotations
 
@@ -10,12 +12,7 @@ import argparse
 import gc
 import re
 import sys
-from pathlib import Path
 
-import numpy as np
-
-from ..engine.cautions import CAUTION
-from ..engine.errors import ModelError
 from .compare_command import add_compare_parser
 from .dashboard_commands import add_report_parser, add_serve_parser
 from .fleet_command import add_fleet_parser
@@ -31,6 +28,7 @@ def csv_column_name(prefix: str, unit: str) -> str:
 
 
 def cmd_scenarios(args) -> int:
+    from ..engine.errors import ModelError
     from ..engine.scenarios import load_scenario, scenario_names
     for name in scenario_names():
         try:
@@ -54,6 +52,8 @@ SAMPLE_SUFFIXES = (".npy", ".csv", ".txt")
 
 
 def cmd_sample(args) -> int:
+    import numpy as np
+
     from ..engine.output_files import check_destination, write_atomically
     # The destination is checked before the model is built or a draw is made.
     out = check_destination(args.output, force=args.force, suffixes=SAMPLE_SUFFIXES)
@@ -79,6 +79,7 @@ def cmd_sample(args) -> int:
 
 
 def cmd_check(args) -> int:
+    from ..engine.cautions import CAUTION
     from ..engine.check import check
     sc, sampler = _sampler_for(args)
     n = args.n if args.n is not None else sc.sample_size
@@ -121,21 +122,30 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def is_model_error(err: BaseException) -> bool:
+    """Whether ``err`` is the engine's ModelError. Only a command that ran the engine can raise one,
+    so a process that never loaded the engine is not made to load it here."""
+    errors = sys.modules.get("lifedraw.engine.errors")
+    return errors is not None and isinstance(err, errors.ModelError)
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
         return int(args.func(args) or 0)
-    except ModelError as err:
-        print(f"lifedraw: {err}", file=sys.stderr)
-        return 2
     except KeyboardInterrupt:
         print("lifedraw: stopped", file=sys.stderr)
         return 130
     except BrokenPipeError:  # e.g. `lifedraw scenarios | head`: the reader left, nothing to report
         sys.stderr.close()
         return 0
-    except OSError as err:
+    except Exception as err:
+        if is_model_error(err):
+            print(f"lifedraw: {err}", file=sys.stderr)
+            return 2
+        if not isinstance(err, OSError):
+            raise
         # A file system error the checks above did not foresee (disk full, permissions
         # changed mid-run): one line, never a traceback.
         print(f"lifedraw: {err.strerror or err}{f': {err.filename}' if err.filename else ''}", file=sys.stderr)
