@@ -37,6 +37,17 @@ def models_in_order(root: Model) -> list[Model]:
     return out
 
 
+def holds_model(value) -> bool:
+    """Whether ``value`` is or contains a Bokeh model (in lists, tuples or dicts)."""
+    if isinstance(value, Model):
+        return True
+    if isinstance(value, dict):
+        return any(holds_model(v) for v in value.values())
+    if isinstance(value, (list, tuple)):
+        return any(holds_model(v) for v in value)
+    return False
+
+
 def _collect(value, into: list) -> None:
     if isinstance(value, Model):
         into.append(value)
@@ -125,10 +136,11 @@ class MirroredPlot:
             return None
         pairs = []
         for source, shown in zip(theirs, ours):
-            skip = set(source.properties_with_refs()) | {"id", "name"}
+            # A property that may hold a model (Bokeh counts a title's or an axis label's text among them:
+            # it may be a TeX model) is copied while it holds plain values; a model is never shared.
             names = (set(source.properties_with_values(include_defaults=False))
-                     | set(shown.properties_with_values(include_defaults=False))) - skip
-            pairs.append((source, shown, sorted(names)))
+                     | set(shown.properties_with_values(include_defaults=False))) - {"id", "name"}
+            pairs.append((source, shown, sorted(names), set(source.properties_with_refs())))
         return pairs
 
     def show(self, data: dict) -> int:
@@ -150,9 +162,11 @@ class MirroredPlot:
             self.replaced = True
             return -1
         copied = 0
-        for source, shown, names in self._pairs:
+        for source, shown, names, may_refer in self._pairs:
             for name in names:
                 value = getattr(source, name)
+                if name in may_refer and (holds_model(value) or holds_model(getattr(shown, name))):
+                    continue
                 if not same_value(getattr(shown, name), value):
                     setattr(shown, name, dict(value) if isinstance(value, dict) else value)
                     copied += 1
