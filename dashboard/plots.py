@@ -408,7 +408,7 @@ def comparison_charts(rows: list[dict], planned: int | None = None, width=None, 
     spread = hv.ErrorBars(whiskers, md, [dps, "below", "above"]).opts(color=GRID, line_width=2)
     dots = hv.Scatter(points, md, dps).opts(color=DRAWS, size=10, tools=["hover"])
     top = max(1.0 / r["seconds_per_draw_low"] for r in measured)
-    out.append(_finish(spread * dots, **_common(f"draws per second: median and range of {repeats} repeats",
+    out.append(_finish(spread * dots, **_common(f"draws/second: median, range of {repeats} runs",
                                                 width, height, show_legend=False, ylim=(0, 1.1 * top),
                                                 yformatter=count_formatter())))
     out.append(_dots([(r["method"], float(r["setup_ms"])) for r in measured], "set-up (ms)", "setup",
@@ -431,7 +431,7 @@ def comparison_charts(rows: list[dict], planned: int | None = None, width=None, 
             if r.get("u_error") is not None and math.isfinite(float(r["u_error"]))]
     exact = [r["method"] for r in measured if r.get("u_error") is None]
     if errs:
-        title = "u-error, estimated (log axis)" + ("; exact methods not shown" if exact else "")
+        title = "estimated u-error" + ("; exact methods omitted" if exact else "")
         top = max(v for _, v in errs)
         out.append(_dots(errs, "u-error (estimate)", "u_error", title, width, height, logy=True,
                          ylim=(1e-17, max(top * 10, 1e-14))))
