@@ -145,8 +145,9 @@ def qq_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([lo, hi], [lo, hi]), mx, sy, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((model, sample), mx, sy, label="quantiles").opts(color=DRAWS, size=4, tools=["hover"])
     n = int(data.get("n", 0))
-    return _finish(line * pts, **_common(f"QQ plot: sample against model quantiles, dashed y = x "
-                                         f"({n:,} draws)", width, height, show_legend=False))
+    # Short enough to show whole in the report's half-width plots; the axes say what is plotted.
+    return _finish(line * pts, **_common(f"QQ plot, {n:,} draws (dashed: y = x)", width, height,
+                                         show_legend=False))
 
 
 def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
@@ -155,7 +156,7 @@ def pp_plot(data: dict, width=None, height=280) -> hv.Overlay:
     line = hv.Curve(([0, 1], [0, 1]), mx, ey, label="y = x").opts(color=GRID, line_dash="dashed")
     pts = hv.Scatter((data["model"], data["empirical"]), mx, ey, label="probabilities").opts(
         color=DRAWS, size=4, tools=["hover"])
-    return _finish(line * pts, **_common("PP plot: shares of draws against model F, dashed y = x", width,
+    return _finish(line * pts, **_common("PP plot (dashed: y = x)", width,
                                          height, show_legend=False, xlim=(0, 1), ylim=(0, 1)))
 
 
