@@ -8,7 +8,7 @@ and a failure or kill mid-write leaves any earlier file whole.
 from __future__ import annotations
 
 import os
-import tempfile
+import secrets
 from pathlib import Path
 from typing import Callable, Union
 
@@ -47,13 +47,27 @@ def check_destination(path, *, force: bool = False, suffixes=None, field: str = 
     return path
 
 
+def _new_partial_file(path: Path) -> tuple[int, str]:
+    """A new, empty file beside ``path`` (descriptor, name) for the content before the rename.
+
+    Created as a plain ``open`` would create it, with the permissions the user's umask gives (a
+    report or shard others may read): ``tempfile.mkstemp`` would make every output private (0600)."""
+    for _ in range(100):
+        name = str(path.parent / f".{path.name}.{secrets.token_hex(6)}.partial")
+        try:
+            return os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0), 0o666), name
+        except FileExistsError:
+            continue
+    raise FileExistsError(f"no free temporary name beside {path.name}")
+
+
 def write_atomically(path, content: Content, *, field: str = "output") -> Path:
     """Write ``content`` (bytes, text in UTF-8, or a function that writes to a binary
     file object) to ``path`` through a temporary file in the same folder and a rename."""
     path = Path(path)
     fd, temp_name = None, None
     try:
-        fd, temp_name = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".partial")
+        fd, temp_name = _new_partial_file(path)
         with os.fdopen(fd, "wb") as fh:
             fd = None
             if isinstance(content, str):

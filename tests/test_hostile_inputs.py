@@ -365,6 +365,24 @@ def test_a_write_that_fails_midway_keeps_the_old_file(tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["report.html"]
 
 
+@pytest.mark.parametrize("umask, mode", [(0o022, 0o644), (0o077, 0o600)])
+def test_an_output_gets_the_permissions_the_users_umask_gives(tmp_path, umask, mode):
+    # As a file made by open() (POSIX: mode 0666 less the umask): a report or shard written through a
+    # temporary file came out private (0600) whatever the umask, so others could not read it.
+    import os
+    import stat
+
+    from lifedraw.engine.output_files import write_atomically
+    if os.name != "posix":
+        pytest.skip("POSIX permissions")
+    old = os.umask(umask)
+    try:
+        out = write_atomically(tmp_path / "report.html", "<p>shared</p>")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(out.stat().st_mode) == mode
+
+
 def test_report_refuses_an_existing_file_before_building(tmp_path, capsys):
     out = tmp_path / "r.html"
     out.write_text("keep me")
