@@ -243,6 +243,55 @@ def leva_block(pairs, marks, out, start, constants):
     return _leva_block_jit(pairs, marks, out, int(start), *constants)
 
 
+# ---- ratio-of-uniforms on a polygon envelope (engine.methods.ratio_of_uniforms) ---------
+
+def _rou_polygon_py(pick, s_uniform, r_uniform, alias_prob, alias, triangles, sector_of, chords, centre,
+                    u_out, x_out, squeezed):
+    """One pass over k candidates of the polygon envelope, term by term as RatioOfUniforms'
+    numpy path: the triangle by Walker's alias method on ``pick``, the point (s, r) folded onto
+    it, x = v/u + centre, and the squeeze test in the triangle's sector (a line test; sector -1
+    is a tail wedge, outside the squeeze). ``triangles`` rows: apex u, apex v, e1 u, e1 v, e2 u,
+    e2 v. Writes u, x and the squeeze verdict of each candidate."""
+    n = alias.shape[0]
+    last_chord = chords.shape[0] - 1
+    for i in range(pick.shape[0]):
+        p = pick[i] * n
+        j = int(p)
+        if j > n - 1:
+            j = n - 1
+        if not (p - j < alias_prob[j]):
+            j = alias[j]
+        s = s_uniform[i]
+        r = r_uniform[i]
+        if s + r > 1.0:
+            s = 1.0 - s
+            r = 1.0 - r
+        u = triangles[j, 0] + s * triangles[j, 2] + r * triangles[j, 4]
+        v = triangles[j, 1] + s * triangles[j, 3] + r * triangles[j, 5]
+        x_out[i] = v / u + centre          # IEEE division (error_model="numpy"): u = 0 gives inf or nan
+        u_out[i] = u
+        k = sector_of[j]
+        # u > 0 also keeps out a candidate rounded onto the u = 0 edge, whose v/u is no age.
+        squeezed[i] = (0 <= k <= last_chord and u > 0.0
+                       and chords[k, 0] * u + chords[k, 1] * v <= chords[k, 2])
+
+
+_rou_polygon_jit = (numba.njit(cache=True, nogil=True, fastmath=False, error_model="numpy")(_rou_polygon_py)
+                    if HAVE_JIT else None)
+
+
+def rou_polygon(pick, s_uniform, r_uniform, alias_prob, alias, triangles, sector_of, chords, centre):
+    """(u, x, squeezed) of ratio-of-uniforms candidates on a polygon envelope, compiled (None when
+    no JIT is available; RatioOfUniforms then runs its numpy path, the twin)."""
+    if _rou_polygon_jit is None:
+        return None
+    k = pick.shape[0]
+    u, x, squeezed = np.empty(k), np.empty(k), np.empty(k, dtype=np.bool_)
+    _rou_polygon_jit(pick, s_uniform, r_uniform, alias_prob, alias, triangles, sector_of, chords, float(centre),
+                     u, x, squeezed)
+    return u, x, squeezed
+
+
 # ---- rejection from a piecewise-exponential hat (engine.methods.rejection) ---------------
 
 def _hat_slots_py(out, cum, guide, total, last, table, pending, ratio, floor, loghat, ends, end_side, counts):

@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 from scipy import optimize
 
-from .. import table_checks
+from .. import kernels, table_checks
 from ..errors import MethodNotApplicable, ModelError
 from ..target import Target
 from .base import Sampler
@@ -477,6 +477,7 @@ class RatioOfUniforms(Sampler):
         if self.envelope == "polygon":
             apex, e1, e2, area, self._tri_sector = _sector_triangles(self.polygon, self.points)
             self._tri = (apex[:, 0], apex[:, 1], e1[:, 0], e1[:, 1], e2[:, 0], e2[:, 1])
+            self._tri_rows = np.ascontiguousarray(np.column_stack(self._tri))    # for the compiled pass
             env_area = float(np.sum(area))
             self._alias_prob, self._alias = alias_table(area / env_area)
         else:
@@ -548,17 +549,35 @@ class RatioOfUniforms(Sampler):
                 accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
         return x, squeezed, accepted, int(rest.size)
 
+    def _compiled_round(self, k: int, rng: np.random.Generator):
+        """_candidates and _classify for the polygon envelope in one compiled pass (engine.kernels.
+        rou_polygon), from the same uniforms in the same order; only the candidates outside the
+        squeeze go to the density."""
+        pick, s, r = rng.random(k), rng.random(k), rng.random(k)
+        u, x, squeezed = kernels.rou_polygon(pick, s, r, self._alias_prob, self._alias, self._tri_rows,
+                                             self._tri_sector, self.chords, self.centre)
+        accepted = squeezed.copy()
+        rest = np.flatnonzero(~squeezed)
+        if rest.size:
+            with np.errstate(invalid="ignore"):
+                accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
+        return x, squeezed, accepted, int(rest.size)
+
     def _fill(self, out, rng):
         m = out.size
         filled = 0
         per_candidate = 3 if self.envelope == "polygon" else 2
+        compiled = self.envelope == "polygon" and kernels.HAVE_JIT
         while filled < m:
             need = m - filled
             # About one binomial sd more candidates than the shortfall needs: a second
             # (small) round is rare, and the surplus thrown away stays well under 1%.
             k = int(need / self.expected_acceptance + math.sqrt(need) + 16)
-            u, v, sector = self._candidates(k, rng)
-            x, squeezed, accepted, evals = self._classify(u, v, sector)
+            if compiled:
+                x, squeezed, accepted, evals = self._compiled_round(k, rng)
+            else:
+                u, v, sector = self._candidates(k, rng)
+                x, squeezed, accepted, evals = self._classify(u, v, sector)
             self.counts["uniforms"] += per_candidate * k
             self.counts["candidates"] += k
             self.counts["density_evals"] += evals
