@@ -508,11 +508,10 @@ GAPS = {
           "3.4 ms per chunk under the GIL, which held this row to 1.3x. Fresh chunk arrays cost no page faults "
           "here (measured: the allocator reuses the freed chunks)."),
     "2. ratio-of-uniforms vs SimpleRatioUniforms": (
-          "the general ratio-of-uniforms method is vectorised numpy over arrays of candidates (no compiled "
-          "kernel): each round makes and reads back several arrays the size of the request, about 65 ns a draw "
-          "on the generalised gamma; the reference tests every candidate against the density in C, which the "
-          "squeeze spares 99% of the time here. Earlier runs gave 10-11x on this target: a run under 10x is the "
-          "machine's noise around the goal."),
+          "on the polygon envelope each round of candidates is one compiled pass (kernels.rou_polygon: the "
+          "triangle pick, the fold, x = v/u and the squeeze test), and only the ~1% of candidates outside the "
+          "squeeze reach the density; a ratio under the goal means the machine was busy. (The rectangle "
+          "envelope, used where no polygon is built, is vectorised numpy.)"),
     "8": ("the summary draws every chunk as the generation does and adds one compiled counting pass per "
           "chunk (about 3-4 ns a draw against 40-60 ns to draw it) and a sort of the first chunk on each worker; "
           "a ratio above the goal means the machine was busy (compare the worker CPU ratio in the notes) or the "
