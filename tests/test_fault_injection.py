@@ -80,15 +80,20 @@ def leva_sd_one_percent(monkeypatch):
     monkeypatch.setattr(LevaNormal, "standard_normal", standard_normal)
 
 
-def composition_weight_0_10(monkeypatch):
-    """Composition picks its first sub-population with weight 0.10 instead of 0.08 (the last
-    gives up the 0.02), as if the weight were typed wrong where the alias table is built."""
+def first_share_plus_0_02(monkeypatch, module):
+    """``module``'s alias tables give their first entry 0.02 more probability (the last gives it up)."""
     def faulty(p):
         p = np.array(p, dtype=float)
         p[0] += 0.02
         p[-1] -= 0.02
         return alias_table(p)
-    monkeypatch.setattr(composition_module, "alias_table", faulty)
+    monkeypatch.setattr(module, "alias_table", faulty)
+
+
+def composition_weight_0_10(monkeypatch):
+    """Composition picks its first sub-population with weight 0.10 instead of 0.08 (the last
+    gives up the 0.02), as if the weight were typed wrong where the alias table is built."""
+    first_share_plus_0_02(monkeypatch, composition_module)
 
 
 def tails_cut_in_sample(monkeypatch):
@@ -141,12 +146,7 @@ def triangle_share_off(monkeypatch):
     """Ratio-of-uniforms on a polygon envelope picks its first triangle with 0.02 more probability than
     its share of the area (the last gives it up), as if the area table were built wrong: candidates are
     no longer uniform on the envelope. The pick runs in the compiled pass (engine.kernels.rou_polygon)."""
-    def faulty(p):
-        p = np.array(p, dtype=float)
-        p[0] += 0.02
-        p[-1] -= 0.02
-        return alias_table(p)
-    monkeypatch.setattr(rou_module, "alias_table", faulty)
+    first_share_plus_0_02(monkeypatch, rou_module)
 
 
 def bin_share_times_1_25(index):

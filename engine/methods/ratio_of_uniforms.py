@@ -542,12 +542,18 @@ class RatioOfUniforms(Sampler):
         with np.errstate(divide="ignore", invalid="ignore"):
             x = v / u + self.centre
         squeezed = self._in_squeeze(u, v, x, sector)
+        accepted, evals = self._density_test(u, x, squeezed)
+        return x, squeezed, accepted, evals
+
+    def _density_test(self, u, x, squeezed):
+        """Accepted candidates: the squeezed ones, and of the others those with u^2 <= f(x) (the
+        boundary of region A); and how many densities that took."""
         accepted = squeezed.copy()
         rest = np.flatnonzero(~squeezed)
         if rest.size:
             with np.errstate(invalid="ignore"):
                 accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
-        return x, squeezed, accepted, int(rest.size)
+        return accepted, int(rest.size)
 
     def _compiled_round(self, k: int, rng: np.random.Generator):
         """_candidates and _classify for the polygon envelope in one compiled pass (engine.kernels.
@@ -556,12 +562,8 @@ class RatioOfUniforms(Sampler):
         pick, s, r = rng.random(k), rng.random(k), rng.random(k)
         u, x, squeezed = kernels.rou_polygon(pick, s, r, self._alias_prob, self._alias, self._tri_rows,
                                              self._tri_sector, self.chords, self.centre)
-        accepted = squeezed.copy()
-        rest = np.flatnonzero(~squeezed)
-        if rest.size:
-            with np.errstate(invalid="ignore"):
-                accepted[rest] = u[rest] * u[rest] <= self.target.pdf(x[rest])
-        return x, squeezed, accepted, int(rest.size)
+        accepted, evals = self._density_test(u, x, squeezed)
+        return x, squeezed, accepted, evals
 
     def _fill(self, out, rng):
         m = out.size
