@@ -122,13 +122,11 @@ def browser_connected(doc) -> bool:
 
 def release_session(updates: PageUpdates, state: DrawingBoard, session_id: str = "") -> None:
     """Let go of what a closed tab's session holds: its follow-up callback, then its draws and the
-    tables derived from its model. The draws are let go even if stopping the callback fails."""
-    try:
-        updates.detach()
-    finally:
-        state.release()
-        gc.unfreeze()
-        log.info("session %s released", session_id)
+    tables derived from its model."""
+    updates.detach()
+    state.release()
+    gc.unfreeze()
+    log.info("session %s released", session_id)
 
 
 def serve(port: int = DEFAULT_PORT, address: str = DEFAULT_ADDRESS, scenario: str | None = None, report_dir=None,

@@ -72,10 +72,9 @@ class LevaNormal(Sampler):
 
     # ---- drawing -----------------------------------------------------------------------
     @staticmethod
-    def _candidates(k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
-        # Two uniforms per candidate, read in pairs (the compiled loop draws them in the
+    def _candidates(pairs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        # Two uniforms per candidate, read in pairs (the compiled test reads them in the
         # same order). 1 - U lies in (0, 1]: u > 0 keeps v/u finite and ln u defined.
-        pairs = rng.random(2 * k)
         u = 1.0 - pairs[0::2]
         v = pairs[1::2] - 0.5
         v *= V_SPAN
@@ -137,9 +136,7 @@ class LevaNormal(Sampler):
         """(stored, accepted, squeezed, logs) for one block of candidate pairs."""
         if kernels.HAVE_JIT:
             return kernels.leva_block(block, marks, out, start, (S, T, A, B, R1, R2, V_SPAN))
-        u = 1.0 - block[0::2]
-        v = block[1::2] - 0.5
-        v *= V_SPAN
+        u, v = self._candidates(block)
         inner, accepted, logs = self._classify(u, v)
         take = np.flatnonzero(accepted)[:out.size - start]
         z = v.take(take)
@@ -176,7 +173,7 @@ class LevaNormal(Sampler):
         z = np.linspace(-8.0, 8.0, max(n_points, 50))
         bu = np.exp(-z * z / 4.0)
         rng = np.random.default_rng(rng)
-        u, v = self._candidates(n_points, rng)
+        u, v = self._candidates(rng.random(2 * n_points))
         inner, accepted, _ = self._classify(u, v)
         label = np.where(inner, "squeeze", np.where(accepted, "accepted", "rejected"))
         iu, iv = self._ellipse(R1, n_points)
